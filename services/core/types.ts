@@ -24,3 +24,37 @@ export interface UnitConfig {
   /** Exponents of the corrected-power group P / (δ^a · θ^b); a = 1, b = 0.5 by default. */
   correction?: { deltaExponent: number; thetaExponent: number };
 }
+
+/** Plume kernel shape used to map the ring to chambers. */
+export type PlumeKernel = 'von-mises' | 'wrapped-gaussian';
+
+/**
+ * Why a reading was not used. Codes are stored per thermocouple in a Uint8Array on the hot
+ * path; `VALIDITY_REASONS[code]` gives the name used in payloads.
+ */
+export const VALIDITY = {
+  valid: 0,
+  missing: 1,
+  out_of_range: 2,
+  isolated_outlier: 3,
+  frozen: 4,
+  erratic: 5,
+  drifting_alone: 6,
+} as const;
+
+export type ValidityReason = keyof typeof VALIDITY;
+export type ValidityCode = (typeof VALIDITY)[ValidityReason];
+
+/** Reason name for each validity code, index = code. */
+export const VALIDITY_REASONS: readonly ValidityReason[] = [
+  'valid',
+  'missing',
+  'out_of_range',
+  'isolated_outlier',
+  'frozen',
+  'erratic',
+  'drifting_alone',
+];
+
+/** A reading as it may arrive: a number, or nothing. */
+export type Reading = number | null | undefined;
