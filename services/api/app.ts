@@ -1,0 +1,97 @@
+/**
+ * Builds the HTTP application. Reads like a table of contents: external plugins (security
+ * headers, rate limit, OpenAPI), then Cansight's own (repositories, error envelope, the key
+ * guard), then routes. `parts` chooses what this process serves: the read/act API, ingest, or
+ * both (cansight start).
+ */
+import Fastify, { type FastifyInstance, type FastifyServerOptions } from 'fastify';
+import helmet from '@fastify/helmet';
+import rateLimit from '@fastify/rate-limit';
+import swagger from '@fastify/swagger';
+import swaggerUi from '@fastify/swagger-ui';
+import { Ajv } from 'ajv';
+import addFormats from 'ajv-formats';
+import { createHash } from 'node:crypto';
+import type { Config } from '../db/config.ts';
+import type { Logger } from '../db/logger.ts';
+import type { Pool } from '../db/pool.ts';
+import { createKeysRepository } from '../db/keys.ts';
+import { createUnitsRepository } from '../db/units.ts';
+import { installErrorHandling } from './errors.ts';
+import { authPlugin, bearerKey } from './auth.ts';
+import { healthRoutes } from './routes/health.ts';
+import { unitRoutes } from './routes/units.ts';
+import { ErrorReply } from './schemas.ts';
+import './context.ts';
+
+export interface AppParts {
+  api: boolean;
+  ingest: boolean;
+}
+
+export interface AppDeps {
+  config: Config;
+  pool: Pool;
+  logger: Logger;
+  parts?: AppParts;
+  /** Extra route plugins registered after the built-in ones (ingest, worker-backed routes). */
+  routes?: Array<(app: FastifyInstance) => Promise<void>>;
+}
+
+function makeAjv(coerce: boolean) {
+  const ajv = new Ajv({ allErrors: false, coerceTypes: coerce ? 'array' : false, removeAdditional: false, useDefaults: true, strict: false });
+  addFormats.default(ajv);
+  return ajv;
+}
+
+export async function buildApp(deps: AppDeps): Promise<FastifyInstance> {
+  const parts = deps.parts ?? { api: true, ingest: true };
+  const app = Fastify({
+    loggerInstance: deps.logger as FastifyServerOptions['loggerInstance'],
+    bodyLimit: deps.config.ingest.bodyLimitBytes,
+    connectionTimeout: 0,
+    requestTimeout: 300_000,
+    keepAliveTimeout: 72_000,
+    disableRequestLogging: true,
+  });
+
+  // Bodies are validated strictly (no coercion, unknown fields refused by the schemas);
+  // query strings and path parameters are text, so those coerce to the declared types.
+  const strict = makeAjv(false);
+  const lenient = makeAjv(true);
+  app.setValidatorCompiler(({ schema, httpPart }) => (httpPart === 'body' ? strict : lenient).compile(schema as object) as never);
+
+  // External plugins.
+  await app.register(helmet, { contentSecurityPolicy: false });
+  await app.register(rateLimit, {
+    max: deps.config.rateLimitPerMinute,
+    timeWindow: '1 minute',
+    keyGenerator: (req) => {
+      const key = bearerKey(req);
+      return key ? 'k:' + createHash('sha256').update(key).digest('hex').slice(0, 16) : 'ip:' + req.ip;
+    },
+  });
+  await app.register(swagger, {
+    openapi: {
+      info: { title: 'Cansight API', version: '1', description: 'Exhaust-ring monitoring of gas turbine fleets. Cansight advises; the turbine\'s own protection and the site\'s procedures govern.' },
+      components: { securitySchemes: { bearer: { type: 'http', scheme: 'bearer' } } },
+      security: [{ bearer: [] }],
+    },
+  });
+  await app.register(swaggerUi, { routePrefix: '/docs' });
+
+  // Cansight's own plugins.
+  app.decorate('pool', deps.pool);
+  app.decorate('appConfig', deps.config);
+  app.decorate('repos', { units: createUnitsRepository(deps.pool), keys: createKeysRepository(deps.pool) });
+  app.addSchema(ErrorReply);
+  installErrorHandling(app);
+  await app.register(authPlugin);
+
+  // Routes.
+  await app.register(healthRoutes);
+  app.get('/openapi.json', { schema: { hide: true }, config: { access: 'public' } }, async () => app.swagger());
+  if (parts.api) await app.register(unitRoutes);
+  for (const r of deps.routes ?? []) await app.register(r);
+  return app;
+}

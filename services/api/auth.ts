@@ -1,0 +1,48 @@
+/**
+ * The one guard: every route states its access in `config.access`; this hook reads the bearer
+ * key, finds it, and answers 401 (no key, unknown or revoked key) or 403 (wrong role, or a
+ * unit outside the key's scope) before the handler runs. A route whose URL names a unit
+ * (:unitId) is checked against the key's unit scope here; routes that list units filter by it.
+ */
+import type { FastifyInstance, FastifyRequest } from 'fastify';
+import fp from 'fastify-plugin';
+import { HttpError } from './errors.ts';
+import { ACCESS_ROLES } from './context.ts';
+import type { KeyRecord } from '../db/keys.ts';
+
+export function bearerKey(request: FastifyRequest): string | undefined {
+  const h = request.headers.authorization;
+  if (!h) return undefined;
+  const m = /^Bearer\s+(\S+)\s*$/i.exec(h);
+  return m ? m[1] : undefined;
+}
+
+/** True when the key may see or write this unit. */
+export function keyCoversUnit(key: KeyRecord, unitId: string): boolean {
+  return key.unitIds === null || key.unitIds.includes(unitId);
+}
+
+/** The unit scope to filter lists by: null for every unit. */
+export function unitScope(request: FastifyRequest): string[] | null {
+  return request.principal?.unitIds ?? null;
+}
+
+export const authPlugin = fp(async (app: FastifyInstance) => {
+  app.decorateRequest('principal', null);
+  app.addHook('onRequest', async (request) => {
+    const access = request.routeOptions.config?.access ?? 'public';
+    if (access === 'public') return;
+    const value = bearerKey(request);
+    if (!value) throw new HttpError(401, 'unauthorized', 'An API key is required: send "Authorization: Bearer <key>".');
+    const key = await app.repos.keys.verify(value);
+    if (!key) throw new HttpError(401, 'unauthorized', 'The API key is unknown or has been revoked.');
+    request.principal = key;
+    if (!ACCESS_ROLES[access].includes(key.role)) {
+      throw new HttpError(403, 'forbidden', `A key with role "${key.role}" may not do this; it needs one of: ${ACCESS_ROLES[access].join(', ')}.`);
+    }
+    const unitId = (request.params as Record<string, unknown> | undefined)?.unitId;
+    if (typeof unitId === 'string' && !keyCoversUnit(key, unitId)) {
+      throw new HttpError(403, 'forbidden', `This key is limited to units ${key.unitIds!.join(', ')}; it may not reach unit ${unitId}.`);
+    }
+  });
+});

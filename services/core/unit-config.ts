@@ -1,0 +1,41 @@
+/**
+ * Consistency checks of a unit configuration beyond field types: angle lists that match their
+ * counts, distinct thermocouple positions, a swirl curve sorted by load. Returns every problem
+ * found, each naming its field, so a person can correct them all at once.
+ */
+import type { UnitConfig } from './types.ts';
+
+export interface ConfigProblem {
+  field: string;
+  reason: string;
+}
+
+export const SWIRL_LOAD_MAX = 1.2;
+
+export function checkUnitConfig(c: UnitConfig): ConfigProblem[] {
+  const problems: ConfigProblem[] = [];
+  const tc = c.thermocouples;
+  if (tc.anglesDeg !== undefined && tc.firstAngleDeg !== undefined) {
+    problems.push({ field: 'thermocouples', reason: 'give either firstAngleDeg or anglesDeg, not both' });
+  }
+  if (tc.anglesDeg !== undefined) {
+    if (tc.anglesDeg.length !== tc.count) {
+      problems.push({ field: 'thermocouples.anglesDeg', reason: `has ${tc.anglesDeg.length} angles but count is ${tc.count}` });
+    }
+    const seen = new Set<number>();
+    tc.anglesDeg.forEach((a, i) => {
+      if (!(a >= 0 && a < 360)) problems.push({ field: `thermocouples.anglesDeg.${i}`, reason: `${a} is outside 0 ≤ angle < 360` });
+      if (seen.has(a)) problems.push({ field: `thermocouples.anglesDeg.${i}`, reason: `${a}° is given twice` });
+      seen.add(a);
+    });
+  }
+  const curve = c.swirl.curve;
+  if (curve.length === 0) problems.push({ field: 'swirl.curve', reason: 'needs at least one [load, degrees] point' });
+  curve.forEach(([load, deg], i) => {
+    if (!(load >= 0 && load <= SWIRL_LOAD_MAX)) problems.push({ field: `swirl.curve.${i}`, reason: `load ${load} is outside 0…${SWIRL_LOAD_MAX}` });
+    if (!Number.isFinite(deg)) problems.push({ field: `swirl.curve.${i}`, reason: 'angle is not a number' });
+    if (i > 0 && !(load > curve[i - 1][0])) problems.push({ field: `swirl.curve.${i}`, reason: 'loads must be strictly increasing' });
+  });
+  if (c.swirl.sense !== 1 && c.swirl.sense !== -1) problems.push({ field: 'swirl.sense', reason: 'must be 1 or -1' });
+  return problems;
+}

@@ -1,0 +1,170 @@
+/**
+ * Units repository: every query about units and their versioned configuration. A version's
+ * configuration is the whole UnitConfig; the one in force at time t has the latest
+ * effective_from <= t (version 1 is in force from the beginning of time).
+ */
+import type pg from 'pg';
+import type { UnitConfig } from '../core/types.ts';
+import { withTransaction } from './pool.ts';
+
+export interface UnitIdentity {
+  id: string;
+  name: string;
+  site: string;
+}
+
+export interface ConfigVersionRecord {
+  version: number;
+  /** null: in force from the beginning. */
+  effectiveFrom: string | null;
+  createdAt: string;
+  config: UnitConfig;
+}
+
+export interface UnitRecord extends UnitIdentity {
+  config: UnitConfig;
+  version: number;
+  versions: ConfigVersionRecord[];
+}
+
+export class DuplicateUnitError extends Error {}
+export class DuplicateEffectiveTimeError extends Error {}
+
+const iso = (v: unknown): string | null => {
+  if (v instanceof Date) return Number.isFinite(v.getTime()) ? v.toISOString() : null;
+  if (v == null || v === '-infinity') return null;
+  return String(v);
+};
+
+function versionsOf(rows: Record<string, unknown>[]): ConfigVersionRecord[] {
+  return rows.map((r) => ({
+    version: Number(r.version),
+    effectiveFrom: iso(r.effective_from),
+    createdAt: iso(r.created_at) as string,
+    config: r.config as UnitConfig,
+  }));
+}
+
+/** The version in force at instant t (ms since epoch) among versions sorted by effectiveFrom. */
+export function versionInForce(versions: ConfigVersionRecord[], tMs: number): ConfigVersionRecord | undefined {
+  let best: ConfigVersionRecord | undefined;
+  let bestFrom = -Infinity;
+  for (const v of versions) {
+    const from = v.effectiveFrom === null ? -Infinity : Date.parse(v.effectiveFrom);
+    if (from <= tMs && (best === undefined || from >= bestFrom)) {
+      best = v;
+      bestFrom = from;
+    }
+  }
+  return best;
+}
+
+export function createUnitsRepository(pool: pg.Pool) {
+  async function load(ids: string[] | null): Promise<UnitRecord[]> {
+    const units = await pool.query(
+      `SELECT id, name, site FROM units WHERE $1::text[] IS NULL OR id = ANY($1) ORDER BY id`,
+      [ids],
+    );
+    if (units.rows.length === 0) return [];
+    const versions = await pool.query(
+      `SELECT unit_id, version, effective_from, created_at, config FROM unit_config_versions
+        WHERE unit_id = ANY($1) ORDER BY unit_id, effective_from`,
+      [units.rows.map((u) => u.id)],
+    );
+    const byUnit = new Map<string, Record<string, unknown>[]>();
+    for (const v of versions.rows) {
+      const list = byUnit.get(v.unit_id) ?? [];
+      list.push(v);
+      byUnit.set(v.unit_id, list);
+    }
+    const now = Date.now();
+    return units.rows.map((u) => {
+      const vs = versionsOf(byUnit.get(u.id) ?? []);
+      const current = versionInForce(vs, now) ?? vs[0];
+      return { id: u.id, name: u.name, site: u.site, config: current.config, version: current.version, versions: vs };
+    });
+  }
+
+  return {
+    async create(unit: UnitIdentity, config: UnitConfig, by: string | null): Promise<UnitRecord> {
+      try {
+        await withTransaction(pool, async (c) => {
+          await c.query(`INSERT INTO units (id, name, site) VALUES ($1, $2, $3)`, [unit.id, unit.name, unit.site]);
+          await c.query(
+            `INSERT INTO unit_config_versions (unit_id, version, effective_from, config, created_by) VALUES ($1, 1, '-infinity', $2, $3)`,
+            [unit.id, JSON.stringify(config), by],
+          );
+        });
+      } catch (err) {
+        if ((err as { code?: string }).code === '23505') throw new DuplicateUnitError(`unit ${unit.id} already exists`);
+        throw err;
+      }
+      return (await load([unit.id]))[0];
+    },
+
+    async get(id: string): Promise<UnitRecord | undefined> {
+      return (await load([id]))[0];
+    },
+
+    async exists(id: string): Promise<boolean> {
+      const { rowCount } = await pool.query(`SELECT 1 FROM units WHERE id = $1`, [id]);
+      return (rowCount ?? 0) > 0;
+    },
+
+    /** Every unit, or those listed (a key's unit scope). */
+    async list(ids: string[] | null = null): Promise<UnitRecord[]> {
+      return load(ids);
+    },
+
+    /** Every configuration version of a unit, oldest effective first; [] for an unknown unit. */
+    async versions(id: string): Promise<ConfigVersionRecord[]> {
+      const { rows } = await pool.query(
+        `SELECT version, effective_from, created_at, config FROM unit_config_versions WHERE unit_id = $1 ORDER BY effective_from`,
+        [id],
+      );
+      return versionsOf(rows);
+    },
+
+    /**
+     * Changes name or site in place, and, when any configuration field changes, adds a new
+     * configuration version (the version in force at effectiveFrom with the changes applied)
+     * that takes effect at effectiveFrom. Returns undefined for an unknown unit.
+     */
+    async update(
+      id: string,
+      identity: Partial<Pick<UnitIdentity, 'name' | 'site'>>,
+      configChange: ((base: UnitConfig) => UnitConfig) | null,
+      effectiveFrom: Date,
+      by: string | null,
+    ): Promise<UnitRecord | undefined> {
+      const found = await withTransaction(pool, async (c) => {
+        const u = await c.query(`SELECT id FROM units WHERE id = $1 FOR UPDATE`, [id]);
+        if (u.rowCount === 0) return false;
+        if (identity.name !== undefined || identity.site !== undefined) {
+          await c.query(`UPDATE units SET name = coalesce($2, name), site = coalesce($3, site) WHERE id = $1`, [id, identity.name ?? null, identity.site ?? null]);
+        }
+        if (configChange) {
+          const base = await c.query(
+            `SELECT config FROM unit_config_versions WHERE unit_id = $1 AND effective_from <= $2 ORDER BY effective_from DESC LIMIT 1`,
+            [id, effectiveFrom],
+          );
+          const next = configChange(base.rows[0].config as UnitConfig);
+          try {
+            await c.query(
+              `INSERT INTO unit_config_versions (unit_id, version, effective_from, config, created_by)
+               SELECT $1, coalesce(max(version), 0) + 1, $2, $3, $4 FROM unit_config_versions WHERE unit_id = $1`,
+              [id, effectiveFrom, JSON.stringify(next), by],
+            );
+          } catch (err) {
+            if ((err as { code?: string }).code === '23505') throw new DuplicateEffectiveTimeError(`unit ${id} already has a configuration taking effect at ${effectiveFrom.toISOString()}`);
+            throw err;
+          }
+        }
+        return true;
+      });
+      return found ? (await load([id]))[0] : undefined;
+    },
+  };
+}
+
+export type UnitsRepository = ReturnType<typeof createUnitsRepository>;
