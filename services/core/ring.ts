@@ -1,0 +1,435 @@
+/**
+ * The per-ring entry point used on the hot path: `prepareUnit` builds a reusable context for one
+ * unit configuration (angles, kernel responses, buffers, a bounded cache of chamber solvers per
+ * load bin and validity mask), and `analyseRing` runs validity, coverage, spread and chamber
+ * estimates for one ring without allocating. The result object is reused: copy it
+ * (`copyRingAnalysis`, `ringAnalysisToJson`) before the next call if you keep it.
+ */
+import {
+  attributeChamber,
+  buildChamberSolver,
+  estimateChambers,
+  plumeKernel,
+  type ChamberAttribution,
+  type ChamberSolver,
+  type KernelSpec,
+} from './chambers.ts';
+import { arcDistanceDeg, chamberAnglesDeg, chamberPitchDeg, thermocoupleAnglesDeg } from './geometry.ts';
+import { emptySpread, spreadInto, type SpreadMetrics } from './spread.ts';
+import { swirlDeg } from './swirl.ts';
+import { VALIDITY, VALIDITY_REASONS, type PlumeKernel, type Reading, type UnitConfig, type ValidityReason } from './types.ts';
+import {
+  classifyMissingAndRange,
+  coverageInto,
+  defaultCoverageOptions,
+  defaultValidityOptions,
+  markIsolatedOutliers,
+  robustCentreInto,
+  type Coverage,
+  type CoverageOptions,
+  type ValidityOptions,
+} from './validity.ts';
+
+export interface AnalysisOptions {
+  validity: ValidityOptions;
+  coverage: CoverageOptions;
+  /** Plume kernel shape. */
+  kernel: PlumeKernel;
+  /** Plume width σ as a fraction of the chamber pitch (engineering judgement: 0.5). */
+  plumeWidthFraction: number;
+  /** Ridge λ as a fraction of the mean diagonal of WᵀW. */
+  ridgeFraction: number;
+  /** Width of the load bins that share one solver, load fraction. */
+  loadBinWidth: number;
+  /** Most solvers kept (least recently used are dropped). */
+  maxCachedSolvers: number;
+  /** Floor on the residual σ used for chamber uncertainties, °C. */
+  residualFloorDegC: number;
+  /** Fewer valid thermocouples than this: no chamber estimates. */
+  minValidForChambers: number;
+  /** Uncertainty of the swirl angle, degrees: sets how the runner-up chamber's likelihood falls off. */
+  swirlUncertaintyDeg: number;
+}
+
+/** Defaults: engineering judgement unless stated in the field's own comment. */
+export const defaultAnalysisOptions: AnalysisOptions = {
+  validity: defaultValidityOptions,
+  coverage: defaultCoverageOptions,
+  kernel: 'von-mises',
+  plumeWidthFraction: 0.5,
+  ridgeFraction: 0.01,
+  loadBinWidth: 0.01,
+  maxCachedSolvers: 512,
+  residualFloorDegC: 1,
+  minValidForChambers: 3,
+  swirlUncertaintyDeg: 8,
+};
+
+/** Options that may be given in part; nested groups are merged field by field. */
+export type AnalysisOptionsInput = Partial<Omit<AnalysisOptions, 'validity' | 'coverage'>> & {
+  validity?: Partial<ValidityOptions>;
+  coverage?: Partial<CoverageOptions>;
+};
+
+/** Merges partial options over the defaults. */
+export function resolveAnalysisOptions(input: AnalysisOptionsInput = {}): AnalysisOptions {
+  return {
+    ...defaultAnalysisOptions,
+    ...input,
+    validity: { ...defaultAnalysisOptions.validity, ...input.validity },
+    coverage: { ...defaultAnalysisOptions.coverage, ...input.coverage },
+  };
+}
+
+/** Everything one ring's analysis produces. Index 0 of every array = thermocouple or chamber 1. */
+export interface RingAnalysis {
+  thermocoupleCount: number;
+  chamberCount: number;
+  loadFraction: number;
+  /** Swirl ψ(L) used for the chamber map, degrees (at the load bin's centre). */
+  swirlDeg: number;
+  /** Validity code per thermocouple (see VALIDITY). */
+  validity: Uint8Array;
+  /** Reading − robust centre for valid thermocouples, NaN otherwise, °C. */
+  deviationDegC: Float64Array;
+  spread: SpreadMetrics;
+  coverage: Coverage;
+  /** Chamber deviation from the average chamber, °C (NaN when not estimable). */
+  chamberDeviationDegC: Float64Array;
+  /** One-σ uncertainty of each chamber deviation, °C. */
+  chamberUncertaintyDegC: Float64Array;
+  /** Fitted ring level (mean plume-free exhaust temperature), °C. */
+  ringLevelDegC: number;
+  /** Residual SD of the plume fit, °C (NaN when the fit has no spare degrees of freedom). */
+  fitResidualSdDegC: number;
+  /** Chamber with the largest |deviation|, numbered from 1, and its attribution. */
+  worstChamber: number | null;
+  worstChamberLikelihood: number;
+  runnerUpChamber: number | null;
+  runnerUpLikelihood: number;
+  coldestChamber: number | null;
+  hottestChamber: number | null;
+}
+
+/** A unit prepared for repeated ring analysis. Not shared between threads; cheap to keep per unit. */
+export interface UnitContext {
+  readonly config: UnitConfig;
+  readonly options: AnalysisOptions;
+  readonly m: number;
+  readonly n: number;
+  readonly tcAnglesDeg: Float64Array;
+  readonly chamberAnglesDeg: Float64Array;
+  readonly chamberPitchDeg: number;
+  readonly kernel: KernelSpec;
+  /** Kernel response at the left / right neighbour's angle for a plume centred on each thermocouple. */
+  readonly responseLeft: Float64Array;
+  readonly responseRight: Float64Array;
+  readonly loadMin: number;
+  readonly loadMax: number;
+  readonly binCount: number;
+  /** Solvers built so far (for inspection and tests). */
+  solversBuilt: number;
+  /** Current number of cached solvers. */
+  readonly cache: Map<string, ChamberSolver>;
+  /** Last solvers used per bin (RECENT_PER_BIN slots each), for the allocation-free fast path. */
+  readonly recent: (ChamberSolver | null)[];
+  readonly values: Float64Array;
+  readonly scratch: Float64Array;
+  readonly centreMad: Float64Array;
+  readonly fit: Float64Array;
+  readonly usable: Uint8Array;
+  readonly attribution: ChamberAttribution;
+  readonly result: RingAnalysis;
+}
+
+const RECENT_PER_BIN = 4;
+/** Largest thermocouple count the mask key supports. */
+export const MAX_THERMOCOUPLES = 64;
+
+/** Checks a unit configuration for what the analysis needs; throws an Error that names the field. */
+export function checkUnitConfig(config: UnitConfig): void {
+  const m = config.thermocouples?.count;
+  const n = config.chambers?.count;
+  if (!Number.isInteger(m) || m < 1 || m > MAX_THERMOCOUPLES) throw new Error(`thermocouples.count must be an integer from 1 to ${MAX_THERMOCOUPLES}; got ${m}`);
+  if (!Number.isInteger(n) || n < 1) throw new Error(`chambers.count must be a positive integer; got ${n}`);
+  const a = config.thermocouples.anglesDeg;
+  if (a && a.length > 0 && a.length !== m) throw new Error(`thermocouples.anglesDeg has ${a.length} angles but thermocouples.count is ${m}; give one angle per thermocouple`);
+  if (a && a.some((x) => !Number.isFinite(x))) throw new Error('thermocouples.anglesDeg must hold finite numbers of degrees');
+  if (!Number.isFinite(config.chambers.firstAngleDeg)) throw new Error('chambers.firstAngleDeg must be a finite number of degrees');
+  if (config.swirl.sense !== 1 && config.swirl.sense !== -1) throw new Error(`swirl.sense must be 1 or -1; got ${config.swirl.sense}`);
+  const c = config.swirl.curve;
+  if (!Array.isArray(c) || c.length === 0) throw new Error('swirl.curve needs at least one [load fraction, degrees] point');
+  for (let i = 0; i < c.length; i++) {
+    if (!Number.isFinite(c[i][0]) || !Number.isFinite(c[i][1])) throw new Error(`swirl.curve point ${i + 1} must be two finite numbers`);
+    if (i > 0 && c[i][0] < c[i - 1][0]) throw new Error(`swirl.curve must be sorted by load fraction; point ${i + 1} (${c[i][0]}) comes after ${c[i - 1][0]}`);
+  }
+}
+
+/** Allocates an empty analysis result sized for the context (for `analyseRing(ctx, r, L, out)`). */
+export function createRingAnalysis(m: number, n: number): RingAnalysis {
+  return {
+    thermocoupleCount: m,
+    chamberCount: n,
+    loadFraction: NaN,
+    swirlDeg: NaN,
+    validity: new Uint8Array(m),
+    deviationDegC: new Float64Array(m),
+    spread: emptySpread(),
+    coverage: { validCount: 0, total: m, fraction: 0, longestInvalidRun: 0, degraded: false, reason: 'ok' },
+    chamberDeviationDegC: new Float64Array(n),
+    chamberUncertaintyDegC: new Float64Array(n),
+    ringLevelDegC: NaN,
+    fitResidualSdDegC: NaN,
+    worstChamber: null,
+    worstChamberLikelihood: NaN,
+    runnerUpChamber: null,
+    runnerUpLikelihood: NaN,
+    coldestChamber: null,
+    hottestChamber: null,
+  };
+}
+
+/** Prepares a unit for ring analysis. Throws when the configuration cannot be analysed. */
+export function prepareUnit(config: UnitConfig, options: AnalysisOptionsInput = {}): UnitContext {
+  checkUnitConfig(config);
+  const opts = resolveAnalysisOptions(options);
+  const m = config.thermocouples.count;
+  const n = config.chambers.count;
+  const tc = thermocoupleAnglesDeg(config);
+  const ch = chamberAnglesDeg(config);
+  const pitch = chamberPitchDeg(config);
+  const kernel: KernelSpec = { shape: opts.kernel, widthDeg: opts.plumeWidthFraction * pitch };
+  const responseLeft = new Float64Array(m);
+  const responseRight = new Float64Array(m);
+  for (let i = 0; i < m; i++) {
+    responseLeft[i] = m > 1 ? plumeKernel(arcDistanceDeg(tc[i], tc[(i - 1 + m) % m]), kernel) : 0;
+    responseRight[i] = m > 1 ? plumeKernel(arcDistanceDeg(tc[i], tc[(i + 1) % m]), kernel) : 0;
+  }
+  const curve = config.swirl.curve;
+  const loadMin = curve[0][0];
+  const loadMax = curve[curve.length - 1][0];
+  const binCount = Math.max(1, Math.round((loadMax - loadMin) / opts.loadBinWidth) + 1);
+  return {
+    config,
+    options: opts,
+    m,
+    n,
+    tcAnglesDeg: tc,
+    chamberAnglesDeg: ch,
+    chamberPitchDeg: pitch,
+    kernel,
+    responseLeft,
+    responseRight,
+    loadMin,
+    loadMax,
+    binCount,
+    solversBuilt: 0,
+    cache: new Map(),
+    recent: new Array<ChamberSolver | null>(binCount * RECENT_PER_BIN).fill(null),
+    values: new Float64Array(m),
+    scratch: new Float64Array(2 * m),
+    centreMad: new Float64Array(2),
+    fit: new Float64Array(n + 1),
+    usable: new Uint8Array(m),
+    attribution: { chamber: 0, likelihood: NaN, runnerUpChamber: null, runnerUpLikelihood: NaN },
+    result: createRingAnalysis(m, n),
+  };
+}
+
+/** Load bin index for load fraction L: the curve range split in loadBinWidth steps, clamped. */
+export function loadBinOf(ctx: UnitContext, loadFraction: number): number {
+  if (!Number.isFinite(loadFraction) || ctx.binCount === 1) return 0;
+  const b = Math.round((loadFraction - ctx.loadMin) / ctx.options.loadBinWidth);
+  return b < 0 ? 0 : b >= ctx.binCount ? ctx.binCount - 1 : b;
+}
+
+/** Load fraction at the centre of a bin. */
+export function loadOfBin(ctx: UnitContext, bin: number): number {
+  return ctx.binCount === 1 ? ctx.loadMin : Math.min(ctx.loadMin + bin * ctx.options.loadBinWidth, ctx.loadMax);
+}
+
+/** The chamber solver for (bin, usable mask): from the recent slots, the cache, or built anew. */
+export function solverFor(ctx: UnitContext, bin: number, usable: Uint8Array): ChamberSolver {
+  let lo = 0;
+  let hi = 0;
+  for (let i = 0; i < ctx.m; i++) {
+    if (!usable[i]) continue;
+    if (i < 32) lo = (lo | (1 << i)) >>> 0;
+    else hi = (hi | (1 << (i - 32))) >>> 0;
+  }
+  const base = bin * RECENT_PER_BIN;
+  for (let s = 0; s < RECENT_PER_BIN; s++) {
+    const e = ctx.recent[base + s];
+    if (e !== null && e.maskLo === lo && e.maskHi === hi) return e;
+  }
+  const key = `${bin}:${hi}:${lo}`;
+  let solver = ctx.cache.get(key);
+  if (solver) {
+    ctx.cache.delete(key);
+    ctx.cache.set(key, solver);
+  } else {
+    const shift = ctx.config.swirl.sense * swirlDeg(ctx.config.swirl.curve, loadOfBin(ctx, bin));
+    solver = buildChamberSolver(ctx.tcAnglesDeg, ctx.chamberAnglesDeg, shift, usable, ctx.kernel, ctx.options.ridgeFraction);
+    solver.bin = bin;
+    ctx.solversBuilt++;
+    ctx.cache.set(key, solver);
+    while (ctx.cache.size > Math.max(1, ctx.options.maxCachedSolvers)) {
+      const oldest = ctx.cache.keys().next().value as string;
+      ctx.cache.delete(oldest);
+    }
+  }
+  for (let s = RECENT_PER_BIN - 1; s > 0; s--) ctx.recent[base + s] = ctx.recent[base + s - 1];
+  ctx.recent[base] = solver;
+  return solver;
+}
+
+/**
+ * Analyses one ring: validity (missing, out of range, isolated outlier), coverage, spread over
+ * valid readings, chamber estimates with uncertainties, and the worst chamber with its
+ * runner-up. readingsDegC[i] is thermocouple i+1 in °C (null/NaN when missing); loadFraction is
+ * the corrected load. Writes into out (default: the context's own result object) and returns it.
+ * Never throws on bad readings.
+ */
+export function analyseRing(ctx: UnitContext, readingsDegC: ArrayLike<Reading>, loadFraction: number, out: RingAnalysis = ctx.result): RingAnalysis {
+  const { m, n, values, scratch, centreMad, usable } = ctx;
+  const vo = ctx.options.validity;
+  const codes = out.validity;
+  classifyMissingAndRange(readingsDegC, m, vo.floorDegC, vo.ceilingDegC, codes, values);
+  robustCentreInto(values, codes, m, scratch, centreMad);
+  markIsolatedOutliers(values, codes, m, centreMad[0], centreMad[1], ctx.responseLeft, ctx.responseRight, vo);
+  const spread = spreadInto(values, codes, m, scratch, out.spread);
+  const centre = spread.robustCentreDegC;
+  for (let i = 0; i < m; i++) {
+    const ok = codes[i] === VALIDITY.valid;
+    usable[i] = ok ? 1 : 0;
+    out.deviationDegC[i] = ok ? values[i] - centre : NaN;
+  }
+  coverageInto(codes, m, ctx.options.coverage, out.coverage);
+  out.loadFraction = loadFraction;
+  const bin = loadBinOf(ctx, loadFraction);
+  out.swirlDeg = swirlDeg(ctx.config.swirl.curve, loadOfBin(ctx, bin));
+  if (spread.validCount < ctx.options.minValidForChambers) {
+    clearChambers(out, n);
+    return out;
+  }
+  const solver = solverFor(ctx, bin, usable);
+  estimateChambers(solver, values, usable, centre, ctx.options.residualFloorDegC, ctx.fit, out);
+  let worst = -1;
+  let worstAbs = -1;
+  let cold = 0;
+  let hot = 0;
+  const dev = out.chamberDeviationDegC;
+  for (let k = 0; k < n; k++) {
+    const v = dev[k];
+    if (!(v === v)) continue;
+    if (Math.abs(v) > worstAbs) {
+      worstAbs = Math.abs(v);
+      worst = k;
+    }
+    if (v < dev[cold]) cold = k;
+    if (v > dev[hot]) hot = k;
+  }
+  if (worst < 0) {
+    clearChambers(out, n);
+    return out;
+  }
+  const a = attributeChamber(dev, worst, ctx.chamberPitchDeg, ctx.options.swirlUncertaintyDeg, ctx.attribution);
+  out.worstChamber = a.chamber;
+  out.worstChamberLikelihood = a.likelihood;
+  out.runnerUpChamber = a.runnerUpChamber;
+  out.runnerUpLikelihood = a.runnerUpLikelihood;
+  out.coldestChamber = cold + 1;
+  out.hottestChamber = hot + 1;
+  return out;
+}
+
+function clearChambers(out: RingAnalysis, n: number): void {
+  for (let k = 0; k < n; k++) {
+    out.chamberDeviationDegC[k] = NaN;
+    out.chamberUncertaintyDegC[k] = NaN;
+  }
+  out.ringLevelDegC = NaN;
+  out.fitResidualSdDegC = NaN;
+  out.worstChamber = null;
+  out.worstChamberLikelihood = NaN;
+  out.runnerUpChamber = null;
+  out.runnerUpLikelihood = NaN;
+  out.coldestChamber = null;
+  out.hottestChamber = null;
+}
+
+/** A deep copy of an analysis result (typed arrays copied). */
+export function copyRingAnalysis(a: RingAnalysis): RingAnalysis {
+  return {
+    ...a,
+    validity: a.validity.slice(),
+    deviationDegC: a.deviationDegC.slice(),
+    spread: { ...a.spread },
+    coverage: { ...a.coverage },
+    chamberDeviationDegC: a.chamberDeviationDegC.slice(),
+    chamberUncertaintyDegC: a.chamberUncertaintyDegC.slice(),
+  };
+}
+
+/** Plain-JSON form of an analysis: numbers from 1, reason names, NaN as null. */
+export interface RingAnalysisJson {
+  loadFraction: number | null;
+  swirlDeg: number | null;
+  spreadDegC: number | null;
+  spreadExcl1DegC: number | null;
+  spreadExcl2DegC: number | null;
+  meanDegC: number | null;
+  robustCentreDegC: number | null;
+  stdDevDegC: number | null;
+  hottestThermocouple: number | null;
+  coldestThermocouple: number | null;
+  secondColdestThermocouple: number | null;
+  coldestAdjacent: boolean;
+  coverage: Coverage;
+  invalid: { thermocouple: number; reason: ValidityReason }[];
+  deviationDegC: (number | null)[];
+  chambers: { chamber: number; deviationDegC: number | null; uncertaintyDegC: number | null }[];
+  ringLevelDegC: number | null;
+  fitResidualSdDegC: number | null;
+  worstChamber: number | null;
+  worstChamberLikelihood: number | null;
+  runnerUpChamber: number | null;
+  runnerUpLikelihood: number | null;
+}
+
+function num(v: number): number | null {
+  return Number.isFinite(v) ? v : null;
+}
+
+/** Converts an analysis into the plain JSON shape stored and served. */
+export function ringAnalysisToJson(a: RingAnalysis): RingAnalysisJson {
+  const invalid: { thermocouple: number; reason: ValidityReason }[] = [];
+  for (let i = 0; i < a.thermocoupleCount; i++) if (a.validity[i] !== VALIDITY.valid) invalid.push({ thermocouple: i + 1, reason: VALIDITY_REASONS[a.validity[i]] });
+  const chambers = [];
+  for (let k = 0; k < a.chamberCount; k++) chambers.push({ chamber: k + 1, deviationDegC: num(a.chamberDeviationDegC[k]), uncertaintyDegC: num(a.chamberUncertaintyDegC[k]) });
+  const s = a.spread;
+  return {
+    loadFraction: num(a.loadFraction),
+    swirlDeg: num(a.swirlDeg),
+    spreadDegC: num(s.spreadDegC),
+    spreadExcl1DegC: num(s.spreadExcl1DegC),
+    spreadExcl2DegC: num(s.spreadExcl2DegC),
+    meanDegC: num(s.meanDegC),
+    robustCentreDegC: num(s.robustCentreDegC),
+    stdDevDegC: num(s.stdDevDegC),
+    hottestThermocouple: s.hottestThermocouple,
+    coldestThermocouple: s.coldestThermocouple,
+    secondColdestThermocouple: s.secondColdestThermocouple,
+    coldestAdjacent: s.coldestAdjacent,
+    coverage: { ...a.coverage },
+    invalid,
+    deviationDegC: Array.from(a.deviationDegC, num),
+    chambers,
+    ringLevelDegC: num(a.ringLevelDegC),
+    fitResidualSdDegC: num(a.fitResidualSdDegC),
+    worstChamber: a.worstChamber,
+    worstChamberLikelihood: num(a.worstChamberLikelihood),
+    runnerUpChamber: a.runnerUpChamber,
+    runnerUpLikelihood: num(a.runnerUpLikelihood),
+  };
+}
