@@ -14,3 +14,7 @@ export * from './validity.ts';
 export * from './spread.ts';
 export * from './chambers.ts';
 export * from './ring.ts';
+export * from './baseline.ts';
+export * from './drift.ts';
+export * from './calibration.ts';
+export * from './findings.ts';

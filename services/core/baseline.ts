@@ -1,0 +1,197 @@
+/**
+ * Baselines against corrected load (DOMAIN §7): the unit's own normal value of a quantity as a
+ * function of corrected load, learnt from a reference window. Binned robust statistics (median,
+ * MAD, a high quantile, count per bin), linear interpolation between bin centres, and "no
+ * baseline" (null) where a bin is thin or the load is outside the fitted range: never an
+ * extrapolation. A unit baseline is versioned and serialisable; the fit time and author are
+ * parameters, never read from a clock.
+ */
+import { MAD_TO_SIGMA, medianOfSorted, quantileOfSorted } from './stats.ts';
+import type { RingAnalysis } from './ring.ts';
+
+export interface BaselineOptions {
+  /** Bin width, load fraction (0.05 = 5 % bins). */
+  binWidth: number;
+  /** Load range covered by the bins, fractions. */
+  loadMin: number;
+  loadMax: number;
+  /** Bins with fewer samples than this are "no baseline here". */
+  minCount: number;
+  /** Level of the high quantile kept per bin (the spread limit uses it). */
+  highQuantile: number;
+}
+
+/** Defaults: 5 % bins (DOMAIN §7's example) from 0 to 120 % load; 30 samples per bin; 95th percentile. */
+export const defaultBaselineOptions: BaselineOptions = { binWidth: 0.05, loadMin: 0, loadMax: 1.2, minCount: 30, highQuantile: 0.95 };
+
+/** One load bin. Statistics are null when the bin is thin. */
+export interface BaselineBin {
+  loFraction: number;
+  hiFraction: number;
+  count: number;
+  median: number | null;
+  /** Median absolute deviation (unscaled). */
+  mad: number | null;
+  high: number | null;
+}
+
+/** Baseline of one quantity versus corrected load. */
+export interface BinnedBaseline {
+  binWidth: number;
+  loadMin: number;
+  minCount: number;
+  highQuantile: number;
+  bins: BaselineBin[];
+}
+
+/** The baseline at one load: centre, robust σ (1.4826·MAD), high quantile, and the bin count. */
+export interface BaselineValue {
+  median: number;
+  scale: number;
+  high: number;
+  count: number;
+}
+
+/**
+ * Fits a binned baseline: bin b holds loads in [loadMin + b·w, loadMin + (b+1)·w); per bin the
+ * median, MAD and high quantile of the finite values. Pairs with a non-finite load or value are
+ * skipped. Example: 100 values of 500 ± 1 at loads 0.80–0.85 → bin 16 median ≈ 500.
+ */
+export function fitBinnedBaseline(
+  loadFractions: ArrayLike<number>,
+  values: ArrayLike<number | null>,
+  options: BaselineOptions = defaultBaselineOptions,
+): BinnedBaseline {
+  const w = options.binWidth;
+  const nb = Math.max(1, Math.ceil((options.loadMax - options.loadMin) / w - 1e-9));
+  const buckets: number[][] = Array.from({ length: nb }, () => []);
+  const len = Math.min(loadFractions.length, values.length);
+  for (let i = 0; i < len; i++) {
+    const l = loadFractions[i];
+    const v = values[i];
+    if (!Number.isFinite(l) || typeof v !== 'number' || !Number.isFinite(v)) continue;
+    const b = Math.floor((l - options.loadMin) / w);
+    if (b < 0 || b >= nb) continue;
+    buckets[b].push(v);
+  }
+  const bins: BaselineBin[] = buckets.map((vals, b) => binStats(vals, options.loadMin + b * w, options.loadMin + (b + 1) * w, options));
+  return { binWidth: w, loadMin: options.loadMin, minCount: options.minCount, highQuantile: options.highQuantile, bins };
+}
+
+function binStats(vals: number[], lo: number, hi: number, options: BaselineOptions): BaselineBin {
+  const count = vals.length;
+  if (count < options.minCount || count === 0) return { loFraction: lo, hiFraction: hi, count, median: null, mad: null, high: null };
+  const s = Float64Array.from(vals).sort();
+  const med = medianOfSorted(s, count);
+  const high = quantileOfSorted(s, count, options.highQuantile);
+  const dev = s.map((x) => Math.abs(x - med)).sort();
+  return { loFraction: lo, hiFraction: hi, count, median: med, mad: medianOfSorted(dev, count), high };
+}
+
+/**
+ * The baseline at load L: find L's bin; null if outside the bins or thin. Interpolate linearly
+ * towards the neighbouring bin centre on L's side when that bin is fitted too; otherwise the
+ * bin's own values. scale = 1.4826·MAD.
+ */
+export function baselineAt(b: BinnedBaseline, loadFraction: number): BaselineValue | null {
+  if (!Number.isFinite(loadFraction)) return null;
+  const w = b.binWidth;
+  const i = Math.floor((loadFraction - b.loadMin) / w);
+  if (i < 0 || i >= b.bins.length) return null;
+  const bin = b.bins[i];
+  if (bin.median === null) return null;
+  const centre = b.loadMin + (i + 0.5) * w;
+  const j = loadFraction >= centre ? i + 1 : i - 1;
+  const other = j >= 0 && j < b.bins.length ? b.bins[j] : null;
+  const own = { median: bin.median, scale: MAD_TO_SIGMA * (bin.mad as number), high: bin.high as number, count: bin.count };
+  if (!other || other.median === null) return own;
+  const t = Math.abs(loadFraction - centre) / w;
+  return {
+    median: own.median + t * (other.median - own.median),
+    scale: own.scale + t * (MAD_TO_SIGMA * (other.mad as number) - own.scale),
+    high: own.high + t * ((other.high as number) - own.high),
+    count: Math.min(bin.count, other.count),
+  };
+}
+
+/** One ring's contribution to a unit baseline. Arrays: index 0 = thermocouple / chamber 1. */
+export interface BaselineSample {
+  loadFraction: number;
+  ringMeanDegC: number;
+  spreadDegC: number;
+  thermocoupleDeviationDegC: ArrayLike<number | null>;
+  chamberDeviationDegC: ArrayLike<number | null>;
+}
+
+/** A copy of the parts of a ring analysis a baseline needs. */
+export function baselineSampleFromAnalysis(a: RingAnalysis): BaselineSample {
+  return {
+    loadFraction: a.loadFraction,
+    ringMeanDegC: a.spread.meanDegC,
+    spreadDegC: a.spread.spreadDegC,
+    thermocoupleDeviationDegC: a.deviationDegC.slice(),
+    chamberDeviationDegC: a.chamberDeviationDegC.slice(),
+  };
+}
+
+/** Who fitted a baseline, over which window, and when (all given by the caller). */
+export interface BaselineMeta {
+  version: number;
+  /** Reference window, RFC 3339 strings or any identifiers the caller stores. */
+  window: { from: string; to: string };
+  fittedAt: string;
+  fittedBy: string;
+}
+
+export const BASELINE_METHOD = 'binned-median-mad';
+export const BASELINE_FORMAT = 1;
+
+/** A versioned unit baseline: ring mean, spread, every thermocouple deviation and chamber estimate. */
+export interface UnitBaseline extends BaselineMeta {
+  format: number;
+  method: string;
+  options: BaselineOptions;
+  sampleCount: number;
+  ringMean: BinnedBaseline;
+  spread: BinnedBaseline;
+  thermocouples: BinnedBaseline[];
+  chambers: BinnedBaseline[];
+}
+
+/** Fits a unit baseline from the reference window's steady samples (the caller filters them). */
+export function fitUnitBaseline(samples: readonly BaselineSample[], meta: BaselineMeta, options: BaselineOptions = defaultBaselineOptions): UnitBaseline {
+  const loads = samples.map((s) => s.loadFraction);
+  const m = samples.reduce((mx, s) => Math.max(mx, s.thermocoupleDeviationDegC.length), 0);
+  const n = samples.reduce((mx, s) => Math.max(mx, s.chamberDeviationDegC.length), 0);
+  const column = (pick: (s: BaselineSample) => number | null) => samples.map(pick);
+  return {
+    ...meta,
+    window: { ...meta.window },
+    format: BASELINE_FORMAT,
+    method: BASELINE_METHOD,
+    options: { ...options },
+    sampleCount: samples.length,
+    ringMean: fitBinnedBaseline(loads, column((s) => s.ringMeanDegC), options),
+    spread: fitBinnedBaseline(loads, column((s) => s.spreadDegC), options),
+    thermocouples: Array.from({ length: m }, (_, i) => fitBinnedBaseline(loads, column((s) => s.thermocoupleDeviationDegC[i] ?? null), options)),
+    chambers: Array.from({ length: n }, (_, k) => fitBinnedBaseline(loads, column((s) => s.chamberDeviationDegC[k] ?? null), options)),
+  };
+}
+
+/** JSON text of a baseline (all numbers finite or null by construction). */
+export function serialiseBaseline(b: UnitBaseline): string {
+  return JSON.stringify(b);
+}
+
+/** Reads a baseline back from JSON; throws an Error naming what is wrong. */
+export function parseBaseline(text: string): UnitBaseline {
+  const b = JSON.parse(text) as UnitBaseline;
+  if (b === null || typeof b !== 'object') throw new Error('baseline JSON must be an object');
+  if (b.format !== BASELINE_FORMAT) throw new Error(`baseline format ${String(b.format)} is not supported (expected ${BASELINE_FORMAT})`);
+  if (!Number.isInteger(b.version)) throw new Error('baseline version must be an integer');
+  for (const key of ['ringMean', 'spread'] as const) {
+    if (!b[key] || !Array.isArray(b[key].bins)) throw new Error(`baseline ${key} has no bins`);
+  }
+  if (!Array.isArray(b.thermocouples) || !Array.isArray(b.chambers)) throw new Error('baseline needs thermocouples and chambers arrays');
+  return b;
+}

@@ -1,0 +1,428 @@
+/**
+ * Findings: one function from (ring analysis, recent history, baseline, drift state,
+ * thresholds) to the findings a person should see, each with a grade, the chamber (with the
+ * runner-up chamber and its likelihood) or the thermocouple, the evidence numbers, the baseline
+ * version used and a plain next step. Every limit is in `Thresholds`; nothing is hidden in the
+ * code. Stateless: on-delay, deadband and the life of an alert belong to the worker.
+ */
+import { baselineAt, type UnitBaseline } from './baseline.ts';
+import { attributeChamber, type ChamberAttribution } from './chambers.ts';
+import type { CusumState, DriftRate } from './drift.ts';
+import { removeCommonMode } from './drift.ts';
+import type { RingAnalysis } from './ring.ts';
+import { VALIDITY, VALIDITY_REASONS, type ValidityReason } from './types.ts';
+import type { WindowVerdict } from './validity.ts';
+
+export type FindingKind = 'thermocouple_fault' | 'coverage_degraded' | 'spread_high' | 'spread_jump' | 'chamber_cold' | 'chamber_hot' | 'chamber_drift';
+export type Grade = 'notice' | 'warning' | 'alarm' | 'critical';
+export const GRADES: readonly Grade[] = ['notice', 'warning', 'alarm', 'critical'];
+
+/** Rank of a grade: notice 0 … critical 3. */
+export function gradeRank(g: Grade): number {
+  return GRADES.indexOf(g);
+}
+
+/** The more severe of two grades. */
+export function maxGrade(a: Grade, b: Grade): Grade {
+  return gradeRank(a) >= gradeRank(b) ? a : b;
+}
+
+/** Said wherever findings are shown (DOMAIN §11). */
+export const ADVISORY_CAUTION =
+  "Cansight advises; it does not protect. The turbine's own control and protection system, the manufacturer's limits and the site's procedures govern every operating decision. Work on fuel systems, combustors and thermocouple circuits is for qualified people under the site's permit rules.";
+
+export interface Finding {
+  kind: FindingKind;
+  grade: Grade;
+  /** Numbered from 1, or null. */
+  chamber: number | null;
+  thermocouple: number | null;
+  /** Likelihood that `chamber` is the right one (swirl is uncertain), 0–1. */
+  likelihood: number | null;
+  runnerUpChamber: number | null;
+  runnerUpLikelihood: number | null;
+  evidence: Record<string, number | string | boolean | null>;
+  baselineVersion: number | null;
+  message: string;
+  advice: string;
+}
+
+/** Every limit used by `evaluateFindings`. Temperatures °C, rates °C per 30 days. */
+export interface Thresholds {
+  /** Spread limit before a baseline exists (common practice: healthy base-load spread about 15–45 °C). */
+  spreadDefaultLimitDegC: number;
+  /** Margin added to the baseline's high spread quantile at L. */
+  spreadMarginDegC: number;
+  /** Clamp of the learnt spread limit (common practice: investigation levels of roughly 30–45 °C). */
+  spreadLimitFloorDegC: number;
+  spreadLimitCeilingDegC: number;
+  /** Spread over the limit by this much or more is an alarm; by the critical amount, critical. */
+  spreadAlarmExcessDegC: number;
+  spreadCriticalExcessDegC: number;
+  /** Change in spread between consecutive steady rings: warning / alarm levels. */
+  spreadJumpWarningDegC: number;
+  spreadJumpAlarmDegC: number;
+  /** Chamber residual below −level (after the baseline and common mode): grades. */
+  chamberColdWarningDegC: number;
+  chamberColdAlarmDegC: number;
+  chamberColdCriticalDegC: number;
+  /** Chamber residual above +level: grades. */
+  chamberHotWarningDegC: number;
+  chamberHotAlarmDegC: number;
+  chamberHotCriticalDegC: number;
+  /** The residual must exceed this many σ (estimate uncertainty, baseline scale). */
+  chamberMinZ: number;
+  /** Without a baseline, chamber levels are multiplied by this (the ring's built-in asymmetry is not removed). */
+  noBaselineChamberFactor: number;
+  /** Swirl uncertainty for the runner-up chamber's likelihood, degrees. */
+  swirlUncertaintyDeg: number;
+  /** Significant drift rate magnitudes: warning / alarm, °C per 30 days. */
+  driftWarningDegCPer30Days: number;
+  driftAlarmDegCPer30Days: number;
+  /** Coverage worse than these is an alarm rather than a warning. */
+  coverageAlarmFraction: number;
+  coverageAlarmAdjacentInvalid: number;
+  /** An isolated outlier seen in at least this many of the recent rings is a warning, else a notice. */
+  outlierRecurringRings: number;
+  /** A missing reading in at least this many recent rings is reported (a single gap is not). */
+  missingRecurringRings: number;
+}
+
+/** Default thresholds: engineering judgement unless the field says common practice. */
+export const defaultThresholds: Thresholds = {
+  spreadDefaultLimitDegC: 45,
+  spreadMarginDegC: 10,
+  spreadLimitFloorDegC: 30,
+  spreadLimitCeilingDegC: 80,
+  spreadAlarmExcessDegC: 15,
+  spreadCriticalExcessDegC: 40,
+  spreadJumpWarningDegC: 15,
+  spreadJumpAlarmDegC: 40,
+  chamberColdWarningDegC: 20,
+  chamberColdAlarmDegC: 40,
+  chamberColdCriticalDegC: 80,
+  chamberHotWarningDegC: 20,
+  chamberHotAlarmDegC: 35,
+  chamberHotCriticalDegC: 60,
+  chamberMinZ: 3,
+  noBaselineChamberFactor: 1.5,
+  swirlUncertaintyDeg: 8,
+  driftWarningDegCPer30Days: 5,
+  driftAlarmDegCPer30Days: 15,
+  coverageAlarmFraction: 0.5,
+  coverageAlarmAdjacentInvalid: 3,
+  outlierRecurringRings: 3,
+  missingRecurringRings: 3,
+};
+
+/** What the worker remembers between rings. All optional. */
+export interface FindingHistory {
+  /** Spread of the previous steady ring, °C. */
+  previousSteadySpreadDegC?: number | null;
+  /** Per thermocouple (index 0 = thermocouple 1): recent rings in which it was an isolated outlier. */
+  recentOutlierCounts?: ArrayLike<number>;
+  /** Per thermocouple: recent rings in which it was missing. */
+  recentMissingCounts?: ArrayLike<number>;
+  /** Window tests over recent rings (frozen, erratic, drifting alone). */
+  windowVerdicts?: readonly WindowVerdict[];
+}
+
+/** Drift state per chamber (index 0 = chamber 1). */
+export interface ChamberDriftInput {
+  cusum?: CusumState | null;
+  rate?: DriftRate | null;
+}
+
+export interface FindingInput {
+  analysis: RingAnalysis;
+  /** Whether this ring passed the steady-state test. Spread jumps are judged on steady rings only. */
+  steady: boolean;
+  history?: FindingHistory;
+  baseline?: UnitBaseline | null;
+  drift?: { chambers?: readonly (ChamberDriftInput | null | undefined)[] };
+  thresholds?: Partial<Thresholds>;
+}
+
+/**
+ * Spread limit at load L: baseline high spread quantile + margin, clamped to [floor, ceiling];
+ * the default limit when there is no baseline at L.
+ */
+export function spreadLimitDegC(baseline: UnitBaseline | null | undefined, loadFraction: number, t: Thresholds = defaultThresholds): { limitDegC: number; fromBaseline: boolean } {
+  const b = baseline ? baselineAt(baseline.spread, loadFraction) : null;
+  if (!b) return { limitDegC: t.spreadDefaultLimitDegC, fromBaseline: false };
+  const raw = b.high + t.spreadMarginDegC;
+  return { limitDegC: Math.min(Math.max(raw, t.spreadLimitFloorDegC), t.spreadLimitCeilingDegC), fromBaseline: true };
+}
+
+function r1(v: number): number | null {
+  return Number.isFinite(v) ? Math.round(v * 10) / 10 : null;
+}
+
+function r3(v: number): number | null {
+  return Number.isFinite(v) ? Math.round(v * 1000) / 1000 : null;
+}
+
+/** Evaluates every rule for one analysed ring. Returns findings, most severe first. */
+export function evaluateFindings(input: FindingInput): Finding[] {
+  const t: Thresholds = { ...defaultThresholds, ...input.thresholds };
+  const a = input.analysis;
+  const version = input.baseline ? input.baseline.version : null;
+  const out: Finding[] = [];
+  thermocoupleFindings(input, t, version, out);
+  coverageFinding(a, t, version, out);
+  spreadFindings(input, t, version, out);
+  chamberFindings(input, t, version, out);
+  driftFindings(input, t, version, out);
+  return out.sort((x, y) => gradeRank(y.grade) - gradeRank(x.grade));
+}
+
+function tcFinding(tc: number, grade: Grade, reason: ValidityReason, evidence: Finding['evidence'], version: number | null, message: string): Finding {
+  return {
+    kind: 'thermocouple_fault',
+    grade,
+    chamber: null,
+    thermocouple: tc,
+    likelihood: null,
+    runnerUpChamber: null,
+    runnerUpLikelihood: null,
+    evidence: { reason, ...evidence },
+    baselineVersion: version,
+    message,
+    advice: `check thermocouple ${tc} and its wiring at the next opportunity`,
+  };
+}
+
+function thermocoupleFindings(input: FindingInput, t: Thresholds, version: number | null, out: Finding[]): void {
+  const a = input.analysis;
+  const h = input.history ?? {};
+  const seen = new Set<number>();
+  for (let i = 0; i < a.thermocoupleCount; i++) {
+    const code = a.validity[i];
+    const tc = i + 1;
+    if (code === VALIDITY.out_of_range) {
+      out.push(tcFinding(tc, 'warning', 'out_of_range', {}, version, `thermocouple ${tc} reads outside the plausible range`));
+      seen.add(tc);
+    } else if (code === VALIDITY.isolated_outlier) {
+      const n = h.recentOutlierCounts ? h.recentOutlierCounts[i] ?? 0 : 0;
+      const grade: Grade = n >= t.outlierRecurringRings ? 'warning' : 'notice';
+      out.push(tcFinding(tc, grade, 'isolated_outlier', { recentOutlierRings: n, ringCentreDegC: r1(a.spread.robustCentreDegC) }, version, `thermocouple ${tc} disagrees with both neighbours`));
+      seen.add(tc);
+    } else if (code === VALIDITY.missing) {
+      const n = h.recentMissingCounts ? h.recentMissingCounts[i] ?? 0 : 0;
+      if (n >= t.missingRecurringRings) {
+        out.push(tcFinding(tc, 'notice', 'missing', { recentMissingRings: n }, version, `thermocouple ${tc} has not reported in ${n} recent rings`));
+        seen.add(tc);
+      }
+    } else if (code !== VALIDITY.valid) {
+      const reason = VALIDITY_REASONS[code];
+      out.push(tcFinding(tc, 'warning', reason, {}, version, `thermocouple ${tc} is ${reason.replace('_', ' ')}`));
+      seen.add(tc);
+    }
+  }
+  for (const v of h.windowVerdicts ?? []) {
+    if (v.reason === 'valid' || seen.has(v.thermocouple)) continue;
+    out.push(
+      tcFinding(
+        v.thermocouple,
+        'warning',
+        v.reason,
+        { rangeDegC: r1(v.rangeDegC), stepRmsDegC: r1(v.stepRmsDegC), residualChangeDegC: r1(v.residualChangeDegC), rings: v.usableRings },
+        version,
+        `thermocouple ${v.thermocouple} is ${v.reason.replace('_', ' ')} over the recent window`,
+      ),
+    );
+  }
+}
+
+function coverageFinding(a: RingAnalysis, t: Thresholds, version: number | null, out: Finding[]): void {
+  const c = a.coverage;
+  if (!c.degraded) return;
+  const grade: Grade = c.fraction < t.coverageAlarmFraction || c.longestInvalidRun >= t.coverageAlarmAdjacentInvalid ? 'alarm' : 'warning';
+  out.push({
+    kind: 'coverage_degraded',
+    grade,
+    chamber: null,
+    thermocouple: null,
+    likelihood: null,
+    runnerUpChamber: null,
+    runnerUpLikelihood: null,
+    evidence: { validCount: c.validCount, total: c.total, fraction: Math.round(c.fraction * 1000) / 1000, longestInvalidRun: c.longestInvalidRun, reason: c.reason },
+    baselineVersion: version,
+    message: `only ${c.validCount} of ${c.total} thermocouples are usable (${c.longestInvalidRun} adjacent failed): a chamber can hide behind them`,
+    advice: 'restore the failed exhaust thermocouples at the next opportunity; until then treat chamber findings near them with caution',
+  });
+}
+
+function spreadFindings(input: FindingInput, t: Thresholds, version: number | null, out: Finding[]): void {
+  const a = input.analysis;
+  const s = a.spread;
+  if (!Number.isFinite(s.spreadDegC) || s.validCount < 2) return;
+  const { limitDegC, fromBaseline } = spreadLimitDegC(input.baseline, a.loadFraction, t);
+  const excess = s.spreadDegC - limitDegC;
+  if (excess > 0) {
+    const grade: Grade = excess >= t.spreadCriticalExcessDegC ? 'critical' : excess >= t.spreadAlarmExcessDegC ? 'alarm' : 'warning';
+    const tcSuspect = !s.coldestAdjacent && Number.isFinite(s.spreadExcl1DegC) && s.spreadExcl1DegC <= limitDegC;
+    const cold = s.coldestThermocouple;
+    const evidence = {
+      spreadDegC: r1(s.spreadDegC),
+      spreadExcl1DegC: r1(s.spreadExcl1DegC),
+      spreadExcl2DegC: r1(s.spreadExcl2DegC),
+      limitDegC: r1(limitDegC),
+      limitFromBaseline: fromBaseline,
+      coldestThermocouple: cold,
+      secondColdestThermocouple: s.secondColdestThermocouple,
+      coldestAdjacent: s.coldestAdjacent,
+      loadFraction: r3(a.loadFraction),
+    };
+    const chamber = tcSuspect ? null : a.coldestChamber;
+    out.push({
+      kind: 'spread_high',
+      grade: tcSuspect ? 'notice' : grade,
+      chamber,
+      thermocouple: tcSuspect ? cold : null,
+      likelihood: null,
+      runnerUpChamber: null,
+      runnerUpLikelihood: null,
+      evidence,
+      baselineVersion: fromBaseline ? version : null,
+      message: tcSuspect
+        ? `exhaust spread ${r1(s.spreadDegC)} °C is over the limit ${r1(limitDegC)} °C only because of thermocouple ${cold}`
+        : `exhaust spread ${r1(s.spreadDegC)} °C is over the limit ${r1(limitDegC)} °C`,
+      advice: tcSuspect
+        ? `check thermocouple ${cold} and its wiring at the next opportunity`
+        : chamber !== null
+          ? `compare with the unit's own exhaust spread protection; inspect chamber ${chamber} combustion at the next opportunity`
+          : "compare with the unit's own exhaust spread protection readings",
+    });
+    if (tcSuspect && cold !== null) {
+      out.push(tcFinding(cold, 'notice', 'isolated_outlier', { spreadDegC: r1(s.spreadDegC), spreadExcl1DegC: r1(s.spreadExcl1DegC), limitDegC: r1(limitDegC) }, version, `thermocouple ${cold} alone makes the spread high`));
+    }
+  }
+  const prev = input.history?.previousSteadySpreadDegC;
+  if (input.steady && typeof prev === 'number' && Number.isFinite(prev)) {
+    const jump = s.spreadDegC - prev;
+    if (Math.abs(jump) >= t.spreadJumpWarningDegC) {
+      out.push({
+        kind: 'spread_jump',
+        grade: Math.abs(jump) >= t.spreadJumpAlarmDegC ? 'alarm' : 'warning',
+        chamber: a.coldestChamber,
+        thermocouple: null,
+        likelihood: null,
+        runnerUpChamber: null,
+        runnerUpLikelihood: null,
+        evidence: { spreadDegC: r1(s.spreadDegC), previousSpreadDegC: r1(prev), jumpDegC: r1(jump) },
+        baselineVersion: version,
+        message: `exhaust spread changed by ${r1(jump)} °C between consecutive steady rings`,
+        advice: 'look at the chamber and thermocouple findings raised with it; check the ring plot for a new cold or hot plume',
+      });
+    }
+  }
+}
+
+function chamberFindings(input: FindingInput, t: Thresholds, version: number | null, out: Finding[]): void {
+  const a = input.analysis;
+  const n = a.chamberCount;
+  const resid = new Float64Array(n);
+  const scale = new Float64Array(n);
+  let usedBaseline = false;
+  for (let k = 0; k < n; k++) {
+    const dev = a.chamberDeviationDegC[k];
+    const b = input.baseline && input.baseline.chambers[k] ? baselineAt(input.baseline.chambers[k], a.loadFraction) : null;
+    if (b) usedBaseline = true;
+    resid[k] = b ? dev - b.median : dev;
+    scale[k] = b ? b.scale : 0;
+  }
+  const cm = removeCommonMode(resid);
+  const r = cm.residualsDegC;
+  const factor = usedBaseline ? 1 : t.noBaselineChamberFactor;
+  const pitch = 360 / n;
+  const attr: ChamberAttribution = { chamber: 0, likelihood: NaN, runnerUpChamber: null, runnerUpLikelihood: NaN };
+  for (let k = 0; k < n; k++) {
+    const v = r[k];
+    if (!Number.isFinite(v)) continue;
+    const u = a.chamberUncertaintyDegC[k];
+    const sigma = Math.max(Number.isFinite(u) ? u : 0, scale[k]);
+    if (Math.abs(v) < t.chamberMinZ * sigma) continue;
+    const cold = v < 0;
+    const mag = Math.abs(v);
+    const [w, al, cr] = cold
+      ? [t.chamberColdWarningDegC, t.chamberColdAlarmDegC, t.chamberColdCriticalDegC]
+      : [t.chamberHotWarningDegC, t.chamberHotAlarmDegC, t.chamberHotCriticalDegC];
+    if (mag < w * factor) continue;
+    // Only the deepest chamber of a plume is reported: skip k when a neighbour is deeper in the same sense.
+    const l = (k - 1 + n) % n;
+    const rr = (k + 1) % n;
+    if ((cold && (r[l] < v || r[rr] < v)) || (!cold && (r[l] > v || r[rr] > v))) continue;
+    const grade: Grade = mag >= cr * factor ? 'critical' : mag >= al * factor ? 'alarm' : 'warning';
+    attributeChamber(r, k, pitch, t.swirlUncertaintyDeg, attr);
+    const ch = k + 1;
+    out.push({
+      kind: cold ? 'chamber_cold' : 'chamber_hot',
+      grade,
+      chamber: ch,
+      thermocouple: null,
+      likelihood: Math.round(attr.likelihood * 1000) / 1000,
+      runnerUpChamber: attr.runnerUpChamber,
+      runnerUpLikelihood: Math.round(attr.runnerUpLikelihood * 1000) / 1000,
+      evidence: {
+        residualDegC: r1(v),
+        chamberDeviationDegC: r1(a.chamberDeviationDegC[k]),
+        uncertaintyDegC: r1(u),
+        baselineScaleDegC: usedBaseline ? r1(scale[k]) : null,
+        commonModeDegC: r1(cm.commonModeDegC),
+        swirlDeg: r1(a.swirlDeg),
+        loadFraction: r3(a.loadFraction),
+        validThermocouples: a.coverage.validCount,
+      },
+      baselineVersion: usedBaseline ? version : null,
+      message: `chamber ${ch} runs ${r1(mag)} °C ${cold ? 'colder' : 'hotter'} than its normal at this load`,
+      advice: chamberAdvice(ch, cold, grade),
+    });
+  }
+}
+
+function chamberAdvice(ch: number, cold: boolean, grade: Grade): string {
+  if (cold && gradeRank(grade) >= gradeRank('alarm'))
+    return `check chamber ${ch} flame and crossfire against the unit's own protection readings now; borescope chamber ${ch} liner and transition piece at the next outage`;
+  if (cold) return `inspect chamber ${ch} fuel nozzle at the next outage`;
+  return `inspect chamber ${ch} fuel nozzle tip for erosion or over-fuelling at the next outage`;
+}
+
+function driftFindings(input: FindingInput, t: Thresholds, version: number | null, out: Finding[]): void {
+  const chambers = input.drift?.chambers ?? [];
+  for (let k = 0; k < chambers.length; k++) {
+    const d = chambers[k];
+    if (!d) continue;
+    const c = d.cusum;
+    const cusumSide = c ? (c.lower > c.h ? 'down' : c.upper > c.h ? 'up' : null) : null;
+    const rate = d.rate;
+    const rateMag = rate && rate.significant ? Math.abs(rate.per30DaysDegC) : 0;
+    let grade: Grade | null = null;
+    if (rateMag >= t.driftAlarmDegCPer30Days) grade = 'alarm';
+    else if (rateMag >= t.driftWarningDegCPer30Days || cusumSide) grade = 'warning';
+    if (!grade) continue;
+    const cooling = rate && rate.significant && rateMag > 0 ? rate.per30DaysDegC < 0 : cusumSide === 'down';
+    const ch = k + 1;
+    out.push({
+      kind: 'chamber_drift',
+      grade,
+      chamber: ch,
+      thermocouple: null,
+      likelihood: null,
+      runnerUpChamber: null,
+      runnerUpLikelihood: null,
+      evidence: {
+        ratePer30DaysDegC: rate ? r1(rate.per30DaysDegC) : null,
+        rateLowPer30DaysDegC: rate ? r1(rate.per30DaysInterval[0]) : null,
+        rateHighPer30DaysDegC: rate ? r1(rate.per30DaysInterval[1]) : null,
+        ratePer1000FiredHoursDegC: rate && rate.per1000FiredHoursDegC !== null ? r1(rate.per1000FiredHoursDegC) : null,
+        cusumUpper: c ? r1(c.upper) : null,
+        cusumLower: c ? r1(c.lower) : null,
+        cusumSignal: cusumSide,
+      },
+      baselineVersion: version,
+      message: `chamber ${ch} is ${cooling ? 'cooling' : 'warming'} against its baseline${rate && rate.significant ? ` at ${r1(rate.per30DaysDegC)} °C per 30 days` : ''}`,
+      advice: cooling ? `inspect chamber ${ch} fuel nozzle at the next outage` : `inspect chamber ${ch} fuel nozzle tip for erosion or over-fuelling at the next outage`,
+    });
+  }
+}
