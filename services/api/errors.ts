@@ -87,7 +87,7 @@ export function installErrorHandling(app: FastifyInstance): void {
   app.setErrorHandler((err, request, reply) => {
     const { status, body } = toErrorReply(err);
     if (status >= 500) request.log.error({ err }, 'request failed');
-    else request.log.info({ status, error: body.error, msg: body.message }, 'request refused');
+    else request.log.info({ status, error: body.error, reason: body.message }, 'request refused');
     return reply.status(status).send(body);
   });
   app.setNotFoundHandler((request, reply) => {

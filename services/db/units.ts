@@ -32,7 +32,7 @@ export class DuplicateEffectiveTimeError extends Error {}
 
 const iso = (v: unknown): string | null => {
   if (v instanceof Date) return Number.isFinite(v.getTime()) ? v.toISOString() : null;
-  if (v == null || v === '-infinity') return null;
+  if (v == null || v === '-infinity' || v === -Infinity) return null;
   return String(v);
 };
 
