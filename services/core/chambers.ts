@@ -86,6 +86,10 @@ export interface ChamberSolver {
   /** Residual degrees of freedom: valid count − trace of the hat matrix. */
   residualDof: number;
   validCount: number;
+  /** Indices of the valid thermocouples, and G and the design restricted to them (p × nv, nv × p). */
+  validIndex: Int32Array;
+  operatorCompact: Float64Array;
+  designCompact: Float64Array;
   /** Validity mask the solver was built for, thermocouples 0–31 and 32–63. */
   maskLo: number;
   maskHi: number;
@@ -155,7 +159,21 @@ export function buildChamberSolver(
   }
   let trace = 0;
   for (let i = 0; i < m; i++) for (let r = 0; r < p; r++) trace += design[i * p + r] * operator[r * m + i];
-  return { m, n, design, operator, rowNorm, residualDof: validCount - trace, validCount, maskLo, maskHi, bin: -1, shiftDeg };
+  const validIndex = new Int32Array(validCount);
+  for (let i = 0, j = 0; i < m; i++) if (usable[i]) validIndex[j++] = i;
+  const operatorCompact = new Float64Array(p * validCount);
+  const designCompact = new Float64Array(validCount * p);
+  for (let j = 0; j < validCount; j++) {
+    const i = validIndex[j];
+    for (let r = 0; r < p; r++) {
+      operatorCompact[r * validCount + j] = operator[r * m + i];
+      designCompact[j * p + r] = design[i * p + r];
+    }
+  }
+  return {
+    m, n, design, operator, rowNorm, residualDof: validCount - trace, validCount,
+    validIndex, operatorCompact, designCompact, maskLo, maskHi, bin: -1, shiftDeg,
+  };
 }
 
 /** Result slots written by `estimateChambers`; reused by the ring hot path. */
@@ -169,32 +187,33 @@ export interface ChamberEstimateOut {
 /**
  * Chamber estimates from valid readings: x = G·(reading − centre); residual σ from
  * RSS / residual dof (floored at residualFloorDegC); uncertainty of aₖ = σ·‖Gₖ‖.
- * values holds the readings (anything for invalid ones: G ignores them through the mask check).
+ * values holds the readings; only the solver's valid thermocouples are read. scratchY needs
+ * room for M values, scratchFit for N+1.
  */
 export function estimateChambers(
   solver: ChamberSolver,
-  values: ArrayLike<number>,
-  usable: ArrayLike<boolean | number>,
+  values: Float64Array,
   centreDegC: number,
   residualFloorDegC: number,
+  scratchY: Float64Array,
   scratchFit: Float64Array,
   out: ChamberEstimateOut,
 ): void {
-  const { m, n, operator, design, rowNorm } = solver;
+  const { n, validCount: nv, validIndex, operatorCompact: g, designCompact: d, rowNorm } = solver;
   const p = n + 1;
+  for (let j = 0; j < nv; j++) scratchY[j] = values[validIndex[j]] - centreDegC;
   for (let r = 0; r < p; r++) {
     let s = 0;
-    const base = r * m;
-    for (let i = 0; i < m; i++) if (usable[i]) s += operator[base + i] * (values[i] - centreDegC);
+    const base = r * nv;
+    for (let j = 0; j < nv; j++) s += g[base + j] * scratchY[j];
     scratchFit[r] = s;
   }
   let rss = 0;
-  for (let i = 0; i < m; i++) {
-    if (!usable[i]) continue;
+  for (let j = 0; j < nv; j++) {
     let f = 0;
-    const base = i * p;
-    for (let r = 0; r < p; r++) f += design[base + r] * scratchFit[r];
-    const e = values[i] - centreDegC - f;
+    const base = j * p;
+    for (let r = 0; r < p; r++) f += d[base + r] * scratchFit[r];
+    const e = scratchY[j] - f;
     rss += e * e;
   }
   const dof = solver.residualDof;

@@ -16,6 +16,7 @@ import {
 } from './chambers.ts';
 import { arcDistanceDeg, chamberAnglesDeg, chamberPitchDeg, thermocoupleAnglesDeg } from './geometry.ts';
 import { emptySpread, spreadInto, type SpreadMetrics } from './spread.ts';
+import { madOfSorted, medianOfSorted, sortPrefixInPlace } from './stats.ts';
 import { swirlDeg } from './swirl.ts';
 import { VALIDITY, VALIDITY_REASONS, type PlumeKernel, type Reading, type UnitConfig, type ValidityReason } from './types.ts';
 import {
@@ -24,7 +25,6 @@ import {
   defaultCoverageOptions,
   defaultValidityOptions,
   markIsolatedOutliers,
-  robustCentreInto,
   type Coverage,
   type CoverageOptions,
   type ValidityOptions,
@@ -127,6 +127,8 @@ export interface UnitContext {
   readonly loadMin: number;
   readonly loadMax: number;
   readonly binCount: number;
+  /** ψ at each load bin's centre, degrees. */
+  readonly binSwirlDeg: Float64Array;
   /** Solvers built so far (for inspection and tests). */
   solversBuilt: number;
   /** Current number of cached solvers. */
@@ -209,6 +211,8 @@ export function prepareUnit(config: UnitConfig, options: AnalysisOptionsInput = 
   const loadMin = curve[0][0];
   const loadMax = curve[curve.length - 1][0];
   const binCount = Math.max(1, Math.round((loadMax - loadMin) / opts.loadBinWidth) + 1);
+  const binSwirlDeg = new Float64Array(binCount);
+  for (let b = 0; b < binCount; b++) binSwirlDeg[b] = swirlDeg(curve, binCount === 1 ? loadMin : Math.min(loadMin + b * opts.loadBinWidth, loadMax));
   return {
     config,
     options: opts,
@@ -223,6 +227,7 @@ export function prepareUnit(config: UnitConfig, options: AnalysisOptionsInput = 
     loadMin,
     loadMax,
     binCount,
+    binSwirlDeg,
     solversBuilt: 0,
     cache: new Map(),
     recent: new Array<ChamberSolver | null>(binCount * RECENT_PER_BIN).fill(null),
@@ -268,7 +273,7 @@ export function solverFor(ctx: UnitContext, bin: number, usable: Uint8Array): Ch
     ctx.cache.delete(key);
     ctx.cache.set(key, solver);
   } else {
-    const shift = ctx.config.swirl.sense * swirlDeg(ctx.config.swirl.curve, loadOfBin(ctx, bin));
+    const shift = ctx.config.swirl.sense * ctx.binSwirlDeg[bin];
     solver = buildChamberSolver(ctx.tcAnglesDeg, ctx.chamberAnglesDeg, shift, usable, ctx.kernel, ctx.options.ridgeFraction);
     solver.bin = bin;
     ctx.solversBuilt++;
@@ -291,13 +296,21 @@ export function solverFor(ctx: UnitContext, bin: number, usable: Uint8Array): Ch
  * Never throws on bad readings.
  */
 export function analyseRing(ctx: UnitContext, readingsDegC: ArrayLike<Reading>, loadFraction: number, out: RingAnalysis = ctx.result): RingAnalysis {
-  const { m, n, values, scratch, centreMad, usable } = ctx;
+  const { m, n, values, scratch, usable } = ctx;
   const vo = ctx.options.validity;
   const codes = out.validity;
   classifyMissingAndRange(readingsDegC, m, vo.floorDegC, vo.ceilingDegC, codes, values);
-  robustCentreInto(values, codes, m, scratch, centreMad);
-  markIsolatedOutliers(values, codes, m, centreMad[0], centreMad[1], ctx.responseLeft, ctx.responseRight, vo);
-  const spread = spreadInto(values, codes, m, scratch, out.spread);
+  // Median of the valid readings; the MAD only when some reading is far enough out to be a candidate.
+  let nv = 0;
+  for (let i = 0; i < m; i++) if (codes[i] === VALIDITY.valid) scratch[nv++] = values[i];
+  sortPrefixInPlace(scratch, nv);
+  const med = medianOfSorted(scratch, nv);
+  let outliers = 0;
+  if (nv > 0 && (scratch[nv - 1] - med > vo.outlierMinDegC || med - scratch[0] > vo.outlierMinDegC)) {
+    const madDegC = madOfSorted(scratch, nv, med);
+    outliers = markIsolatedOutliers(values, codes, m, med, madDegC, ctx.responseLeft, ctx.responseRight, vo);
+  }
+  const spread = spreadInto(values, codes, m, scratch, out.spread, outliers === 0 ? med : NaN);
   const centre = spread.robustCentreDegC;
   for (let i = 0; i < m; i++) {
     const ok = codes[i] === VALIDITY.valid;
@@ -307,13 +320,13 @@ export function analyseRing(ctx: UnitContext, readingsDegC: ArrayLike<Reading>, 
   coverageInto(codes, m, ctx.options.coverage, out.coverage);
   out.loadFraction = loadFraction;
   const bin = loadBinOf(ctx, loadFraction);
-  out.swirlDeg = swirlDeg(ctx.config.swirl.curve, loadOfBin(ctx, bin));
+  out.swirlDeg = ctx.binSwirlDeg[bin];
   if (spread.validCount < ctx.options.minValidForChambers) {
     clearChambers(out, n);
     return out;
   }
   const solver = solverFor(ctx, bin, usable);
-  estimateChambers(solver, values, usable, centre, ctx.options.residualFloorDegC, ctx.fit, out);
+  estimateChambers(solver, values, centre, ctx.options.residualFloorDegC, ctx.scratch, ctx.fit, out);
   let worst = -1;
   let worstAbs = -1;
   let cold = 0;

@@ -47,10 +47,12 @@ export function emptySpread(): SpreadMetrics {
 }
 
 /**
- * Spread metrics over values whose code is valid; scratch (length ≥ m) is used for the median.
+ * Spread metrics over values whose code is valid; scratch (length ≥ m) is used for the median
+ * unless knownMedianDegC (the median of exactly these valid values) is given.
  * One pass keeps the hottest and the three coldest; a second gives the standard deviation.
  */
-export function spreadInto(values: Float64Array, codes: Uint8Array, m: number, scratch: Float64Array, out: SpreadMetrics): SpreadMetrics {
+export function spreadInto(values: Float64Array, codes: Uint8Array, m: number, scratch: Float64Array, out: SpreadMetrics, knownMedianDegC = NaN): SpreadMetrics {
+  const needMedian = !(knownMedianDegC === knownMedianDegC);
   let n = 0;
   let sum = 0;
   let hot = -Infinity;
@@ -64,7 +66,8 @@ export function spreadInto(values: Float64Array, codes: Uint8Array, m: number, s
   for (let i = 0; i < m; i++) {
     if (codes[i] !== VALIDITY.valid) continue;
     const v = values[i];
-    scratch[n++] = v;
+    if (needMedian) scratch[n] = v;
+    n++;
     sum += v;
     if (v > hot) {
       hot = v;
@@ -102,12 +105,12 @@ export function spreadInto(values: Float64Array, codes: Uint8Array, m: number, s
     const d = values[i] - mean;
     ss += d * d;
   }
-  sortPrefixInPlace(scratch, n);
+  if (needMedian) sortPrefixInPlace(scratch, n);
   out.spreadDegC = hot - c1;
   out.spreadExcl1DegC = n >= 2 ? hot - c2 : NaN;
   out.spreadExcl2DegC = n >= 3 ? hot - c3 : NaN;
   out.meanDegC = mean;
-  out.robustCentreDegC = medianOfSorted(scratch, n);
+  out.robustCentreDegC = needMedian ? medianOfSorted(scratch, n) : knownMedianDegC;
   out.stdDevDegC = n >= 2 ? Math.sqrt(ss / (n - 1)) : NaN;
   out.hottestThermocouple = hotI + 1;
   out.coldestThermocouple = i1 + 1;

@@ -28,6 +28,35 @@ export function medianOfSorted(sorted: ArrayLike<number>, n: number): number {
 }
 
 /**
+ * MAD (unscaled) of the first n entries of a sorted buffer around its median med, without a
+ * second sort: the absolute deviations are two sorted runs (below the median, read downwards;
+ * from the median up) merged up to the middle. NaN when n = 0.
+ * Example: madOfSorted([1, 2, 3, 4, 100], 5, 3) = 1.
+ */
+export function madOfSorted(sorted: ArrayLike<number>, n: number, med: number): number {
+  if (n <= 0) return NaN;
+  let r = 0;
+  while (r < n && sorted[r] < med) r++;
+  let l = r - 1;
+  const h = n >> 1;
+  let prev = 0;
+  let cur = 0;
+  for (let k = 0; k <= h; k++) {
+    const dl = l >= 0 ? med - sorted[l] : Infinity;
+    const dr = r < n ? sorted[r] - med : Infinity;
+    prev = cur;
+    if (dl <= dr) {
+      cur = dl;
+      l--;
+    } else {
+      cur = dr;
+      r++;
+    }
+  }
+  return n % 2 === 1 ? cur : 0.5 * (prev + cur);
+}
+
+/**
  * Quantile q ∈ [0, 1] of the first n entries of a sorted buffer by linear interpolation
  * between order statistics (position q·(n−1), the "type 7" rule). NaN when n = 0.
  * Example: quantileOfSorted([1, 2, 3, 4], 4, 0.5) = 2.5.

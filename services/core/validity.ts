@@ -7,7 +7,7 @@
  */
 import { ringNeighbours } from './geometry.ts';
 import { linearRegression } from './regression.ts';
-import { MAD_TO_SIGMA, medianOfSorted, sortPrefixInPlace } from './stats.ts';
+import { MAD_TO_SIGMA, madOfSorted, medianOfSorted, sortPrefixInPlace } from './stats.ts';
 import { VALIDITY, VALIDITY_REASONS, type Reading, type ValidityReason } from './types.ts';
 
 export interface ValidityOptions {
@@ -86,16 +86,14 @@ export function classifyMissingAndRange(
   return nv;
 }
 
-/** Median and MAD of the valid values, using scratch (length ≥ 2·m). Writes [median, mad] into out. */
+/** Median and MAD of the valid values, using scratch (length ≥ m). Writes [median, mad] into out; returns the valid count. */
 export function robustCentreInto(values: Float64Array, codes: Uint8Array, m: number, scratch: Float64Array, out: Float64Array): number {
   let n = 0;
   for (let i = 0; i < m; i++) if (codes[i] === VALIDITY.valid) scratch[n++] = values[i];
   sortPrefixInPlace(scratch, n);
   const med = medianOfSorted(scratch, n);
-  for (let j = 0; j < n; j++) scratch[j] = Math.abs(scratch[j] - med);
-  sortPrefixInPlace(scratch, n);
   out[0] = med;
-  out[1] = medianOfSorted(scratch, n);
+  out[1] = madOfSorted(scratch, n, med);
   return n;
 }
 
