@@ -30,21 +30,45 @@ const YEAR_DAYS = 365.2425;
 
 const scratch = new Stream();
 
+/** Last knot pair per noise key: consecutive rings fall between the same knots. */
+const knotCache = new Map<number, { i: number; a: number; b: number }>();
+
 /** Smooth value noise: hashed unit-variance values at knots every knotMs, eased in between. */
 function valueNoise(key: number, tMs: number, knotMs: number): number {
   const x = tMs / knotMs;
   const i = Math.floor(x);
   const f = x - i;
-  const a = scratch.reseed(combineKeys(key, i)).bounded();
-  const b = scratch.reseed(combineKeys(key, i + 1)).bounded();
+  let c = knotCache.get(key);
+  if (!c) {
+    c = { i: NaN, a: 0, b: 0 };
+    knotCache.set(key, c);
+  }
+  if (c.i !== i) {
+    c.i = i;
+    c.a = scratch.reseed(combineKeys(key, i)).bounded();
+    c.b = scratch.reseed(combineKeys(key, i + 1)).bounded();
+  }
   const s = f * f * (3 - 2 * f);
-  return a + (b - a) * s;
+  return c.a + (c.b - c.a) * s;
+}
+
+const siteKeys = new Map<string, number>();
+function siteKey(name: string): number {
+  let k = siteKeys.get(name);
+  if (k === undefined) { k = hashString(name); siteKeys.set(name, k); }
+  return k;
 }
 
 /** Mean pressure at an elevation by the standard-atmosphere barometric formula, kPa. */
 export function standardPressureKPa(elevationM: number): number {
-  return 101.325 * Math.pow(1 - 2.25577e-5 * elevationM, 5.25588);
+  if (elevationM !== lastElevation) {
+    lastElevation = elevationM;
+    lastPressure = 101.325 * Math.pow(1 - 2.25577e-5 * elevationM, 5.25588);
+  }
+  return lastPressure;
 }
+let lastElevation = NaN;
+let lastPressure = NaN;
 
 /** Local hour of day (0–24) at a site. */
 export function localHourOfDay(site: Pick<SiteClimate, 'utcOffsetH'>, tMs: number): number {
@@ -54,7 +78,7 @@ export function localHourOfDay(site: Pick<SiteClimate, 'utcOffsetH'>, tMs: numbe
 
 /** Ambient temperature, °C, at a site and time (ms since 1970 UTC). */
 export function ambientC(site: SiteClimate, tMs: number): number {
-  const key = hashString(site.name);
+  const key = siteKey(site.name);
   const dayOfYear = ((tMs / DAY_MS) % YEAR_DAYS + YEAR_DAYS) % YEAR_DAYS;
   const seasonal = site.seasonalAmpC * Math.cos((2 * Math.PI * (dayOfYear - site.warmestDayOfYear)) / YEAR_DAYS);
   const hour = localHourOfDay(site, tMs);
@@ -67,6 +91,6 @@ export function ambientC(site: SiteClimate, tMs: number): number {
 
 /** Ambient pressure, kPa: the site's mean plus passing weather systems of about ±1 kPa. */
 export function ambientKPa(site: SiteClimate, tMs: number): number {
-  const key = hashString(site.name) ^ 0x9a7e;
+  const key = siteKey(site.name) ^ 0x9a7e;
   return standardPressureKPa(site.elevationM) + 0.7 * valueNoise(key, tMs, 2.5 * DAY_MS);
 }

@@ -183,13 +183,17 @@ export function ringMeanC(loadFraction: number, ambientC: number, ambientKPa: nu
   const dT = ambientC - 15;
   const lb = baseLoadFraction(ambientC, ambientKPa);
   const baseTat = f.baseTatC + f.baseTatPerC * dT + f.baseTatPerMbar * (ambientKPa * 10 - 1013.25);
-  const high = (l: number) =>
-    Math.min(f.partTatC + f.partTatPerLoad * (l - 0.8) + f.partTatPerC * dT, baseTat + f.transitionTatPerLoad * (l - lb));
   const l = Math.min(loadFraction, lb);
-  if (l >= IGV_MIN_LOAD_FRACTION) return high(l) + offsetC;
+  if (l >= IGV_MIN_LOAD_FRACTION) return highLoadTat(l, dT, lb, baseTat) + offsetC;
   const fsnl = FSNL_EXHAUST_C + f.partTatPerC * dT;
-  const top = high(IGV_MIN_LOAD_FRACTION);
+  const top = highLoadTat(IGV_MIN_LOAD_FRACTION, dT, lb, baseTat);
   return fsnl + (top - fsnl) * (Math.max(0, l) / IGV_MIN_LOAD_FRACTION) + offsetC;
+}
+
+/** The lower of the part-load plateau and the line through the base-load point. */
+function highLoadTat(l: number, dT: number, lb: number, baseTat: number): number {
+  const f = UCI_EXHAUST_FIT;
+  return Math.min(f.partTatC + f.partTatPerLoad * (l - 0.8) + f.partTatPerC * dT, baseTat + f.transitionTatPerLoad * (l - lb));
 }
 
 /** Compressor pressure ratio at load fraction L: about 8 at base (common practice for an older heavy-duty unit), less with vanes closed (from memory). */

@@ -130,6 +130,8 @@ export class UnitSimulation {
   private readonly noise = new Stream();
   private readonly heat: Float64Array;
   private readonly field: Float64Array;
+  private readonly tcIdx: Int32Array;
+  private readonly plumeIdx: Int32Array;
   // Operating point of the last evaluated ring.
   private opLoadMw = 0; private opSpeed = 0; private opFuel = 0; private opFlame = false; private opAmbC = 0; private opAmbKPa = 0;
 
@@ -153,6 +155,9 @@ export class UnitSimulation {
     this.chAngle = chamberAnglesDeg(cfg);
     this.heat = new Float64Array(this.n);
     this.field = new Float64Array(this.m);
+    this.tcIdx = new Int32Array(this.m);
+    for (let i = 0; i < this.m; i++) this.tcIdx[i] = Math.round(this.tcAngle[i] * KERNEL_RES) % KERNEL_LEN;
+    this.plumeIdx = new Int32Array(this.n);
 
     // Fixed properties of this machine, from the seed.
     const fixed = new Stream(combineKeys(this.unitKey, 0xf1));
@@ -367,17 +372,18 @@ export class UnitSimulation {
     const beta = ph.plumeRetention;
     const g = this.kernel;
     const tol0 = ph.noiseSigmaC;
+    const pk = this.plumeIdx;
+    if (rise !== 0) {
+      for (let k = 0; k < n; k++) {
+        const a = (this.chAngle[k] + shift) * KERNEL_RES;
+        pk[k] = Math.round(a - KERNEL_LEN * Math.floor(a / KERNEL_LEN));
+      }
+    }
     for (let i = 0; i < m; i++) {
       let acc = 0;
       if (rise !== 0) {
-        const th = this.tcAngle[i] - shift;
-        for (let k = 0; k < n; k++) {
-          let d = th - this.chAngle[k];
-          d = d - 360 * Math.floor(d / 360);
-          let idx = Math.round(d * KERNEL_RES);
-          if (idx >= KERNEL_LEN) idx -= KERNEL_LEN;
-          acc += heat[k] * g[idx];
-        }
+        const ti = this.tcIdx[i] + 2 * KERNEL_LEN;
+        for (let k = 0; k < n; k++) acc += heat[k] * g[(ti - pk[k]) % KERNEL_LEN];
       }
       const gas = mean + rise * (beta * acc + (1 - beta) * hbar - 1 + this.placementBias[i]);
       out[i] = gas + this.probeOffsetFrac[i] * typeKToleranceC(gas, 2) + tol0 * s.bounded();
@@ -403,10 +409,14 @@ export class UnitSimulation {
     this.opAmbKPa = ambK;
   }
 
-  /** Ring times of the window, in order, with their segment index. */
-  private *times(): Generator<[number, number]> {
+  private sampleCache: { t: Float64Array; seg: Int32Array } | null = null;
+
+  /** Ring times of the window, in order, with their segment index (computed once). */
+  private samples(): { t: Float64Array; seg: Int32Array } {
+    if (this.sampleCache) return this.sampleCache;
     const segs = this.timeline.segments;
     const from = this.fromMs, to = this.toMs;
+    let t = new Float64Array(1024), sg = new Int32Array(1024), c = 0;
     for (let si = 0; si < segs.length; si++) {
       const seg = segs[si];
       if (seg.to <= from || seg.from >= to) continue;
@@ -423,16 +433,22 @@ export class UnitSimulation {
         if (iv <= 0) continue;
         const a = Math.max(a0, from), b = Math.min(b0, to);
         if (b <= a) continue;
-        for (let t = Math.ceil(a / iv) * iv; t < b; t += iv) yield [t, si];
+        for (let x = Math.ceil(a / iv) * iv; x < b; x += iv) {
+          if (c === t.length) {
+            const t2 = new Float64Array(c * 2); t2.set(t); t = t2;
+            const s2 = new Int32Array(c * 2); s2.set(sg); sg = s2;
+          }
+          t[c] = x; sg[c] = si; c++;
+        }
       }
     }
+    this.sampleCache = { t: t.subarray(0, c), seg: sg.subarray(0, c) };
+    return this.sampleCache;
   }
 
   /** Number of rings in the window. */
   count(): number {
-    let c = 0;
-    for (const _ of this.times()) c++;
-    return c;
+    return this.samples().t.length;
   }
 
   /** The rings one at a time, in the API's ring JSON shape plus unitId. */
@@ -440,8 +456,10 @@ export class UnitSimulation {
     const buf = new Float64Array(this.m);
     const segs = this.timeline.segments;
     const id = this.unit.config.id;
-    for (const [t, si] of this.times()) {
-      this.evaluate(t, segs[si], buf, true);
+    const smp = this.samples();
+    for (let j = 0; j < smp.t.length; j++) {
+      const t = smp.t[j];
+      this.evaluate(t, segs[smp.seg[j]], buf, true);
       const exhaustC: (number | null)[] = new Array(this.m);
       for (let i = 0; i < this.m; i++) exhaustC[i] = Number.isNaN(buf[i]) ? null : r1(buf[i]);
       const ring: SimRing = {
@@ -471,9 +489,10 @@ export class UnitSimulation {
     };
     const buf = new Float64Array(m);
     const segs = this.timeline.segments;
-    let r = 0;
-    for (const [t, si] of this.times()) {
-      this.evaluate(t, segs[si], buf, true);
+    const smp = this.samples();
+    for (let r = 0; r < count; r++) {
+      const t = smp.t[r];
+      this.evaluate(t, segs[smp.seg[r]], buf, true);
       b.tsMs[r] = t;
       b.loadMw[r] = r2(this.opLoadMw);
       b.ambientC[r] = r2(this.opAmbC);
@@ -483,7 +502,6 @@ export class UnitSimulation {
       b.flameDetected[r] = this.opFlame ? 1 : 0;
       const o = r * m;
       for (let i = 0; i < m; i++) b.exhaustC[o + i] = r1(buf[i]);
-      r++;
     }
     return b;
   }
@@ -532,7 +550,7 @@ export class UnitSimulation {
     const bf = this.physics.baseFuelKgS ?? 0;
     const starts: StartTruth[] = this.timeline.starts.filter((s) => inWin(s.crankAt)).map((s) => {
       const light = Array.from(s.lightS, (x) => (Number.isFinite(x) ? Math.round(x * 100) / 100 : null));
-      const flameS = (s.flameAt - s.firingAt) / 1000;
+      const firstLight = Math.min(...Array.from(s.lightS));
       const lastLight = Math.max(...Array.from(s.lightS));
       return {
         id: `${id}-start-${isoTime(s.crankAt).replace(/[-:]/g, '')}`,
@@ -549,7 +567,7 @@ export class UnitSimulation {
         warmupFuelKgS: Math.round(s.warmupFuelFrac * bf * 1000) / 1000,
         chamberLightS: light,
         unlitChamber: s.unlitChamber ?? undefined,
-        crossfireCompleteS: Number.isFinite(lastLight) ? Math.round((lastLight - flameS) * 100) / 100 : null,
+        crossfireCompleteS: Number.isFinite(lastLight) ? Math.round((lastLight - firstLight) * 100) / 100 : null,
       };
     });
     const cfg = this.unit.config;

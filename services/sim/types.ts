@@ -160,7 +160,7 @@ export interface StartTruth {
   chamberLightS: (number | null)[];
   /** Chamber (from 1) that failed to crossfire, when there was one. */
   unlitChamber?: number;
-  /** Seconds from first flame until every chamber was lit (null if one never lit). */
+  /** Seconds from the first chamber lighting until every chamber was lit (null if one never lit). */
   crossfireCompleteS: number | null;
 }
 
