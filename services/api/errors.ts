@@ -94,3 +94,6 @@ export function installErrorHandling(app: FastifyInstance): void {
     return reply.status(404).send({ error: 'not_found', message: `No route ${request.method} ${request.url.split('?')[0]}` });
   });
 }
+
+export const tooLarge = (message: string) => new HttpError(413, 'too_large', message);
+export const unsupportedMediaType = (message: string) => new HttpError(415, 'unsupported_media_type', message);

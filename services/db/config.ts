@@ -41,6 +41,19 @@ function decimal(env: Env, name: string, fallback: number, min: number, max: num
   return n;
 }
 
+/** A closed range "MIN,MAX" (e.g. "-60,60"); both ends numbers, MIN < MAX. */
+function range(env: Env, name: string, fallback: Range): Range {
+  const raw = env[name];
+  if (raw === undefined || raw === '') return fallback;
+  const parts = raw.split(',').map((p) => p.trim());
+  const [lo, hi] = parts.map(Number);
+  if (parts.length !== 2 || parts.some((p) => p === '') || !Number.isFinite(lo) || !Number.isFinite(hi)) {
+    throw new ConfigError(name, `"${raw}" is not a range (expected MIN,MAX, e.g. ${fallback.min},${fallback.max})`);
+  }
+  if (!(lo < hi)) throw new ConfigError(name, `"${raw}" has MIN not below MAX`);
+  return { min: lo, max: hi };
+}
+
 function oneOf<T extends string>(env: Env, name: string, fallback: T, allowed: readonly T[]): T {
   const raw = env[name];
   if (raw === undefined || raw === '') return fallback;
@@ -61,6 +74,30 @@ function databaseUrl(env: Env, name: string): string | undefined {
     throw new ConfigError(name, `uses "${u.protocol}" (expected postgres:// or postgresql://)`);
   }
   return raw;
+}
+
+/** A closed interval of physically possible values. */
+export interface Range {
+  min: number;
+  max: number;
+}
+
+/**
+ * Physical bounds of each ring field: a value outside is rejected at ingest. They are wide on
+ * purpose (what an instrument can report at all), not alarm limits: a reading that is possible
+ * but implausible is stored and judged by the analysis.
+ */
+export interface IngestBounds {
+  loadMw: Range;
+  ambientC: Range;
+  ambientKPa: Range;
+  speedPct: Range;
+  cdtC: Range;
+  cdpKPa: Range;
+  fuelFlowKgS: Range;
+  /** Exhaust readings after conversion to °C. */
+  exhaustC: Range;
+  coldJunctionC: Range;
 }
 
 export interface Config {
@@ -84,9 +121,69 @@ export interface Config {
     maxBatchRings: number;
     bodyLimitBytes: number;
     lineLimitBytes: number;
+    /** Rings written per COPY; one request still commits once, whatever its size. */
+    chunkRings: number;
+    bounds: IngestBounds;
   };
   /** Requests per minute per key before 429. */
   rateLimitPerMinute: number;
+  /** Life cycle of alerts (ISA-18.2 on-delay, off-delay, deadband, shelving, unit silence). */
+  alerts: AlertConfig;
+  /** Webhook delivery from the outbox. */
+  webhooks: WebhookConfig;
+}
+
+/** The alert kinds: the core's finding kinds and unit_silent (no data). Env names use them upper-cased. */
+export const ALERT_KINDS = ['thermocouple_fault', 'coverage_degraded', 'spread_high', 'spread_jump', 'chamber_cold', 'chamber_hot', 'chamber_drift', 'unit_silent'] as const;
+export type AlertKind = (typeof ALERT_KINDS)[number];
+
+export interface AlertConfig {
+  /** Default on-delay: a condition must hold this long (ring time) before an alert is raised, seconds. */
+  onDelayS: number;
+  /** Default off-delay: a condition must be gone this long (ring time) before the alert returns to normal, seconds. */
+  offDelayS: number;
+  /** Per-kind overrides of the two delays (CANSIGHT_ALERT_ON_DELAY_S_<KIND>, CANSIGHT_ALERT_OFF_DELAY_S_<KIND>). */
+  onDelayByKindS: Partial<Record<AlertKind, number>>;
+  offDelayByKindS: Partial<Record<AlertKind, number>>;
+  /** A new grade must hold this long (ring time) before an open alert changes grade, seconds. */
+  gradeDelayS: number;
+  /** A gap between observations longer than this breaks an on-delay in progress, seconds. */
+  maxGapS: number;
+  /** Deadband on temperature levels, °C: an alert is held until the value falls this far below its raise level. */
+  deadbandDegC: number;
+  /** Deadband on the chamber z-level (residual over its uncertainty). */
+  deadbandZ: number;
+  /** Deadband on rates and fractions, as a fraction of the level (drift rates, coverage). */
+  deadbandRatio: number;
+  /** Longest shelf a person may set, seconds. */
+  maxShelveS: number;
+  /** A unit with no ring for this long gets a unit_silent alert, seconds; 0 turns the check off. */
+  unitSilentS: number;
+  /** How often the shelf expiry and silent-unit checks run, seconds. */
+  checkIntervalS: number;
+}
+
+export interface WebhookConfig {
+  /** Attempts before a delivery is dead-lettered. */
+  maxTries: number;
+  /** Exponential back-off: attempt n waits a random time in [0, min(max, base·2^(n−1))] (full jitter), seconds. */
+  backoffBaseS: number;
+  backoffMaxS: number;
+  /** One HTTP attempt may take this long, milliseconds. */
+  timeoutMs: number;
+  /** How often the outbox is polled, milliseconds. */
+  pollMs: number;
+  /** Outbox rows claimed per poll. */
+  batchSize: number;
+}
+
+function perKind(env: Env, prefix: string, max: number): Partial<Record<AlertKind, number>> {
+  const out: Partial<Record<AlertKind, number>> = {};
+  for (const k of ALERT_KINDS) {
+    const name = `${prefix}_${k.toUpperCase()}`;
+    if (env[name] !== undefined && env[name] !== '') out[k] = integer(env, name, 0, 0, max);
+  }
+  return out;
 }
 
 export function loadConfig(env: Env = process.env): Config {
@@ -109,8 +206,42 @@ export function loadConfig(env: Env = process.env): Config {
       maxBatchRings: integer(env, 'CANSIGHT_MAX_BATCH_RINGS', 10_000, 1, 1_000_000),
       bodyLimitBytes: integer(env, 'CANSIGHT_BODY_LIMIT_BYTES', 8 * 1024 * 1024, 1024, 1024 * 1024 * 1024),
       lineLimitBytes: integer(env, 'CANSIGHT_LINE_LIMIT_BYTES', 64 * 1024, 256, 16 * 1024 * 1024),
+      chunkRings: integer(env, 'CANSIGHT_INGEST_CHUNK_RINGS', 5_000, 1, 1_000_000),
+      bounds: {
+        loadMw: range(env, 'CANSIGHT_BOUNDS_LOAD_MW', { min: -100, max: 2_000 }),
+        ambientC: range(env, 'CANSIGHT_BOUNDS_AMBIENT_C', { min: -70, max: 70 }),
+        ambientKPa: range(env, 'CANSIGHT_BOUNDS_AMBIENT_KPA', { min: 50, max: 110 }),
+        speedPct: range(env, 'CANSIGHT_BOUNDS_SPEED_PCT', { min: 0, max: 130 }),
+        cdtC: range(env, 'CANSIGHT_BOUNDS_CDT_C', { min: -70, max: 800 }),
+        cdpKPa: range(env, 'CANSIGHT_BOUNDS_CDP_KPA', { min: 0, max: 6_000 }),
+        fuelFlowKgS: range(env, 'CANSIGHT_BOUNDS_FUEL_FLOW_KG_S', { min: 0, max: 200 }),
+        exhaustC: range(env, 'CANSIGHT_BOUNDS_EXHAUST_C', { min: -273.15, max: 1_800 }),
+        coldJunctionC: range(env, 'CANSIGHT_BOUNDS_COLD_JUNCTION_C', { min: -60, max: 150 }),
+      },
     },
     rateLimitPerMinute: integer(env, 'CANSIGHT_RATE_LIMIT_PER_MIN', 6000, 1, 10_000_000),
+    alerts: {
+      onDelayS: integer(env, 'CANSIGHT_ALERT_ON_DELAY_S', 30, 0, 86_400),
+      offDelayS: integer(env, 'CANSIGHT_ALERT_OFF_DELAY_S', 120, 0, 86_400),
+      onDelayByKindS: perKind(env, 'CANSIGHT_ALERT_ON_DELAY_S', 86_400),
+      offDelayByKindS: perKind(env, 'CANSIGHT_ALERT_OFF_DELAY_S', 86_400),
+      gradeDelayS: integer(env, 'CANSIGHT_ALERT_GRADE_DELAY_S', 15, 0, 86_400),
+      maxGapS: integer(env, 'CANSIGHT_ALERT_MAX_GAP_S', 600, 1, 7 * 86_400),
+      deadbandDegC: decimal(env, 'CANSIGHT_ALERT_DEADBAND_C', 3, 0, 50),
+      deadbandZ: decimal(env, 'CANSIGHT_ALERT_DEADBAND_Z', 0.5, 0, 5),
+      deadbandRatio: decimal(env, 'CANSIGHT_ALERT_DEADBAND_RATIO', 0.1, 0, 0.9),
+      maxShelveS: integer(env, 'CANSIGHT_ALERT_MAX_SHELVE_S', 7 * 86_400, 60, 365 * 86_400),
+      unitSilentS: integer(env, 'CANSIGHT_UNIT_SILENT_S', 900, 0, 30 * 86_400),
+      checkIntervalS: integer(env, 'CANSIGHT_ALERT_CHECK_INTERVAL_S', 15, 1, 3600),
+    },
+    webhooks: {
+      maxTries: integer(env, 'CANSIGHT_WEBHOOK_MAX_TRIES', 8, 1, 100),
+      backoffBaseS: decimal(env, 'CANSIGHT_WEBHOOK_BACKOFF_BASE_S', 10, 0.01, 86_400),
+      backoffMaxS: decimal(env, 'CANSIGHT_WEBHOOK_BACKOFF_MAX_S', 3600, 0.01, 7 * 86_400),
+      timeoutMs: integer(env, 'CANSIGHT_WEBHOOK_TIMEOUT_MS', 10_000, 100, 300_000),
+      pollMs: integer(env, 'CANSIGHT_WEBHOOK_POLL_MS', 1000, 10, 600_000),
+      batchSize: integer(env, 'CANSIGHT_WEBHOOK_BATCH', 20, 1, 1000),
+    },
   };
 }
 

@@ -36,6 +36,14 @@ const PG_EPOCH_MS = 946_684_800_000;
 const SIGNATURE = Buffer.from('PGCOPY\n\xff\r\n\0', 'latin1');
 const TWO_32 = 4_294_967_296;
 
+export interface UnitSpan {
+  unitId: string;
+  loMs: number;
+  hiMs: number;
+  lastMs: number;
+  increasing: boolean;
+}
+
 /**
  * Builds the body of a binary COPY of ring rows (header, tuples, trailer) into one growing
  * buffer. One encoder per chunk; reset() reuses the buffer for the next chunk.
@@ -44,6 +52,13 @@ export class RingCopyEncoder {
   private buf: Buffer;
   private pos = 0;
   count = 0;
+  /** Per unit in this chunk: earliest and latest ts, and whether ts only ever increased. */
+  readonly units = new Map<string, UnitSpan>();
+  /** Months present in this chunk, as year·12 + month (UTC, month from 0). */
+  readonly months = new Set<number>();
+  private lastSpan: UnitSpan | null = null;
+  private monthFrom = 0;
+  private monthTo = -1;
 
   constructor(initialBytes = 1 << 20) {
     this.buf = Buffer.allocUnsafe(initialBytes);
@@ -53,6 +68,10 @@ export class RingCopyEncoder {
   reset(): void {
     this.pos = 0;
     this.count = 0;
+    this.units.clear();
+    this.months.clear();
+    this.lastSpan = null;
+    this.monthTo = -1;
     SIGNATURE.copy(this.buf, 0);
     this.buf.writeInt32BE(0, 11); // flags
     this.buf.writeInt32BE(0, 15); // header extension length
@@ -85,7 +104,32 @@ export class RingCopyEncoder {
     } else this.float4(v);
   }
 
+  private track(unitId: string, tsMs: number): void {
+    let span = this.lastSpan;
+    if (span === null || span.unitId !== unitId) {
+      span = this.units.get(unitId) ?? null;
+      if (span === null) {
+        span = { unitId, loMs: tsMs, hiMs: tsMs, lastMs: -Infinity, increasing: true };
+        this.units.set(unitId, span);
+      }
+      this.lastSpan = span;
+    }
+    if (tsMs <= span.lastMs) span.increasing = false;
+    span.lastMs = tsMs;
+    if (tsMs < span.loMs) span.loMs = tsMs;
+    if (tsMs > span.hiMs) span.hiMs = tsMs;
+    if (tsMs < this.monthFrom || tsMs >= this.monthTo) {
+      const d = new Date(tsMs);
+      const y = d.getUTCFullYear();
+      const m = d.getUTCMonth();
+      this.months.add(y * 12 + m);
+      this.monthFrom = Date.UTC(y, m, 1);
+      this.monthTo = Date.UTC(y, m + 1, 1);
+    }
+  }
+
   add(r: RingRow): void {
+    this.track(r.unitId, r.tsMs);
     const n = r.exhaustC.length;
     const idBytes = Buffer.byteLength(r.unitId, 'utf8');
     this.room(2 + 4 + idBytes + 12 + 8 * 7 + 5 + 4 + 20 + 8 * n);
@@ -159,4 +203,279 @@ export async function copyBinary(client: pg.ClientBase, target: string, body: Bu
   const done = once(stream, 'finish');
   stream.end(body);
   await done;
+}
+
+const STAGE = 'cansight_ring_stage';
+
+/** Months known to have a partition, per pool (one pool per database). Filled after commits. */
+const knownMonths = new WeakMap<pg.Pool, Set<number>>();
+
+function partitionName(month: number): string {
+  const y = Math.floor(month / 12);
+  const m = (month % 12) + 1;
+  return `rings_${String(y).padStart(4, '0')}_${String(m).padStart(2, '0')}`;
+}
+
+function monthStartIso(month: number): string {
+  return new Date(Date.UTC(Math.floor(month / 12), month % 12, 1)).toISOString();
+}
+
+export interface ChunkResult {
+  accepted: number;
+  duplicates: number;
+}
+
+/**
+ * One write of rings that commits as a whole: a connection holding one transaction, into which
+ * chunks of rows are copied as they arrive. Nothing is visible to others before commit(); an
+ * error or rollback() leaves nothing behind.
+ *
+ * Per chunk: when no stored ring of the chunk's units falls inside the chunk's time span and
+ * each unit's times only increase, the chunk is copied straight into the ring table (under a
+ * savepoint, so a ring written meanwhile by another request sends the chunk the slow way);
+ * otherwise it is copied into a session-local staging table and moved with
+ * INSERT … SELECT … ON CONFLICT DO NOTHING, which counts the duplicates.
+ * A month without a partition gets one created and attached inside the transaction (ATTACH
+ * takes a lock that does not stop other writers or readers of the ring table).
+ */
+export class RingWrite {
+  private finished = false;
+  private readonly created = new Set<number>();
+  private readonly notifyUnits = new Set<string>();
+  private readonly onError = (err: Error) => {
+    this.lostConnection = err;
+  };
+  private lostConnection: Error | null = null;
+
+  private constructor(private readonly pool: pg.Pool, private readonly client: pg.PoolClient) {
+    client.on('error', this.onError);
+  }
+
+  static async open(pool: pg.Pool): Promise<RingWrite> {
+    const client = await pool.connect();
+    const w = new RingWrite(pool, client);
+    try {
+      await client.query('BEGIN');
+    } catch (err) {
+      w.release(true);
+      throw err;
+    }
+    return w;
+  }
+
+  /** Runs a read query on this write's connection (inside its transaction). */
+  query<R extends pg.QueryResultRow = Record<string, unknown>>(text: string, values?: unknown[]): Promise<pg.QueryResult<R>> {
+    this.assertUsable();
+    return this.client.query<R>(text, values);
+  }
+
+  /** The connection, for repositories that read through it (e.g. unit configurations). */
+  get connection(): pg.ClientBase {
+    return this.client;
+  }
+
+  private assertUsable(): void {
+    if (this.finished) throw new Error('this ring write is already finished');
+    if (this.lostConnection) throw this.lostConnection;
+  }
+
+  private async ensureMonths(months: Set<number>): Promise<void> {
+    let known = knownMonths.get(this.pool);
+    if (!known) knownMonths.set(this.pool, (known = new Set()));
+    for (const month of months) {
+      if (known.has(month) || this.created.has(month)) continue;
+      const name = partitionName(month);
+      const { rows } = await this.client.query(`SELECT to_regclass($1) IS NOT NULL AS present`, [name]);
+      if (rows[0].present) {
+        known.add(month);
+        continue;
+      }
+      const from = monthStartIso(month);
+      const to = monthStartIso(month + 1);
+      await this.client.query('SAVEPOINT cansight_partition');
+      try {
+        await this.client.query(`CREATE TABLE ${name} (LIKE rings INCLUDING DEFAULTS INCLUDING CONSTRAINTS)`);
+        await this.client.query(`ALTER TABLE rings ATTACH PARTITION ${name} FOR VALUES FROM ('${from}') TO ('${to}')`);
+        await this.client.query('RELEASE SAVEPOINT cansight_partition');
+        this.created.add(month);
+      } catch (err) {
+        // Another writer made it meanwhile (and has committed, or we would still be waiting).
+        await this.client.query('ROLLBACK TO SAVEPOINT cansight_partition');
+        const again = await this.client.query(`SELECT to_regclass($1) IS NOT NULL AS present`, [name]);
+        if (!again.rows[0].present) throw err;
+        known.add(month);
+      }
+    }
+  }
+
+  private async overlaps(enc: RingCopyEncoder): Promise<boolean> {
+    const ids: string[] = [];
+    const lo: string[] = [];
+    const hi: string[] = [];
+    for (const span of enc.units.values()) {
+      if (!span.increasing) return true;
+      ids.push(span.unitId);
+      lo.push(new Date(span.loMs).toISOString());
+      hi.push(new Date(span.hiMs).toISOString());
+    }
+    const { rows } = await this.client.query(
+      `SELECT EXISTS (SELECT 1 FROM unnest($1::text[], $2::timestamptz[], $3::timestamptz[]) AS u(unit_id, lo, hi)
+         WHERE EXISTS (SELECT 1 FROM rings r WHERE r.unit_id = u.unit_id AND r.ts BETWEEN u.lo AND u.hi)) AS overlap`,
+      [ids, lo, hi],
+    );
+    return rows[0].overlap as boolean;
+  }
+
+  private async staged(body: Buffer, count: number): Promise<ChunkResult> {
+    await this.client.query(`CREATE TEMP TABLE IF NOT EXISTS ${STAGE} (LIKE rings INCLUDING DEFAULTS) ON COMMIT DELETE ROWS`);
+    await copyBinary(this.client, STAGE, body);
+    const { rows } = await this.client.query<{ unit_id: string; n: number }>(
+      `WITH ins AS (INSERT INTO rings (${RING_COLUMNS}) SELECT ${RING_COLUMNS} FROM ${STAGE} ON CONFLICT DO NOTHING RETURNING unit_id)
+       SELECT unit_id, count(*)::int AS n FROM ins GROUP BY unit_id`,
+    );
+    await this.client.query(`TRUNCATE ${STAGE}`);
+    let accepted = 0;
+    for (const r of rows) {
+      accepted += r.n;
+      this.notifyUnits.add(r.unit_id);
+    }
+    return { accepted, duplicates: count - accepted };
+  }
+
+  /** Writes the encoder's rows (the encoder may be reset afterwards). */
+  async write(enc: RingCopyEncoder): Promise<ChunkResult> {
+    this.assertUsable();
+    const count = enc.count;
+    if (count === 0) return { accepted: 0, duplicates: 0 };
+    await this.ensureMonths(enc.months);
+    const body = enc.finish();
+    if (!(await this.overlaps(enc))) {
+      await this.client.query('SAVEPOINT cansight_chunk');
+      try {
+        await copyBinary(this.client, 'rings', body);
+        await this.client.query('RELEASE SAVEPOINT cansight_chunk');
+        for (const id of enc.units.keys()) this.notifyUnits.add(id);
+        return { accepted: count, duplicates: 0 };
+      } catch (err) {
+        if ((err as { code?: string }).code !== '23505') throw err;
+        await this.client.query('ROLLBACK TO SAVEPOINT cansight_chunk');
+      }
+    }
+    return this.staged(body, count);
+  }
+
+  /** Commits; after it returns every written ring is durable and the worker has been told. */
+  async commit(): Promise<{ unitIds: string[] }> {
+    this.assertUsable();
+    const unitIds = [...this.notifyUnits].sort();
+    try {
+      if (unitIds.length) {
+        let payload = JSON.stringify(unitIds);
+        if (Buffer.byteLength(payload) > NOTIFY_PAYLOAD_MAX_BYTES) payload = '*';
+        // Delivered by PostgreSQL only when the transaction commits.
+        await this.client.query('SELECT pg_notify($1, $2)', [NEW_RINGS_CHANNEL, payload]);
+      }
+      await this.client.query('COMMIT');
+    } catch (err) {
+      await this.rollback();
+      throw err;
+    }
+    const known = knownMonths.get(this.pool);
+    for (const m of this.created) known?.add(m);
+    this.release(false);
+    return { unitIds };
+  }
+
+  /** Abandons everything written; safe to call more than once and after a lost connection. */
+  async rollback(): Promise<void> {
+    if (this.finished) return;
+    let broken = this.lostConnection !== null;
+    if (!broken) {
+      try {
+        await this.client.query('ROLLBACK');
+      } catch {
+        broken = true;
+      }
+    }
+    this.release(broken);
+  }
+
+  private release(broken: boolean): void {
+    if (this.finished) return;
+    this.finished = true;
+    this.client.removeListener('error', this.onError);
+    this.client.release(broken || this.lostConnection !== null);
+  }
+}
+
+/** A stored ring as read back: readings in °C, NaN where missing. */
+export interface StoredRing {
+  unitId: string;
+  ts: Date;
+  tsMs: number;
+  loadMw: number;
+  ambientC: number;
+  ambientKPa: number;
+  speedPct: number;
+  cdtC: number | null;
+  cdpKPa: number | null;
+  fuelFlowKgS: number | null;
+  flameDetected: boolean | null;
+  exhaustC: Float64Array;
+  receivedAt: Date;
+}
+
+type TimeArg = Date | string | number;
+const toDate = (t: TimeArg): Date => (t instanceof Date ? t : new Date(t));
+
+/**
+ * Rings of one unit with fromTs ≤ ts < toTs, oldest first, at most `limit`. Times may be Date,
+ * RFC 3339 text or milliseconds since 1970.
+ */
+export async function readRings(pool: pg.Pool | pg.ClientBase, unitId: string, fromTs: TimeArg, toTs: TimeArg, limit: number): Promise<StoredRing[]> {
+  const { rows } = await pool.query(
+    `SELECT ${RING_COLUMNS}, received_at FROM rings WHERE unit_id = $1 AND ts >= $2 AND ts < $3 ORDER BY ts LIMIT $4`,
+    [unitId, toDate(fromTs), toDate(toTs), Math.max(0, Math.floor(limit))],
+  );
+  return rows.map((r) => {
+    const raw = r.exhaust_c as (number | null)[];
+    const ex = new Float64Array(raw.length);
+    for (let i = 0; i < raw.length; i++) ex[i] = raw[i] === null ? NaN : raw[i]!;
+    const ts = r.ts as Date;
+    return {
+      unitId: r.unit_id,
+      ts,
+      tsMs: ts.getTime(),
+      loadMw: r.load_mw,
+      ambientC: r.ambient_c,
+      ambientKPa: r.ambient_kpa,
+      speedPct: r.speed_pct,
+      cdtC: r.cdt_c,
+      cdpKPa: r.cdp_kpa,
+      fuelFlowKgS: r.fuel_flow_kg_s,
+      flameDetected: r.flame_detected,
+      exhaustC: ex,
+      receivedAt: r.received_at,
+    };
+  });
+}
+
+/** Number of stored rings of a unit (all units when unitId is null). */
+export async function countRings(pool: pg.Pool | pg.ClientBase, unitId: string | null = null): Promise<number> {
+  const { rows } = await pool.query(`SELECT count(*)::int AS n FROM rings WHERE $1::text IS NULL OR unit_id = $1`, [unitId]);
+  return rows[0].n;
+}
+
+/**
+ * The floor of the write path: one binary COPY straight into the ring table in its own
+ * transaction, no duplicate handling (a duplicate fails the whole COPY). For benchmarks and
+ * trusted bulk loads into empty spans; partitions must exist.
+ */
+export async function copyRingsRaw(pool: pg.Pool, enc: RingCopyEncoder): Promise<void> {
+  const client = await pool.connect();
+  try {
+    await copyBinary(client, 'rings', enc.finish());
+  } finally {
+    client.release();
+  }
 }

@@ -1,0 +1,119 @@
+/**
+ * One ingest run: rings come in one at a time (already validated), are encoded into chunks for
+ * the ring table and written chunk by chunk into one transaction, which commits at the end.
+ * Also keeps the tally of the reply: accepted, duplicates, rejected (the first ones listed, all
+ * counted). No HTTP and no parsing here; the routes and the import command both use it.
+ */
+import type { Pool } from '../db/pool.ts';
+import { RingCopyEncoder, RingWrite, type RingRow } from '../db/rings.ts';
+import { createUnitsRepository, type ConfigVersionRecord } from '../db/units.ts';
+import type pg from 'pg';
+
+export interface RejectedRing {
+  /** Position of the ring: array index from 0 (JSON batch), line number from 1 (NDJSON), data row from 1 (CSV). */
+  index: number;
+  field: string;
+  reason: string;
+}
+
+export interface IngestTally {
+  accepted: number;
+  duplicates: number;
+  rejected: RejectedRing[];
+  /** All rejected rings; `rejected` lists at most the first maxListed of them. */
+  rejectedCount: number;
+}
+
+export interface IngestRunOptions {
+  chunkRings: number;
+  /** How many rejections the reply lists (all are counted). */
+  maxListed?: number;
+  /** Commit every this many rings and start a new transaction (the import command); default: once at the end. */
+  commitEveryRings?: number;
+  /** Told after each commit, with the rings committed so far. */
+  onCommit?: (tally: IngestTally) => void;
+}
+
+export const DEFAULT_MAX_LISTED = 1000;
+
+export class IngestRun {
+  private readonly enc: RingCopyEncoder;
+  private write: RingWrite | null = null;
+  private sinceCommit = 0;
+  readonly tally: IngestTally = { accepted: 0, duplicates: 0, rejected: [], rejectedCount: 0 };
+  private readonly maxListed: number;
+
+  constructor(private readonly pool: Pool, private readonly opts: IngestRunOptions) {
+    this.enc = new RingCopyEncoder(Math.min(64 << 20, Math.max(1 << 16, opts.chunkRings * 320)));
+    this.maxListed = opts.maxListed ?? DEFAULT_MAX_LISTED;
+  }
+
+  private async session(): Promise<RingWrite> {
+    if (this.write === null) this.write = await RingWrite.open(this.pool);
+    return this.write;
+  }
+
+  /**
+   * Configuration versions of a unit, read on this run's own connection so that a run never
+   * holds one connection while waiting for a second. [] for an unknown unit.
+   */
+  async unitVersions(unitId: string): Promise<ConfigVersionRecord[]> {
+    const w = await this.session();
+    return createUnitsRepository(w.connection as unknown as pg.Pool).versions(unitId);
+  }
+
+  reject(index: number, field: string, reason: string): void {
+    this.tally.rejectedCount++;
+    if (this.tally.rejected.length < this.maxListed) this.tally.rejected.push({ index, field, reason });
+  }
+
+  /** Adds a ring; true when the chunk is full and flush() should be awaited before the next. */
+  add(ring: RingRow): boolean {
+    this.enc.add(ring);
+    return this.enc.count >= this.opts.chunkRings;
+  }
+
+  get pending(): number {
+    return this.enc.count;
+  }
+
+  async flush(): Promise<void> {
+    if (this.enc.count === 0) return;
+    const w = await this.session();
+    const n = this.enc.count;
+    const r = await w.write(this.enc);
+    this.enc.reset();
+    this.tally.accepted += r.accepted;
+    this.tally.duplicates += r.duplicates;
+    this.sinceCommit += n;
+    if (this.opts.commitEveryRings !== undefined && this.sinceCommit >= this.opts.commitEveryRings) await this.commit();
+  }
+
+  private async commit(): Promise<void> {
+    const w = this.write;
+    this.write = null;
+    this.sinceCommit = 0;
+    if (w) await w.commit();
+    this.opts.onCommit?.(this.tally);
+  }
+
+  /** Writes what is pending and commits; the tally then counts only committed rings as accepted. */
+  async finish(): Promise<IngestTally> {
+    try {
+      await this.flush();
+      await this.commit();
+    } catch (err) {
+      await this.abort();
+      throw err;
+    }
+    return this.tally;
+  }
+
+  /** Abandons the uncommitted part; nothing of it becomes visible. */
+  async abort(): Promise<void> {
+    const w = this.write;
+    this.write = null;
+    this.enc.reset();
+    if (w) await w.rollback();
+  }
+}
