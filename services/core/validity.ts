@@ -30,7 +30,8 @@ export interface ValidityOptions {
   neighbourShareMinDegC: number;
   /**
    * Below this kernel response at the neighbour's angle, a plume can sit on one thermocouple
-   * alone and isolation cannot be decided from one ring (DOMAIN: only over time).
+   * alone and isolation cannot be decided from one ring (DOMAIN: only over time, by the window
+   * tests). With the default plume width this is the case for one thermocouple per chamber.
    */
   minNeighbourResponse: number;
 }
@@ -48,7 +49,7 @@ export const defaultValidityOptions: ValidityOptions = {
   scaleFloorDegC: 5,
   neighbourShareFraction: 0.5,
   neighbourShareMinDegC: 5,
-  minNeighbourResponse: 0.1,
+  minNeighbourResponse: 0.2,
 };
 
 /** True for a finite number. */
