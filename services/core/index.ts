@@ -3,6 +3,7 @@
  * Everything the worker, the API, the simulator and the tests use is exported from here.
  */
 export * from './types.ts';
+export * from './unit-config.ts';
 export * from './geometry.ts';
 export * from './swirl.ts';
 export * from './temperature.ts';

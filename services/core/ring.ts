@@ -18,6 +18,7 @@ import { arcDistanceDeg, chamberAnglesDeg, chamberPitchDeg, thermocoupleAnglesDe
 import { emptySpread, spreadInto, type SpreadMetrics } from './spread.ts';
 import { madOfSorted, medianOfSorted, sortPrefixInPlace } from './stats.ts';
 import { swirlDeg } from './swirl.ts';
+import { checkUnitConfig, MAX_THERMOCOUPLES } from './unit-config.ts';
 import { VALIDITY, VALIDITY_REASONS, type PlumeKernel, type Reading, type UnitConfig, type ValidityReason } from './types.ts';
 import {
   classifyMissingAndRange,
@@ -145,26 +146,11 @@ export interface UnitContext {
 }
 
 const RECENT_PER_BIN = 4;
-/** Largest thermocouple count the mask key supports. */
-export const MAX_THERMOCOUPLES = 64;
 
-/** Checks a unit configuration for what the analysis needs; throws an Error that names the field. */
-export function checkUnitConfig(config: UnitConfig): void {
-  const m = config.thermocouples?.count;
-  const n = config.chambers?.count;
-  if (!Number.isInteger(m) || m < 1 || m > MAX_THERMOCOUPLES) throw new Error(`thermocouples.count must be an integer from 1 to ${MAX_THERMOCOUPLES}; got ${m}`);
-  if (!Number.isInteger(n) || n < 1) throw new Error(`chambers.count must be a positive integer; got ${n}`);
-  const a = config.thermocouples.anglesDeg;
-  if (a && a.length > 0 && a.length !== m) throw new Error(`thermocouples.anglesDeg has ${a.length} angles but thermocouples.count is ${m}; give one angle per thermocouple`);
-  if (a && a.some((x) => !Number.isFinite(x))) throw new Error('thermocouples.anglesDeg must hold finite numbers of degrees');
-  if (!Number.isFinite(config.chambers.firstAngleDeg)) throw new Error('chambers.firstAngleDeg must be a finite number of degrees');
-  if (config.swirl.sense !== 1 && config.swirl.sense !== -1) throw new Error(`swirl.sense must be 1 or -1; got ${config.swirl.sense}`);
-  const c = config.swirl.curve;
-  if (!Array.isArray(c) || c.length === 0) throw new Error('swirl.curve needs at least one [load fraction, degrees] point');
-  for (let i = 0; i < c.length; i++) {
-    if (!Number.isFinite(c[i][0]) || !Number.isFinite(c[i][1])) throw new Error(`swirl.curve point ${i + 1} must be two finite numbers`);
-    if (i > 0 && c[i][0] < c[i - 1][0]) throw new Error(`swirl.curve must be sorted by load fraction; point ${i + 1} (${c[i][0]}) comes after ${c[i - 1][0]}`);
-  }
+/** Checks a unit configuration for what the analysis needs; throws an Error that names every problem. */
+export function assertUnitConfig(config: UnitConfig): void {
+  const problems = checkUnitConfig(config);
+  if (problems.length) throw new Error(problems.map((p) => `${p.field} ${p.reason}`).join('; '));
 }
 
 /** Allocates an empty analysis result sized for the context (for `analyseRing(ctx, r, L, out)`). */
@@ -193,7 +179,7 @@ export function createRingAnalysis(m: number, n: number): RingAnalysis {
 
 /** Prepares a unit for ring analysis. Throws when the configuration cannot be analysed. */
 export function prepareUnit(config: UnitConfig, options: AnalysisOptionsInput = {}): UnitContext {
-  checkUnitConfig(config);
+  assertUnitConfig(config);
   const opts = resolveAnalysisOptions(options);
   const m = config.thermocouples.count;
   const n = config.chambers.count;

@@ -11,10 +11,20 @@ export interface ConfigProblem {
 }
 
 export const SWIRL_LOAD_MAX = 1.2;
+/** Largest thermocouple count the analysis supports (its validity-mask key). */
+export const MAX_THERMOCOUPLES = 64;
 
 export function checkUnitConfig(c: UnitConfig): ConfigProblem[] {
   const problems: ConfigProblem[] = [];
   const tc = c.thermocouples;
+  if (!Number.isInteger(tc?.count) || tc.count < 1 || tc.count > MAX_THERMOCOUPLES) {
+    problems.push({ field: 'thermocouples.count', reason: `must be a whole number from 1 to ${MAX_THERMOCOUPLES}; got ${tc?.count}` });
+  }
+  if (!Number.isInteger(c.chambers?.count) || c.chambers.count < 1) {
+    problems.push({ field: 'chambers.count', reason: `must be a positive whole number; got ${c.chambers?.count}` });
+  }
+  if (!Number.isFinite(c.chambers?.firstAngleDeg)) problems.push({ field: 'chambers.firstAngleDeg', reason: 'must be a finite number of degrees' });
+  if (problems.length) return problems;
   if (tc.anglesDeg !== undefined && tc.firstAngleDeg !== undefined) {
     problems.push({ field: 'thermocouples', reason: 'give either firstAngleDeg or anglesDeg, not both' });
   }
@@ -24,15 +34,21 @@ export function checkUnitConfig(c: UnitConfig): ConfigProblem[] {
     }
     const seen = new Set<number>();
     tc.anglesDeg.forEach((a, i) => {
-      if (!(a >= 0 && a < 360)) problems.push({ field: `thermocouples.anglesDeg.${i}`, reason: `${a} is outside 0 ≤ angle < 360` });
+      if (!Number.isFinite(a)) problems.push({ field: `thermocouples.anglesDeg.${i}`, reason: 'must be a finite number of degrees' });
+      else if (!(a >= 0 && a < 360)) problems.push({ field: `thermocouples.anglesDeg.${i}`, reason: `${a} is outside 0 ≤ angle < 360` });
       if (seen.has(a)) problems.push({ field: `thermocouples.anglesDeg.${i}`, reason: `${a}° is given twice` });
       seen.add(a);
     });
   }
-  const curve = c.swirl.curve;
+  const curve = c.swirl?.curve;
+  if (!Array.isArray(curve)) {
+    problems.push({ field: 'swirl.curve', reason: 'needs at least one [load, degrees] point' });
+    return problems;
+  }
   if (curve.length === 0) problems.push({ field: 'swirl.curve', reason: 'needs at least one [load, degrees] point' });
   curve.forEach(([load, deg], i) => {
     if (!(load >= 0 && load <= SWIRL_LOAD_MAX)) problems.push({ field: `swirl.curve.${i}`, reason: `load ${load} is outside 0…${SWIRL_LOAD_MAX}` });
+    if (!Number.isFinite(load)) problems.push({ field: `swirl.curve.${i}`, reason: 'load is not a number' });
     if (!Number.isFinite(deg)) problems.push({ field: `swirl.curve.${i}`, reason: 'angle is not a number' });
     if (i > 0 && !(load > curve[i - 1][0])) problems.push({ field: `swirl.curve.${i}`, reason: 'loads must be strictly increasing' });
   });
