@@ -1,0 +1,441 @@
+/**
+ * The alert rules: turns the core's findings, ring by ring, into alerts with the ISA-18.2 /
+ * IEC 62682 life cycle. Runs inside the caller's transaction and never begins or commits one;
+ * all SQL is in services/db/alerts.ts.
+ *
+ * Life of an alert (all durations in ring time, i.e. the observations' timestamps, so a
+ * backfill gives the same alerts as live operation):
+ *
+ * - Condition. Keyed by (unit, kind, chamber or thermocouple). spread_high, spread_jump and
+ *   coverage_degraded are unit-wide: the chamber or thermocouple they name is the latest
+ *   attribution, kept up to date on the alert, not part of the key (otherwise a plume lying
+ *   between two chambers would flip between two alerts).
+ * - On-delay. A condition is raised only after it has been at the raise level in every
+ *   observation for the kind's on-delay (an observation gap over `maxGapS` starts it again).
+ *   The alert's grade is the lowest grade seen during the on-delay: the grade that held
+ *   throughout. Conditions waiting out their on-delay are kept in alert_pending.
+ * - Deadband. While an alert is active it is held by the findings evaluated at the relaxed
+ *   thresholds of `deadbandThresholds` (`hold`); the raise level is needed only to raise.
+ * - Off-delay. An active alert returns to normal only after its condition has been absent from
+ *   `hold` for the kind's off-delay; a return within the off-delay keeps it active.
+ * - Grade in place. The grade rises when the raise-level grade is higher, and falls when the
+ *   hold-level grade is lower (so the deadband applies between grades too); either way the new
+ *   grade must hold for `gradeDelayS` first, and the grade applied is the one that held
+ *   throughout that delay. A rise makes the alert unacknowledged again (people acknowledged a
+ *   lesser condition); a fall keeps the acknowledgement. Each change writes one history row.
+ * - Acknowledged / returned to normal. An alert stays open until it has both returned to
+ *   normal and been acknowledged ("returned to normal unacknowledged" stays listed). If its
+ *   condition comes back while it is open and returned to normal, the same alert becomes
+ *   active again ("reactivated", after the on-delay); otherwise a new alert is raised.
+ * - Shelving (by a person, until a time, with a reason; services/db/alerts.ts) does not stop the
+ *   rules: a shelved alert still changes grade and returns to normal, but those changes send no
+ *   webhook until the shelf ends.
+ * - Late observations. Observations at or before the unit's alert watermark (the latest ring
+ *   time already applied) are ignored, so a late ring or a re-run range moves nothing twice.
+ * - unit_silent alerts are owned by the silent-unit check (alert-jobs.ts), not by these rules.
+ */
+import { gradeRank, GRADES, type Finding, type Grade, type Thresholds } from '../core/findings.ts';
+import { ALERT_KINDS, type AlertKind, type Config } from '../db/config.ts';
+import {
+  closeAlert,
+  isShelved,
+  loadOpenRuleAlertsForUpdate,
+  loadPending,
+  lockAlertUnitState,
+  recordChange,
+  saveAlert,
+  savePending,
+  setAlertWatermark,
+  type AlertChange,
+  type AlertRow,
+  type PendingCondition,
+  type Queryable,
+} from '../db/alerts.ts';
+
+export type { AlertChange } from '../db/alerts.ts';
+
+export interface AlertSettings {
+  /** Per kind: seconds at the raise level before an alert is raised. */
+  onDelayS: Record<AlertKind, number>;
+  /** Per kind: seconds absent from the hold level before an alert returns to normal. */
+  offDelayS: Record<AlertKind, number>;
+  /** Seconds a new grade must hold before an open alert changes grade. */
+  gradeDelayS: number;
+  /** An observation gap longer than this (seconds) starts an on-delay again. */
+  maxGapS: number;
+  /** Deadband on temperature levels, °C. */
+  deadbandDegC: number;
+  /** Deadband on the chamber z-level. */
+  deadbandZ: number;
+  /** Deadband on rates and fractions, as a fraction of the level. */
+  deadbandRatio: number;
+  /** Longest shelf a person may set, seconds. */
+  maxShelveS: number;
+  /** A unit silent this long gets a unit_silent alert, seconds; 0: off. */
+  unitSilentS: number;
+  /** Period of the shelf-expiry and silent-unit checks, seconds. */
+  checkIntervalS: number;
+  webhooks: Config['webhooks'];
+}
+
+/**
+ * Per-kind delays that differ from the general ones. A spread jump is a change between two
+ * consecutive steady rings, so it exists for one ring: it is raised at once and kept visible
+ * for ten minutes. unit_silent has its own delay (unitSilentS) and clears when data resumes.
+ */
+const KIND_DEFAULTS: Partial<Record<AlertKind, { onDelayS: number; offDelayS: number }>> = {
+  spread_jump: { onDelayS: 0, offDelayS: 600 },
+  unit_silent: { onDelayS: 0, offDelayS: 0 },
+};
+
+/** Alert settings from the configuration: general delays, per-kind defaults, then per-kind variables. */
+export function loadAlertSettings(config: Config): AlertSettings {
+  const a = config.alerts;
+  const onDelayS = {} as Record<AlertKind, number>;
+  const offDelayS = {} as Record<AlertKind, number>;
+  for (const k of ALERT_KINDS) {
+    onDelayS[k] = a.onDelayByKindS[k] ?? KIND_DEFAULTS[k]?.onDelayS ?? a.onDelayS;
+    offDelayS[k] = a.offDelayByKindS[k] ?? KIND_DEFAULTS[k]?.offDelayS ?? a.offDelayS;
+  }
+  return {
+    onDelayS,
+    offDelayS,
+    gradeDelayS: a.gradeDelayS,
+    maxGapS: a.maxGapS,
+    deadbandDegC: a.deadbandDegC,
+    deadbandZ: a.deadbandZ,
+    deadbandRatio: a.deadbandRatio,
+    maxShelveS: a.maxShelveS,
+    unitSilentS: a.unitSilentS,
+    checkIntervalS: a.checkIntervalS,
+    webhooks: { ...config.webhooks },
+  };
+}
+
+/**
+ * The hold thresholds: every raise level relaxed by the deadband, so a condition found at
+ * `t` is still found at the result until it has fallen clear of its level.
+ * - temperature levels (spread limits and margin, spread jump, chamber cold and hot, each
+ *   grade) are lowered by deadbandDegC; the spread grades are excesses over the spread limit,
+ *   which is itself lowered, so they move with it. Without a baseline the chamber levels are
+ *   multiplied by noBaselineChamberFactor, and so is their deadband;
+ * - the chamber z-level is lowered by deadbandZ;
+ * - drift rates are lowered by the fraction deadbandRatio; the coverage fraction below which
+ *   coverage is an alarm is raised by it;
+ * - ring counts (recurring outliers, recurring gaps, adjacent failed thermocouples) by one
+ *   ring, never below one.
+ * Not thresholds, left as they are: noBaselineChamberFactor, swirlUncertaintyDeg.
+ */
+export function deadbandThresholds(t: Thresholds, settings: Pick<AlertSettings, 'deadbandDegC' | 'deadbandZ' | 'deadbandRatio'>): Thresholds {
+  const d = settings.deadbandDegC;
+  const r = settings.deadbandRatio;
+  return {
+    ...t,
+    spreadDefaultLimitDegC: t.spreadDefaultLimitDegC - d,
+    spreadMarginDegC: t.spreadMarginDegC - d,
+    spreadLimitFloorDegC: t.spreadLimitFloorDegC - d,
+    spreadLimitCeilingDegC: t.spreadLimitCeilingDegC - d,
+    spreadAlarmExcessDegC: t.spreadAlarmExcessDegC,
+    spreadCriticalExcessDegC: t.spreadCriticalExcessDegC,
+    spreadJumpWarningDegC: Math.max(0, t.spreadJumpWarningDegC - d),
+    spreadJumpAlarmDegC: Math.max(0, t.spreadJumpAlarmDegC - d),
+    chamberColdWarningDegC: Math.max(0, t.chamberColdWarningDegC - d),
+    chamberColdAlarmDegC: Math.max(0, t.chamberColdAlarmDegC - d),
+    chamberColdCriticalDegC: Math.max(0, t.chamberColdCriticalDegC - d),
+    chamberHotWarningDegC: Math.max(0, t.chamberHotWarningDegC - d),
+    chamberHotAlarmDegC: Math.max(0, t.chamberHotAlarmDegC - d),
+    chamberHotCriticalDegC: Math.max(0, t.chamberHotCriticalDegC - d),
+    chamberMinZ: Math.max(0, t.chamberMinZ - settings.deadbandZ),
+    driftWarningDegCPer30Days: t.driftWarningDegCPer30Days * (1 - r),
+    driftAlarmDegCPer30Days: t.driftAlarmDegCPer30Days * (1 - r),
+    coverageAlarmFraction: Math.min(1, t.coverageAlarmFraction * (1 + r)),
+    coverageAlarmAdjacentInvalid: Math.max(1, t.coverageAlarmAdjacentInvalid - 1),
+    outlierRecurringRings: Math.max(1, t.outlierRecurringRings - 1),
+    missingRecurringRings: Math.max(1, t.missingRecurringRings - 1),
+  };
+}
+
+const UNIT_WIDE: ReadonlySet<string> = new Set(['spread_high', 'spread_jump', 'coverage_degraded', 'unit_silent']);
+
+/** The condition key of a finding or alert: the kind, and its chamber or thermocouple unless the kind is unit-wide. */
+export function conditionKey(kind: string, chamber: number | null, thermocouple: number | null): string {
+  if (UNIT_WIDE.has(kind)) return kind;
+  if (thermocouple !== null && chamber === null) return `${kind}:tc${thermocouple}`;
+  if (chamber !== null && thermocouple === null) return `${kind}:ch${chamber}`;
+  return `${kind}:ch${chamber ?? '-'}:tc${thermocouple ?? '-'}`;
+}
+
+const lower = (a: Grade, b: Grade): Grade => (gradeRank(a) <= gradeRank(b) ? a : b);
+const higher = (a: Grade, b: Grade): Grade => (gradeRank(a) >= gradeRank(b) ? a : b);
+
+/** Findings of one observation by condition key; the most severe when a key appears twice. */
+function byKey(findings: readonly Finding[]): Map<string, Finding> {
+  const m = new Map<string, Finding>();
+  for (const f of findings) {
+    if (!GRADES.includes(f.grade)) continue;
+    const k = conditionKey(f.kind, f.chamber, f.thermocouple);
+    const had = m.get(k);
+    if (!had || gradeRank(f.grade) > gradeRank(had.grade)) m.set(k, f);
+  }
+  return m;
+}
+
+function evidenceOf(f: Finding): Record<string, unknown> {
+  return { ...f.evidence };
+}
+
+/** Copies what a finding says (text, subject, evidence) onto the alert; not a state change. */
+function describe(a: AlertRow, f: Finding): void {
+  a.message = f.message;
+  a.advice = f.advice;
+  a.evidence = evidenceOf(f);
+  a.chamber = f.chamber;
+  a.thermocouple = f.thermocouple;
+  a.likelihood = f.likelihood;
+  a.runnerUpChamber = f.runnerUpChamber;
+  a.runnerUpLikelihood = f.runnerUpLikelihood;
+  a.baselineVersion = f.baselineVersion;
+}
+
+function newAlert(unitId: string, key: string, f: Finding, grade: Grade, at: Date): AlertRow {
+  const a: AlertRow = {
+    id: '',
+    unitId,
+    kind: f.kind,
+    conditionKey: key,
+    grade,
+    chamber: f.chamber,
+    thermocouple: f.thermocouple,
+    active: true,
+    acknowledged: false,
+    ackedAt: null,
+    ackedBy: null,
+    ackComment: null,
+    shelvedUntil: null,
+    shelvedAt: null,
+    shelvedBy: null,
+    shelveReason: null,
+    raisedAt: at,
+    lastChangedAt: at,
+    clearedAt: null,
+    closedAt: null,
+    message: f.message,
+    advice: f.advice,
+    evidence: {},
+    likelihood: null,
+    runnerUpChamber: null,
+    runnerUpLikelihood: null,
+    baselineVersion: null,
+    lastSeenAt: at,
+    absentSince: null,
+    pendingGrade: null,
+    pendingGradeSince: null,
+  };
+  describe(a, f);
+  return a;
+}
+
+export interface AlertObservation {
+  /** Ring time of the observation. */
+  ts: Date;
+  /** Findings at the normal thresholds. */
+  raise: Finding[];
+  /** Findings at the thresholds relaxed by the deadband (deadbandThresholds). */
+  hold: Finding[];
+}
+
+/**
+ * Applies a unit's observations, in time order, to its alerts, inside the caller's transaction.
+ * Every state change writes the alert row, one history row and the outbox rows in that
+ * transaction. Returns the changes in the order they happened.
+ */
+export async function applyAlertObservations(
+  client: Queryable,
+  unitId: string,
+  observations: ReadonlyArray<AlertObservation>,
+  settings: AlertSettings,
+): Promise<AlertChange[]> {
+  if (observations.length === 0) return [];
+  const watermark = await lockAlertUnitState(client, unitId);
+  const fresh = observations
+    .filter((o) => watermark === null || o.ts.getTime() > watermark.getTime())
+    .sort((x, y) => x.ts.getTime() - y.ts.getTime());
+  if (fresh.length === 0) return [];
+
+  const pending = new Map<string, PendingCondition>();
+  for (const p of await loadPending(client, unitId)) pending.set(p.conditionKey, p);
+  const open = new Map<string, AlertRow>();
+  for (const a of await loadOpenRuleAlertsForUpdate(client, unitId)) open.set(a.conditionKey, a);
+  const pendingTouched = new Set<string>();
+  const alertsTouched = new Set<AlertRow>();
+  const changes: AlertChange[] = [];
+  const wallNow = new Date();
+  const notify = (a: AlertRow) => !isShelved(a, wallNow);
+  const maxGapMs = settings.maxGapS * 1000;
+  const gradeDelayMs = settings.gradeDelayS * 1000;
+
+  for (const o of fresh) {
+    const t = o.ts.getTime();
+    const raise = byKey(o.raise);
+    const hold = byKey(o.hold);
+    for (const [k, f] of raise) {
+      const h = hold.get(k);
+      if (!h || gradeRank(h.grade) < gradeRank(f.grade)) hold.set(k, f);
+    }
+
+    // An on-delay in progress ends when its condition leaves the raise level.
+    for (const k of [...pending.keys()]) {
+      if (!raise.has(k)) {
+        pending.delete(k);
+        pendingTouched.add(k);
+      }
+    }
+
+    // Raise level: start or continue the on-delay; raise (or reactivate) when it has run out.
+    const justChanged = new Set<string>();
+    for (const [k, f] of raise) {
+      if (f.kind === ('unit_silent' as string)) continue;
+      const a = open.get(k);
+      if (a && a.active) {
+        if (pending.delete(k)) pendingTouched.add(k);
+        continue;
+      }
+      let p = pending.get(k);
+      if (p && t - p.lastSeen.getTime() > maxGapMs) p = undefined;
+      if (!p) p = { conditionKey: k, kind: f.kind, since: o.ts, lastSeen: o.ts, grade: f.grade, finding: f as unknown as Record<string, unknown> };
+      else {
+        p.grade = lower(p.grade, f.grade);
+        p.lastSeen = o.ts;
+        p.finding = f as unknown as Record<string, unknown>;
+      }
+      pending.set(k, p);
+      pendingTouched.add(k);
+      if (t - p.since.getTime() < settings.onDelayS[f.kind] * 1000) continue;
+      pending.delete(k);
+      const details = { conditionSince: p.since.toISOString() };
+      if (a) {
+        // Returned to normal but not yet acknowledged: the same alert becomes active again.
+        const from = a.grade;
+        a.active = true;
+        a.grade = p.grade;
+        a.clearedAt = null;
+        a.absentSince = null;
+        a.lastSeenAt = o.ts;
+        a.lastChangedAt = o.ts;
+        a.pendingGrade = null;
+        a.pendingGradeSince = null;
+        describe(a, f);
+        changes.push(await recordChange(client, a, { action: 'reactivated', at: o.ts, fromGrade: from, details, notify: notify(a) }, false));
+        alertsTouched.delete(a);
+      } else {
+        const created = newAlert(unitId, k, f, p.grade, o.ts);
+        changes.push(await recordChange(client, created, { action: 'raised', at: o.ts, details }, true));
+        open.set(k, created);
+      }
+      justChanged.add(k);
+    }
+
+    // Hold level: keep active alerts, move their grades, return them to normal after the off-delay.
+    for (const a of [...open.values()]) {
+      if (!a.active || justChanged.has(a.conditionKey)) continue;
+      const k = a.conditionKey;
+      const h = hold.get(k);
+      if (h) {
+        const r = raise.get(k);
+        a.absentSince = null;
+        a.lastSeenAt = o.ts;
+        describe(a, r ?? h);
+        alertsTouched.add(a);
+        const change = await considerGrade(client, a, r ? r.grade : null, h.grade, o.ts, gradeDelayMs, notify(a));
+        if (change) {
+          changes.push(change);
+          alertsTouched.delete(a);
+        }
+        continue;
+      }
+      if (!a.absentSince) a.absentSince = o.ts;
+      a.pendingGrade = null;
+      a.pendingGradeSince = null;
+      alertsTouched.add(a);
+      if (t - a.absentSince.getTime() < settings.offDelayS[a.kind] * 1000) continue;
+      const endedAt = a.absentSince;
+      a.active = false;
+      a.clearedAt = o.ts;
+      a.lastChangedAt = o.ts;
+      a.absentSince = null;
+      const closes = a.acknowledged;
+      const announce = notify(a);
+      if (closes) {
+        closeAlert(a, o.ts);
+        open.delete(k);
+      }
+      changes.push(await recordChange(client, a, { action: 'returned_to_normal', at: o.ts, details: { conditionEndedAt: endedAt.toISOString(), closed: closes }, notify: announce }, false));
+      alertsTouched.delete(a);
+    }
+  }
+
+  // Bookkeeping that is not a state change: evidence, last seen, off-delay and grade timers.
+  for (const a of alertsTouched) await saveAlert(client, a);
+  const upserts: PendingCondition[] = [];
+  const removed: string[] = [];
+  for (const k of pendingTouched) {
+    const p = pending.get(k);
+    if (p) upserts.push(p);
+    else removed.push(k);
+  }
+  await savePending(client, unitId, upserts, removed);
+  await setAlertWatermark(client, unitId, fresh[fresh.length - 1].ts);
+  return changes;
+}
+
+/**
+ * Moves an active alert's grade. `raiseGrade` is its grade at the normal thresholds (null when
+ * only the hold level finds it), `holdGrade` at the relaxed ones. Returns the change when the
+ * grade moved.
+ */
+async function considerGrade(
+  client: Queryable,
+  a: AlertRow,
+  raiseGrade: Grade | null,
+  holdGrade: Grade,
+  at: Date,
+  delayMs: number,
+  notify: boolean,
+): Promise<AlertChange | null> {
+  const g = a.grade;
+  let candidate: Grade | null = null;
+  if (raiseGrade && gradeRank(raiseGrade) > gradeRank(g)) candidate = raiseGrade;
+  else if (gradeRank(holdGrade) < gradeRank(g)) candidate = holdGrade;
+  if (!candidate) {
+    a.pendingGrade = null;
+    a.pendingGradeSince = null;
+    return null;
+  }
+  const up = gradeRank(candidate) > gradeRank(g);
+  if (a.pendingGrade && a.pendingGradeSince && gradeRank(a.pendingGrade) > gradeRank(g) === up) {
+    a.pendingGrade = up ? lower(a.pendingGrade, candidate) : higher(a.pendingGrade, candidate);
+  } else {
+    a.pendingGrade = candidate;
+    a.pendingGradeSince = at;
+  }
+  if (at.getTime() - a.pendingGradeSince!.getTime() < delayMs) return null;
+  const next = a.pendingGrade;
+  const since = a.pendingGradeSince!;
+  a.grade = next;
+  a.pendingGrade = null;
+  a.pendingGradeSince = null;
+  a.lastChangedAt = at;
+  const wasAcknowledged = a.acknowledged;
+  if (up) {
+    a.acknowledged = false;
+    a.ackedAt = null;
+    a.ackedBy = null;
+    a.ackComment = null;
+  }
+  return recordChange(
+    client,
+    a,
+    { action: up ? 'escalated' : 'deescalated', at, fromGrade: g, details: { gradeSince: since.toISOString(), acknowledgementCleared: up && wasAcknowledged }, notify },
+    false,
+  );
+}
