@@ -825,12 +825,12 @@ export async function finishAttempt(db: Queryable, r: AttemptResult): Promise<vo
        UPDATE webhook_outbox
           SET state = CASE $9::text WHEN 'delivered' THEN 'delivered' WHEN 'dead' THEN 'dead' ELSE 'pending' END,
               delivered_at = CASE WHEN $9 = 'delivered' THEN $5::timestamptz ELSE delivered_at END,
-              next_attempt_at = coalesce($10, next_attempt_at),
-              last_error = CASE WHEN $9 = 'delivered' THEN NULL ELSE coalesce($8, 'HTTP ' || $7::text) END
-        WHERE id = $1 AND attempts = $4 AND state = 'pending'
+              next_attempt_at = coalesce($10::timestamptz, next_attempt_at),
+              last_error = CASE WHEN $9 = 'delivered' THEN NULL ELSE coalesce($8::text, 'HTTP ' || $7::int) END
+        WHERE id = $1::bigint AND attempts = $4::int AND state = 'pending'
        RETURNING id)
      INSERT INTO webhook_deliveries (outbox_id, webhook_id, unit_id, attempt, attempted_at, duration_ms, status_code, error, outcome)
-     VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9)`,
+     VALUES ($1::bigint, $2::uuid, $3::text, $4::int, $5::timestamptz, $6::int, $7::int, $8::text, $9::text)`,
     [r.outboxId, r.webhookId, r.unitId, r.attempt, r.attemptedAt, Math.round(r.durationMs), r.statusCode, r.error, r.outcome, r.nextAttemptAt],
   );
 }

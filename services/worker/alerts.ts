@@ -180,12 +180,15 @@ function byKey(findings: readonly Finding[]): Map<string, Finding> {
   return m;
 }
 
-function evidenceOf(f: Finding): Record<string, unknown> {
+/** What an alert says about its condition: a core finding, or the same shape for unit_silent. */
+export type AlertSubject = Omit<Finding, 'kind'> & { kind: AlertKind };
+
+function evidenceOf(f: AlertSubject): Record<string, unknown> {
   return { ...f.evidence };
 }
 
 /** Copies what a finding says (text, subject, evidence) onto the alert; not a state change. */
-function describe(a: AlertRow, f: Finding): void {
+export function describe(a: AlertRow, f: AlertSubject): void {
   a.message = f.message;
   a.advice = f.advice;
   a.evidence = evidenceOf(f);
@@ -197,7 +200,8 @@ function describe(a: AlertRow, f: Finding): void {
   a.baselineVersion = f.baselineVersion;
 }
 
-function newAlert(unitId: string, key: string, f: Finding, grade: Grade, at: Date): AlertRow {
+/** A new active alert (not yet stored) for condition `key`, raised at `at`. */
+export function newAlert(unitId: string, key: string, f: AlertSubject, grade: Grade, at: Date): AlertRow {
   const a: AlertRow = {
     id: '',
     unitId,
