@@ -598,6 +598,11 @@ export function simulateUnit(unit: SimUnit, opts: GenerateOptions): UnitSimulati
   return new UnitSimulation(unit, opts);
 }
 
+/** Simulates several units over the same window (e.g. the demo fleet). */
+export function simulateFleet(units: SimUnit[], opts: GenerateOptions): UnitSimulation[] {
+  return units.map((u) => new UnitSimulation(u, opts));
+}
+
 /** Where chamber k's (from 1) plume lands by the unit's true swirl at a corrected load fraction. */
 export function truePlumeAngleDeg(unit: SimUnit, chamber: number, loadFraction: number): number {
   const ph = resolvePhysics(unit);
