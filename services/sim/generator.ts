@@ -506,7 +506,7 @@ export class UnitSimulation {
     return b;
   }
 
-  /** The healthy gas temperature field at each thermocouple (no offset, noise or sensor fault) is not exposed; this is the reading without thermocouple faults, for tests. */
+  /** Each thermocouple's reading at t (with its calibration offset and noise) but without thermocouple faults; chamber faults included. For tests and tools. */
   healthyReadingsAt(t: TimeInput): Float64Array | null {
     const ms = toMs(t);
     const si = findSegment(this.timeline.segments, ms);
