@@ -5,8 +5,9 @@
 import { parseArgs } from 'node:util';
 import { loadConfigOrExit } from '../db/config.ts';
 import { keysCommand } from './keys.ts';
-import { openRuntime } from './runtime.ts';
+import { openRuntime, stopOnSignals } from './runtime.ts';
 import { serve } from './serve.ts';
+import { startWorker } from '../worker/index.ts';
 import { USAGE, UsageError } from './usage.ts';
 
 const out = (line: string) => process.stdout.write(line + '\n');
@@ -23,6 +24,15 @@ async function run(argv: string[]): Promise<number> {
     case 'ingest': {
       parseArgs({ args: rest, options: {}, strict: true });
       await serve(loadConfigOrExit(), { parts: { api: command === 'api', ingest: command === 'ingest' }, demo: false, announce: false });
+      return 0;
+    }
+    case 'worker': {
+      parseArgs({ args: rest, options: {}, strict: true });
+      const runtime = await openRuntime(loadConfigOrExit(), { migrate: true, role: 'worker' });
+      const stopped = stopOnSignals(runtime);
+      const worker = await startWorker({ pool: runtime.pool, logger: runtime.logger, config: runtime.config });
+      runtime.onShutdown(() => worker.stop());
+      await stopped;
       return 0;
     }
     case 'migrate': {

@@ -131,6 +131,8 @@ export interface Config {
   alerts: AlertConfig;
   /** Webhook delivery from the outbox. */
   webhooks: WebhookConfig;
+  /** The analysis worker: batches, leases, schedules, baselines and drift. */
+  worker: WorkerConfig;
 }
 
 /** The alert kinds: the core's finding kinds and unit_silent (no data). Env names use them upper-cased. */
@@ -184,6 +186,86 @@ function perKind(env: Env, prefix: string, max: number): Partial<Record<AlertKin
     if (env[name] !== undefined && env[name] !== '') out[k] = integer(env, name, 0, 0, max);
   }
   return out;
+}
+
+export interface WorkerConfig {
+  /** Name of this worker process in claims and logs (default: host-pid-random). */
+  id: string | undefined;
+  /** Rings analysed per transaction. */
+  batchRings: number;
+  /** Units analysed at the same time by one worker. */
+  concurrency: number;
+  /** A unit's lease lasts this long unless renewed, seconds; another worker takes over after it. */
+  leaseS: number;
+  /** Leases are renewed and free units claimed this often, seconds. */
+  claimEveryS: number;
+  /** Most units one worker holds (0: an even share of the fleet among live workers). */
+  maxUnits: number;
+  /** node-cron pattern of the safety-net sweep (new and late rings). */
+  sweepCron: string;
+  /** node-cron pattern of the nightly drift computation (UTC). */
+  driftCron: string;
+  /** Window of the steady-state test, seconds. */
+  steadyWindowS: number;
+  /** Window of the frozen / erratic / drifting-alone thermocouple tests, minutes, and how often they run. */
+  windowTestMinutes: number;
+  windowTestEveryMinutes: number;
+  /** Recent rings counted for recurring outliers and gaps. */
+  recentRings: number;
+  /** Findings are evaluated only at or above this shaft speed (percent) and corrected load (fraction). */
+  findingsMinSpeedPct: number;
+  findingsMinLoad: number;
+  /** A baseline is fitted automatically after this many days of steady data… */
+  baselineAutoDays: number;
+  /** …from load bins holding at least this many steady rings, bins this wide (load fraction). */
+  baselineMinBinCount: number;
+  baselineBinWidth: number;
+  /** Days of daily residual aggregates the drift rate is fitted over. */
+  driftLookbackDays: number;
+  /** Days after a baseline that set the scale of the CUSUM and EWMA. */
+  driftReferenceDays: number;
+  /** Smallest scale of a daily residual, °C. */
+  driftSigmaFloorDegC: number;
+}
+
+/** A node-cron pattern: five or six fields of digits, '*', '/', ',', '-' (names of days and months allowed). */
+function cronPattern(env: Env, name: string, fallback: string): string {
+  const raw = text(env, name, fallback).trim();
+  const fields = raw.split(/\s+/);
+  if ((fields.length !== 5 && fields.length !== 6) || fields.some((f) => !/^[0-9*\/,\-a-zA-Z?]+$/.test(f))) {
+    throw new ConfigError(name, `"${raw}" is not a cron pattern (expected 5 or 6 fields, e.g. "${fallback}")`);
+  }
+  return raw;
+}
+
+function workerConfig(env: Env): WorkerConfig {
+  const leaseS = integer(env, 'CANSIGHT_WORKER_LEASE_S', 30, 2, 3600);
+  const claimEveryS = integer(env, 'CANSIGHT_WORKER_CLAIM_EVERY_S', Math.max(1, Math.floor(leaseS / 3)), 1, 3600);
+  if (claimEveryS >= leaseS) throw new ConfigError('CANSIGHT_WORKER_CLAIM_EVERY_S', `${claimEveryS} is not below CANSIGHT_WORKER_LEASE_S (${leaseS}); leases would lapse between renewals`);
+  const id = optionalText(env, 'CANSIGHT_WORKER_ID');
+  if (id !== undefined && !/^[A-Za-z0-9._:-]{1,100}$/.test(id)) throw new ConfigError('CANSIGHT_WORKER_ID', `"${id}" may hold only letters, digits and . _ : - (at most 100)`);
+  return {
+    id,
+    batchRings: integer(env, 'CANSIGHT_WORKER_BATCH_RINGS', 5_000, 1, 1_000_000),
+    concurrency: integer(env, 'CANSIGHT_WORKER_CONCURRENCY', 2, 1, 64),
+    leaseS,
+    claimEveryS,
+    maxUnits: integer(env, 'CANSIGHT_WORKER_MAX_UNITS', 0, 0, 1_000_000),
+    sweepCron: cronPattern(env, 'CANSIGHT_WORKER_SWEEP_CRON', '*/10 * * * * *'),
+    driftCron: cronPattern(env, 'CANSIGHT_DRIFT_CRON', '17 2 * * *'),
+    steadyWindowS: integer(env, 'CANSIGHT_STEADY_WINDOW_S', 600, 10, 86_400),
+    windowTestMinutes: integer(env, 'CANSIGHT_WINDOW_TEST_MINUTES', 30, 1, 1440),
+    windowTestEveryMinutes: integer(env, 'CANSIGHT_WINDOW_TEST_EVERY_MINUTES', 10, 1, 1440),
+    recentRings: integer(env, 'CANSIGHT_RECENT_RINGS', 30, 1, 10_000),
+    findingsMinSpeedPct: decimal(env, 'CANSIGHT_FINDINGS_MIN_SPEED_PCT', 95, 0, 130),
+    findingsMinLoad: decimal(env, 'CANSIGHT_FINDINGS_MIN_LOAD', 0.2, 0, 1.5),
+    baselineAutoDays: decimal(env, 'CANSIGHT_BASELINE_AUTO_DAYS', 14, 0.01, 3650),
+    baselineMinBinCount: integer(env, 'CANSIGHT_BASELINE_MIN_BIN_COUNT', 30, 1, 1_000_000),
+    baselineBinWidth: decimal(env, 'CANSIGHT_BASELINE_BIN_WIDTH', 0.05, 0.005, 0.5),
+    driftLookbackDays: integer(env, 'CANSIGHT_DRIFT_LOOKBACK_DAYS', 60, 3, 3650),
+    driftReferenceDays: integer(env, 'CANSIGHT_DRIFT_REFERENCE_DAYS', 7, 2, 365),
+    driftSigmaFloorDegC: decimal(env, 'CANSIGHT_DRIFT_SIGMA_FLOOR_C', 1, 0.01, 100),
+  };
 }
 
 export function loadConfig(env: Env = process.env): Config {
@@ -242,6 +324,7 @@ export function loadConfig(env: Env = process.env): Config {
       pollMs: integer(env, 'CANSIGHT_WEBHOOK_POLL_MS', 1000, 10, 600_000),
       batchSize: integer(env, 'CANSIGHT_WEBHOOK_BATCH', 20, 1, 1000),
     },
+    worker: workerConfig(env),
   };
 }
 

@@ -1,0 +1,652 @@
+/**
+ * Analysis repository: every query of the worker's analysis path and of the status route.
+ * Rings are read and analysis rows written with binary COPY (no text formatting of readings
+ * on either side); progress is advanced and the batch logged in the caller's transaction, so
+ * the watermark and the analysis it covers commit together or not at all. Rollups are read
+ * and written whole (the caller merges). No analytics here.
+ */
+import type pg from 'pg';
+import { CopyBinaryReader, CopyBinaryWriter, copyIn, copyOut, isoMicros } from './pg-binary.ts';
+
+type Queryable = pg.Pool | pg.ClientBase;
+
+/** Rings of one unit in columns, oldest first. Readings °C, NaN where missing. */
+export interface RingColumns {
+  count: number;
+  tsMs: Float64Array;
+  loadMw: Float64Array;
+  ambientC: Float64Array;
+  ambientKPa: Float64Array;
+  speedPct: Float64Array;
+  exhaustC: Float64Array[];
+}
+
+/** One analysed ring as stored. Arrays: index 0 = thermocouple / chamber 1; NaN = NULL. */
+export interface AnalysisRow {
+  tsMs: number;
+  configVersion: number;
+  baselineVersion: number | null;
+  loadFraction: number;
+  steady: boolean;
+  spread: number;
+  spreadExcl1: number;
+  spreadExcl2: number;
+  spreadLimit: number;
+  limitFromBaseline: boolean;
+  ringMean: number;
+  robustCentre: number;
+  stdDev: number;
+  hottestTc: number | null;
+  coldestTc: number | null;
+  secondColdestTc: number | null;
+  coldestAdjacent: boolean;
+  validCount: number;
+  coverageDegraded: boolean;
+  validity: Uint8Array;
+  tcDeviation: Float64Array;
+  /** null when there is no baseline or the ring is not steady. */
+  tcResidual: Float64Array | null;
+  swirlDeg: number;
+  chamberDeviation: Float64Array;
+  chamberUncertainty: Float64Array;
+  chamberResidual: Float64Array | null;
+  ringLevel: number;
+  fitSd: number;
+  worstChamber: number | null;
+  worstLikelihood: number;
+  runnerUpChamber: number | null;
+  runnerUpLikelihood: number;
+  worstGrade: number | null;
+  /** JSON text of the findings summary, or null. */
+  findingsJson: string | null;
+}
+
+const ANALYSIS_COLUMNS =
+  'unit_id, ts, config_version, baseline_version, load_fraction, steady, spread, spread_excl1, spread_excl2, spread_limit, limit_from_baseline, ' +
+  'ring_mean, robust_centre, std_dev, hottest_tc, coldest_tc, second_coldest_tc, coldest_adjacent, valid_count, coverage_degraded, ' +
+  'validity, tc_deviation, tc_residual, swirl_deg, chamber_deviation, chamber_uncertainty, chamber_residual, ring_level, fit_sd, ' +
+  'worst_chamber, worst_likelihood, runner_up_chamber, runner_up_likelihood, worst_grade, findings';
+const ANALYSIS_FIELD_COUNT = 35;
+
+const lit = (s: string) => "'" + s.replace(/'/g, "''") + "'";
+const tsLit = (ms: number) => `'${isoMicros(ms)}'::timestamptz`;
+/** Milliseconds since 1970 of a timestamptz column, keeping microseconds as the fraction. */
+const msOf = (col: string) => `(extract(epoch from ${col}) * 1000)::float8`;
+const MONTH_MS = 31 * 86_400_000;
+
+const knownAnalysisMonths = new WeakMap<object, Set<string>>();
+
+function monthKey(ms: number): string {
+  const d = new Date(ms);
+  return `${d.getUTCFullYear()}-${d.getUTCMonth()}`;
+}
+
+/** Makes sure ring_analysis has monthly partitions for [fromMs, toMs] (remembered per pool). */
+export async function ensureAnalysisPartitions(client: pg.ClientBase, pool: object, fromMs: number, toMs: number): Promise<void> {
+  let known = knownAnalysisMonths.get(pool);
+  if (!known) knownAnalysisMonths.set(pool, (known = new Set()));
+  let missing = false;
+  for (let t = fromMs; ; t += MONTH_MS) {
+    const k = monthKey(Math.min(t, toMs));
+    if (!known.has(k)) missing = true;
+    if (t >= toMs) break;
+  }
+  if (!missing) return;
+  await client.query('SELECT ensure_analysis_partitions($1, $2)', [new Date(fromMs), new Date(toMs)]);
+  for (let t = fromMs; ; t += MONTH_MS) {
+    known.add(monthKey(Math.min(t, toMs)));
+    if (t >= toMs) break;
+  }
+}
+
+function decodeRings(buf: Buffer): RingColumns {
+  const r = new CopyBinaryReader(buf);
+  const ts: number[] = [];
+  const load: number[] = [];
+  const amb: number[] = [];
+  const kpa: number[] = [];
+  const speed: number[] = [];
+  const ex: Float64Array[] = [];
+  while (r.nextRow() > 0) {
+    ts.push(r.timestamptz());
+    load.push(r.float4());
+    amb.push(r.float4());
+    kpa.push(r.float4());
+    speed.push(r.float4());
+    ex.push(r.numberArray() ?? new Float64Array(0));
+  }
+  return {
+    count: ts.length,
+    tsMs: Float64Array.from(ts),
+    loadMw: Float64Array.from(load),
+    ambientC: Float64Array.from(amb),
+    ambientKPa: Float64Array.from(kpa),
+    speedPct: Float64Array.from(speed),
+    exhaustC: ex,
+  };
+}
+
+const RING_READ_COLUMNS = 'ts, load_mw, ambient_c, ambient_kpa, speed_pct, exhaust_c';
+
+/** Rings of a unit with ts > afterMs (all when null), oldest first, at most limit. */
+export async function readRingsAfter(client: pg.ClientBase, unitId: string, afterMs: number | null, limit: number): Promise<RingColumns> {
+  const where = afterMs === null ? '' : ` AND ts > ${tsLit(afterMs)}`;
+  const body = await copyOut(client, `SELECT ${RING_READ_COLUMNS} FROM rings WHERE unit_id = ${lit(unitId)}${where} ORDER BY ts LIMIT ${Math.max(0, Math.floor(limit))}`);
+  return decodeRings(body);
+}
+
+/** Rings of a unit with fromMs ≤ ts ≤ toMs, oldest first, at most limit. */
+export async function readRingsBetween(client: pg.ClientBase, unitId: string, fromMs: number, toMs: number, limit: number): Promise<RingColumns> {
+  const body = await copyOut(
+    client,
+    `SELECT ${RING_READ_COLUMNS} FROM rings WHERE unit_id = ${lit(unitId)} AND ts >= ${tsLit(fromMs)} AND ts <= ${tsLit(toMs)} ORDER BY ts LIMIT ${Math.max(0, Math.floor(limit))}`,
+  );
+  return decodeRings(body);
+}
+
+/** Encodes analysis rows for writeAnalysis. */
+export class AnalysisEncoder {
+  readonly writer = new CopyBinaryWriter();
+  firstMs = Infinity;
+  lastMs = -Infinity;
+
+  constructor(readonly unitId: string) {}
+
+  get count(): number {
+    return this.writer.rows;
+  }
+
+  add(a: AnalysisRow): void {
+    const w = this.writer;
+    w.row(ANALYSIS_FIELD_COUNT);
+    w.text(this.unitId);
+    w.timestamptz(a.tsMs);
+    w.int4(a.configVersion);
+    w.int4(a.baselineVersion);
+    w.float4(a.loadFraction);
+    w.bool(a.steady);
+    w.float4(a.spread);
+    w.float4(a.spreadExcl1);
+    w.float4(a.spreadExcl2);
+    w.float4(a.spreadLimit);
+    w.bool(a.limitFromBaseline);
+    w.float4(a.ringMean);
+    w.float4(a.robustCentre);
+    w.float4(a.stdDev);
+    w.int2(a.hottestTc);
+    w.int2(a.coldestTc);
+    w.int2(a.secondColdestTc);
+    w.bool(a.coldestAdjacent);
+    w.int2(a.validCount);
+    w.bool(a.coverageDegraded);
+    w.int2Array(a.validity);
+    w.float4Array(a.tcDeviation);
+    if (a.tcResidual) w.float4Array(a.tcResidual);
+    else w.null();
+    w.float4(a.swirlDeg);
+    w.float4Array(a.chamberDeviation);
+    w.float4Array(a.chamberUncertainty);
+    if (a.chamberResidual) w.float4Array(a.chamberResidual);
+    else w.null();
+    w.float4(a.ringLevel);
+    w.float4(a.fitSd);
+    w.int2(a.worstChamber);
+    w.float4(a.worstLikelihood);
+    w.int2(a.runnerUpChamber);
+    w.float4(a.runnerUpLikelihood);
+    w.int2(a.worstGrade);
+    w.jsonb(a.findingsJson);
+    if (a.tsMs < this.firstMs) this.firstMs = a.tsMs;
+    if (a.tsMs > this.lastMs) this.lastMs = a.tsMs;
+  }
+}
+
+/**
+ * Writes the encoded rows, replacing any analysis of the same unit in [firstMs, lastMs]
+ * (delete then COPY): writing the same span twice leaves one row per ring.
+ */
+export async function writeAnalysis(client: pg.ClientBase, pool: object, enc: AnalysisEncoder): Promise<void> {
+  if (enc.count === 0) return;
+  await ensureAnalysisPartitions(client, pool, enc.firstMs, enc.lastMs);
+  await client.query('DELETE FROM ring_analysis WHERE unit_id = $1 AND ts >= $2 AND ts <= $3', [enc.unitId, isoMicros(enc.firstMs), isoMicros(enc.lastMs)]);
+  await copyIn(client, 'ring_analysis', ANALYSIS_COLUMNS, enc.writer.finish());
+}
+
+// ---------------------------------------------------------------------------------------------
+// Progress, claims check and the batch log.
+
+export interface UnitProgress {
+  watermarkMs: number | null;
+  lateCheckedFromMs: number;
+  ringsAnalysed: number;
+  lateRingsAnalysed: number;
+}
+
+/**
+ * Inside the caller's transaction: locks the unit's claim row if this worker holds a live
+ * lease on it and returns the unit's progress; null when the lease is not (or no longer) ours.
+ */
+export async function lockOwnedUnit(client: pg.ClientBase, unitId: string, workerId: string): Promise<UnitProgress | null> {
+  const { rows } = await client.query(
+    `SELECT ${msOf('p.watermark_ts')} AS wm_ms, ${msOf('p.late_checked_from')} AS late_ms, p.rings_analysed, p.late_rings_analysed
+       FROM unit_claims c JOIN analysis_progress p USING (unit_id)
+      WHERE c.unit_id = $1 AND c.worker_id = $2 AND c.lease_until > now()
+      FOR UPDATE OF c`,
+    [unitId, workerId],
+  );
+  if (rows.length === 0) return null;
+  const r = rows[0];
+  return {
+    watermarkMs: r.wm_ms === null ? null : Number(r.wm_ms),
+    lateCheckedFromMs: Number(r.late_ms),
+    ringsAnalysed: Number(r.rings_analysed),
+    lateRingsAnalysed: Number(r.late_rings_analysed),
+  };
+}
+
+/** Inside the caller's transaction: locks the unit's progress row without a lease check (tools and tests). */
+export async function lockProgress(client: pg.ClientBase, unitId: string): Promise<UnitProgress | null> {
+  const { rows } = await client.query(
+    `SELECT ${msOf('watermark_ts')} AS wm_ms, ${msOf('late_checked_from')} AS late_ms, rings_analysed, late_rings_analysed
+       FROM analysis_progress WHERE unit_id = $1 FOR UPDATE`,
+    [unitId],
+  );
+  if (rows.length === 0) return null;
+  const r = rows[0];
+  return { watermarkMs: r.wm_ms === null ? null : Number(r.wm_ms), lateCheckedFromMs: Number(r.late_ms), ringsAnalysed: Number(r.rings_analysed), lateRingsAnalysed: Number(r.late_rings_analysed) };
+}
+
+/** Stored rings of a unit in [fromMs, toMs] that have no analysis yet. */
+export async function countUnanalysed(client: Queryable, unitId: string, fromMs: number, toMs: number): Promise<number> {
+  const { rows } = await client.query(
+    `SELECT count(*)::int AS n FROM rings r WHERE r.unit_id = $1 AND r.ts >= $2 AND r.ts <= $3
+        AND NOT EXISTS (SELECT 1 FROM ring_analysis a WHERE a.unit_id = r.unit_id AND a.ts = r.ts)`,
+    [unitId, isoMicros(fromMs), isoMicros(toMs)],
+  );
+  return rows[0].n as number;
+}
+
+/** Advances the watermark (never backwards) and the counters. */
+export async function advanceProgress(client: pg.ClientBase, unitId: string, watermarkMs: number | null, inOrder: number, late: number): Promise<void> {
+  await client.query(
+    `UPDATE analysis_progress
+        SET watermark_ts = CASE WHEN $2::timestamptz IS NULL THEN watermark_ts ELSE greatest(coalesce(watermark_ts, '-infinity'), $2::timestamptz) END,
+            rings_analysed = rings_analysed + $3, late_rings_analysed = late_rings_analysed + $4, updated_at = now()
+      WHERE unit_id = $1`,
+    [unitId, watermarkMs === null ? null : isoMicros(watermarkMs), inOrder, late],
+  );
+}
+
+export async function logBatch(client: pg.ClientBase, b: { unitId: string; workerId: string; kind: 'in_order' | 'late' | 'rerun'; fromMs: number; toMs: number; rings: number }): Promise<void> {
+  await client.query(`INSERT INTO analysis_batches (unit_id, worker_id, kind, from_ts, to_ts, rings) VALUES ($1, $2, $3, $4, $5, $6)`, [
+    b.unitId,
+    b.workerId,
+    b.kind,
+    isoMicros(b.fromMs),
+    isoMicros(b.toMs),
+    b.rings,
+  ]);
+}
+
+/**
+ * The instant before which every ring transaction has finished: the start of the oldest open
+ * transaction on this database (a ring's received_at is its transaction's start), or now.
+ * Read before searching, so rings that commit later are received at or after it.
+ */
+export async function receivedHorizon(q: Queryable): Promise<Date> {
+  const { rows } = await q.query(
+    `SELECT least(clock_timestamp(), (SELECT min(xact_start) FROM pg_stat_activity WHERE datname = current_database() AND xact_start IS NOT NULL AND pid <> pg_backend_pid())) AS h`,
+  );
+  return rows[0].h as Date;
+}
+
+/** Makes sure every unit has a progress row; late_checked_from starts at horizon. */
+export async function ensureProgressRows(q: Queryable, unitIds: string[], horizon: Date): Promise<void> {
+  if (unitIds.length === 0) return;
+  await q.query(
+    `INSERT INTO analysis_progress (unit_id, late_checked_from) SELECT u, $2 FROM unnest($1::text[]) AS u
+       WHERE EXISTS (SELECT 1 FROM units WHERE id = u) ON CONFLICT (unit_id) DO NOTHING`,
+    [unitIds, horizon],
+  );
+}
+
+/**
+ * Late rings: stored rings of the given units, received at or after the unit's
+ * late_checked_from, at or before its watermark, without analysis. Per unit, their times
+ * (oldest first, at most perUnitLimit).
+ */
+export async function findLateRings(q: Queryable, unitIds: string[], perUnitLimit: number): Promise<Map<string, number[]>> {
+  const out = new Map<string, number[]>();
+  if (unitIds.length === 0) return out;
+  const { rows } = await q.query(
+    `WITH u AS (SELECT unit_id, late_checked_from AS since, watermark_ts AS wm FROM analysis_progress
+                 WHERE unit_id = ANY($1::text[]) AND watermark_ts IS NOT NULL),
+          lo AS (SELECT min(since) AS since FROM u)
+     SELECT r.unit_id, array_agg(${msOf('r.ts')} ORDER BY r.ts) AS ts
+       FROM rings r JOIN u ON u.unit_id = r.unit_id
+      WHERE r.received_at >= (SELECT since FROM lo) AND r.received_at >= u.since AND r.ts <= u.wm
+        AND NOT EXISTS (SELECT 1 FROM ring_analysis a WHERE a.unit_id = r.unit_id AND a.ts = r.ts)
+      GROUP BY r.unit_id`,
+    [unitIds],
+  );
+  for (const r of rows) {
+    const ts = (r.ts as (string | number)[]).map(Number);
+    out.set(r.unit_id, ts.slice(0, perUnitLimit));
+  }
+  return out;
+}
+
+/** Moves the late search start of these units forward to horizon. */
+export async function setLateCheckedFrom(q: Queryable, unitIds: string[], horizon: Date): Promise<void> {
+  if (unitIds.length === 0) return;
+  await q.query(`UPDATE analysis_progress SET late_checked_from = greatest(late_checked_from, $2) WHERE unit_id = ANY($1::text[])`, [unitIds, horizon]);
+}
+
+// ---------------------------------------------------------------------------------------------
+// Reading analysis back (state rebuild, rollup recompute, baselines).
+
+/** Stored analysis in columns, oldest first. */
+export interface AnalysisColumns {
+  count: number;
+  tsMs: Float64Array;
+  loadFraction: Float64Array;
+  steady: Uint8Array;
+  spread: Float64Array;
+  spreadExcl1: Float64Array;
+  spreadExcl2: Float64Array;
+  ringMean: Float64Array;
+  validity: Float64Array[];
+  tcDeviation: Float64Array[];
+  tcResidual: (Float64Array | null)[];
+  chamberDeviation: Float64Array[];
+  chamberResidual: (Float64Array | null)[];
+}
+
+const ANALYSIS_READ_COLUMNS = 'ts, load_fraction, steady, spread, spread_excl1, spread_excl2, ring_mean, validity, tc_deviation, tc_residual, chamber_deviation, chamber_residual';
+
+function decodeAnalysis(buf: Buffer): AnalysisColumns {
+  const r = new CopyBinaryReader(buf);
+  const ts: number[] = [];
+  const load: number[] = [];
+  const steady: number[] = [];
+  const spread: number[] = [];
+  const e1: number[] = [];
+  const e2: number[] = [];
+  const mean: number[] = [];
+  const validity: Float64Array[] = [];
+  const tcDev: Float64Array[] = [];
+  const tcRes: (Float64Array | null)[] = [];
+  const chDev: Float64Array[] = [];
+  const chRes: (Float64Array | null)[] = [];
+  while (r.nextRow() > 0) {
+    ts.push(r.timestamptz());
+    load.push(r.float4());
+    steady.push(r.bool() ? 1 : 0);
+    spread.push(r.float4());
+    e1.push(r.float4());
+    e2.push(r.float4());
+    mean.push(r.float4());
+    validity.push(r.numberArray() ?? new Float64Array(0));
+    tcDev.push(r.numberArray() ?? new Float64Array(0));
+    tcRes.push(r.numberArray());
+    chDev.push(r.numberArray() ?? new Float64Array(0));
+    chRes.push(r.numberArray());
+  }
+  return {
+    count: ts.length,
+    tsMs: Float64Array.from(ts),
+    loadFraction: Float64Array.from(load),
+    steady: Uint8Array.from(steady),
+    spread: Float64Array.from(spread),
+    spreadExcl1: Float64Array.from(e1),
+    spreadExcl2: Float64Array.from(e2),
+    ringMean: Float64Array.from(mean),
+    validity,
+    tcDeviation: tcDev,
+    tcResidual: tcRes,
+    chamberDeviation: chDev,
+    chamberResidual: chRes,
+  };
+}
+
+/** Analysis of a unit with fromMs ≤ ts < toMs, oldest first (steadyOnly: steady rings only). */
+export async function readAnalysis(
+  client: pg.ClientBase,
+  unitId: string,
+  fromMs: number,
+  toMs: number,
+  opts: { steadyOnly?: boolean; limit?: number; sampleEvery?: number } = {},
+): Promise<AnalysisColumns> {
+  const k = Math.floor(opts.sampleEvery ?? 1);
+  const steady = (opts.steadyOnly ? ' AND steady' : '') + (k > 1 ? ` AND abs(hashtext(ts::text)) % ${k} = 0` : '');
+  const limit = opts.limit ? ` LIMIT ${Math.floor(opts.limit)}` : '';
+  const body = await copyOut(
+    client,
+    `SELECT ${ANALYSIS_READ_COLUMNS} FROM ring_analysis WHERE unit_id = ${lit(unitId)} AND ts >= ${tsLit(fromMs)} AND ts < ${tsLit(toMs)}${steady} ORDER BY ts${limit}`,
+  );
+  return decodeAnalysis(body);
+}
+
+/** Steady analysed rings of a unit in [fromMs, toMs). */
+export async function countSteady(q: Queryable, unitId: string, fromMs: number, toMs: number): Promise<number> {
+  const { rows } = await q.query(`SELECT count(*)::int AS n FROM ring_analysis WHERE unit_id = $1 AND ts >= $2 AND ts < $3 AND steady`, [unitId, isoMicros(fromMs), isoMicros(toMs)]);
+  return rows[0].n as number;
+}
+
+/** The last `count` analysed rings at or before atMs, oldest first. */
+export async function readLastAnalysis(client: pg.ClientBase, unitId: string, atMs: number, count: number): Promise<AnalysisColumns> {
+  const body = await copyOut(
+    client,
+    `SELECT * FROM (SELECT ${ANALYSIS_READ_COLUMNS} FROM ring_analysis WHERE unit_id = ${lit(unitId)} AND ts <= ${tsLit(atMs)} ORDER BY ts DESC LIMIT ${Math.floor(count)}) x ORDER BY ts`,
+  );
+  return decodeAnalysis(body);
+}
+
+/** Spread of the last steady analysed ring at or before atMs, or null. */
+export async function lastSteadySpread(client: pg.ClientBase, unitId: string, atMs: number): Promise<number | null> {
+  const { rows } = await client.query(`SELECT spread FROM ring_analysis WHERE unit_id = $1 AND ts <= $2 AND steady ORDER BY ts DESC LIMIT 1`, [unitId, isoMicros(atMs)]);
+  return rows.length && rows[0].spread !== null ? Number(rows[0].spread) : null;
+}
+
+// ---------------------------------------------------------------------------------------------
+// Rollups.
+
+export type RollupPeriod = 'hour' | 'day';
+
+/** One rollup row: arrays with one element per subject (index 0 = chamber / thermocouple 1). */
+export interface RollupRow {
+  period: RollupPeriod;
+  metric: string;
+  bucketMs: number;
+  n: number[];
+  sum: number[];
+  sumsq: number[];
+  min: number[];
+  max: number[];
+}
+
+function rowFromDb(r: Record<string, unknown>): RollupRow {
+  const nums = (a: unknown) => (a as (number | string | null)[]).map((v) => (v === null ? NaN : Number(v)));
+  return {
+    period: r.period as RollupPeriod,
+    metric: r.metric as string,
+    bucketMs: (r.bucket as Date).getTime(),
+    n: nums(r.n),
+    sum: nums(r.sum),
+    sumsq: nums(r.sumsq),
+    min: nums(r.min),
+    max: nums(r.max),
+  };
+}
+
+/** Rollup rows of a unit for one period and the given bucket starts (any metric). */
+export async function readRollupBuckets(q: Queryable, unitId: string, period: RollupPeriod, bucketsMs: number[]): Promise<RollupRow[]> {
+  if (bucketsMs.length === 0) return [];
+  const { rows } = await q.query(
+    `SELECT period, metric, bucket, n, sum, sumsq, min, max FROM analysis_rollups WHERE unit_id = $1 AND period = $2 AND bucket = ANY($3::timestamptz[])`,
+    [unitId, period, bucketsMs.map((b) => new Date(b))],
+  );
+  return rows.map(rowFromDb);
+}
+
+/** Rollup rows of a unit for one period with fromMs ≤ bucket < toMs, optionally one metric, oldest first. */
+export async function readRollups(q: Queryable, unitId: string, period: RollupPeriod, fromMs: number, toMs: number, metric?: string): Promise<RollupRow[]> {
+  const { rows } = await q.query(
+    `SELECT period, metric, bucket, n, sum, sumsq, min, max FROM analysis_rollups
+      WHERE unit_id = $1 AND period = $2 AND bucket >= $3 AND bucket < $4 AND ($5::text IS NULL OR metric = $5) ORDER BY bucket, metric`,
+    [unitId, period, new Date(fromMs), new Date(toMs), metric ?? null],
+  );
+  return rows.map(rowFromDb);
+}
+
+const finiteOrNull = (v: number) => (Number.isFinite(v) ? v : null);
+
+/** Writes rollup rows whole (insert or replace). */
+export async function writeRollups(q: Queryable, unitId: string, rows: RollupRow[]): Promise<void> {
+  if (rows.length === 0) return;
+  const payload = JSON.stringify(
+    rows.map((r) => ({
+      period: r.period,
+      metric: r.metric,
+      bucket: new Date(r.bucketMs).toISOString(),
+      n: r.n,
+      sum: r.sum.map(finiteOrNull),
+      sumsq: r.sumsq.map(finiteOrNull),
+      min: r.min.map(finiteOrNull),
+      max: r.max.map(finiteOrNull),
+    })),
+  );
+  await q.query(
+    `INSERT INTO analysis_rollups (unit_id, period, metric, bucket, n, sum, sumsq, min, max)
+     SELECT $1, x.period, x.metric, x.bucket, x.n, x.sum, x.sumsq, x.min, x.max
+       FROM jsonb_to_recordset($2::jsonb) AS x(period text, metric text, bucket timestamptz, n integer[], sum double precision[], sumsq double precision[], min real[], max real[])
+     ON CONFLICT (unit_id, period, metric, bucket) DO UPDATE
+       SET n = excluded.n, sum = excluded.sum, sumsq = excluded.sumsq, min = excluded.min, max = excluded.max`,
+    [unitId, payload],
+  );
+}
+
+/** Removes the rollup rows of these buckets (before they are recomputed). */
+export async function deleteRollupBuckets(q: Queryable, unitId: string, period: RollupPeriod, bucketsMs: number[]): Promise<void> {
+  if (bucketsMs.length === 0) return;
+  await q.query(`DELETE FROM analysis_rollups WHERE unit_id = $1 AND period = $2 AND bucket = ANY($3::timestamptz[])`, [unitId, period, bucketsMs.map((b) => new Date(b))]);
+}
+
+// ---------------------------------------------------------------------------------------------
+// Status and progress for people.
+
+export interface LatestAnalysis {
+  ts: Date;
+  configVersion: number;
+  baselineVersion: number | null;
+  loadFraction: number | null;
+  steady: boolean;
+  spread: number | null;
+  spreadExcl1: number | null;
+  spreadExcl2: number | null;
+  spreadLimit: number | null;
+  limitFromBaseline: boolean;
+  ringMean: number | null;
+  hottestTc: number | null;
+  coldestTc: number | null;
+  secondColdestTc: number | null;
+  coldestAdjacent: boolean;
+  validCount: number;
+  coverageDegraded: boolean;
+  validity: number[];
+  swirlDeg: number | null;
+  chamberDeviation: (number | null)[];
+  chamberUncertainty: (number | null)[];
+  chamberResidual: (number | null)[] | null;
+  worstChamber: number | null;
+  worstLikelihood: number | null;
+  runnerUpChamber: number | null;
+  runnerUpLikelihood: number | null;
+  findings: unknown;
+}
+
+/** The latest analysed ring of a unit, or null. */
+export async function latestAnalysis(q: Queryable, unitId: string): Promise<LatestAnalysis | null> {
+  const { rows } = await q.query(`SELECT * FROM ring_analysis WHERE unit_id = $1 ORDER BY ts DESC LIMIT 1`, [unitId]);
+  if (rows.length === 0) return null;
+  const r = rows[0];
+  const n = (v: unknown) => (v === null || v === undefined ? null : Number(v));
+  return {
+    ts: r.ts,
+    configVersion: r.config_version,
+    baselineVersion: r.baseline_version,
+    loadFraction: n(r.load_fraction),
+    steady: r.steady,
+    spread: n(r.spread),
+    spreadExcl1: n(r.spread_excl1),
+    spreadExcl2: n(r.spread_excl2),
+    spreadLimit: n(r.spread_limit),
+    limitFromBaseline: r.limit_from_baseline,
+    ringMean: n(r.ring_mean),
+    hottestTc: r.hottest_tc,
+    coldestTc: r.coldest_tc,
+    secondColdestTc: r.second_coldest_tc,
+    coldestAdjacent: r.coldest_adjacent,
+    validCount: r.valid_count,
+    coverageDegraded: r.coverage_degraded,
+    validity: r.validity,
+    swirlDeg: n(r.swirl_deg),
+    chamberDeviation: r.chamber_deviation,
+    chamberUncertainty: r.chamber_uncertainty,
+    chamberResidual: r.chamber_residual,
+    worstChamber: r.worst_chamber,
+    worstLikelihood: n(r.worst_likelihood),
+    runnerUpChamber: r.runner_up_chamber,
+    runnerUpLikelihood: n(r.runner_up_likelihood),
+    findings: r.findings,
+  };
+}
+
+export interface AnalysisProgressInfo {
+  lastRingTs: Date | null;
+  ringsStored: number;
+  ringsAnalysed: number;
+  watermarkTs: Date | null;
+  ringsAnalysedInOrder: number;
+  lateRingsAnalysed: number;
+  workerId: string | null;
+  leaseUntil: Date | null;
+}
+
+/** How far analysis has come for a unit: rings stored and analysed, the watermark, the claim. */
+export async function analysisProgress(q: Queryable, unitId: string): Promise<AnalysisProgressInfo> {
+  const { rows } = await q.query(
+    `SELECT (SELECT max(ts) FROM rings WHERE unit_id = $1) AS last_ring_ts,
+            (SELECT count(*) FROM rings WHERE unit_id = $1)::bigint AS stored,
+            (SELECT count(*) FROM ring_analysis WHERE unit_id = $1)::bigint AS analysed,
+            p.watermark_ts, p.rings_analysed, p.late_rings_analysed, c.worker_id, c.lease_until
+       FROM (SELECT 1) one
+       LEFT JOIN analysis_progress p ON p.unit_id = $1
+       LEFT JOIN unit_claims c ON c.unit_id = $1`,
+    [unitId],
+  );
+  const r = rows[0];
+  const leaseOk = r.lease_until instanceof Date && Number.isFinite(r.lease_until.getTime());
+  return {
+    lastRingTs: r.last_ring_ts ?? null,
+    ringsStored: Number(r.stored),
+    ringsAnalysed: Number(r.analysed),
+    watermarkTs: r.watermark_ts ?? null,
+    ringsAnalysedInOrder: Number(r.rings_analysed ?? 0),
+    lateRingsAnalysed: Number(r.late_rings_analysed ?? 0),
+    workerId: r.worker_id ?? null,
+    leaseUntil: leaseOk ? r.lease_until : null,
+  };
+}
+
+/** Total rings stored and analysed, and committed in-order batch rings, over all units (for tests and benchmarks). */
+export async function analysisTotals(q: Queryable): Promise<{ stored: number; analysed: number; inOrderBatchRings: number; lateBatchRings: number; inOrderProgress: number }> {
+  const { rows } = await q.query(
+    `SELECT (SELECT count(*) FROM rings)::bigint AS stored, (SELECT count(*) FROM ring_analysis)::bigint AS analysed,
+            (SELECT coalesce(sum(rings), 0) FROM analysis_batches WHERE kind = 'in_order')::bigint AS in_order,
+            (SELECT coalesce(sum(rings), 0) FROM analysis_batches WHERE kind = 'late')::bigint AS late,
+            (SELECT coalesce(sum(rings_analysed), 0) FROM analysis_progress)::bigint AS progress`,
+  );
+  const r = rows[0];
+  return { stored: Number(r.stored), analysed: Number(r.analysed), inOrderBatchRings: Number(r.in_order), lateBatchRings: Number(r.late), inOrderProgress: Number(r.progress) };
+}

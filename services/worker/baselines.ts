@@ -1,0 +1,80 @@
+/**
+ * Fitting baselines: on request over a window a person chooses (POST /v1/units/:unitId/baselines),
+ * and automatically once a unit without a baseline has `baselineAutoDays` of steady data (the
+ * window is the first that many days from its first steady ring). Only steady rings enter;
+ * load bins with fewer than `baselineMinBinCount` rings are "no baseline here". Each fit is a
+ * new version; nothing already analysed is changed.
+ */
+import { defaultBaselineOptions, fitUnitBaseline, type BaselineOptions, type BaselineSample } from '../core/baseline.ts';
+import type { WorkerConfig } from '../db/config.ts';
+import { countSteady, readAnalysis } from '../db/analysis.ts';
+import { firstSteadyMs, insertBaseline, latestBaselineVersion, type BaselineRecord } from '../db/baselines.ts';
+import { withTransaction, type Pool } from '../db/pool.ts';
+import { isoMicros } from '../db/pg-binary.ts';
+
+/** Most steady rings read for one fit; beyond it an even sample of them is taken. */
+export const MAX_FIT_SAMPLES = 200_000;
+
+export class BaselineFitError extends Error {}
+
+export function baselineOptions(settings: Pick<WorkerConfig, 'baselineBinWidth' | 'baselineMinBinCount'>): BaselineOptions {
+  return { ...defaultBaselineOptions, binWidth: settings.baselineBinWidth, minCount: settings.baselineMinBinCount };
+}
+
+/**
+ * Fits and stores a new baseline version from the steady rings in [fromMs, toMs). Throws a
+ * BaselineFitError naming the problem when no load bin holds enough steady rings.
+ */
+export async function fitBaseline(pool: Pool, unitId: string, fromMs: number, toMs: number, by: string, settings: WorkerConfig, nowMs = Date.now()): Promise<BaselineRecord> {
+  const options = baselineOptions(settings);
+  const total = await countSteady(pool, unitId, fromMs, toMs);
+  if (total === 0) throw new BaselineFitError(`unit ${unitId} has no steady analysed rings between ${isoMicros(fromMs)} and ${isoMicros(toMs)}`);
+  const sampleEvery = Math.ceil(total / MAX_FIT_SAMPLES);
+  const client = await pool.connect();
+  let samples: BaselineSample[];
+  try {
+    const c = await readAnalysis(client, unitId, fromMs, toMs, { steadyOnly: true, sampleEvery });
+    samples = [];
+    for (let i = 0; i < c.count; i++) {
+      samples.push({
+        loadFraction: c.loadFraction[i],
+        ringMeanDegC: c.ringMean[i],
+        spreadDegC: c.spread[i],
+        thermocoupleDeviationDegC: c.tcDeviation[i],
+        chamberDeviationDegC: c.chamberDeviation[i],
+      });
+    }
+  } finally {
+    client.release();
+  }
+  const window = { from: new Date(fromMs).toISOString(), to: new Date(toMs).toISOString() };
+  const probe = fitUnitBaseline(samples, { version: 0, window, fittedAt: new Date(nowMs).toISOString(), fittedBy: by }, options);
+  const fitted = probe.spread.bins.filter((b) => b.median !== null);
+  if (fitted.length === 0) {
+    const best = Math.max(0, ...probe.spread.bins.map((b) => b.count));
+    throw new BaselineFitError(
+      `no load bin between ${window.from} and ${window.to} holds ${options.minCount} steady rings (the fullest holds ${best}); choose a longer window`,
+    );
+  }
+  return withTransaction(pool, (c) => insertBaseline(c, unitId, (version) => ({ ...probe, version })));
+}
+
+/**
+ * The automatic first fit: when the unit has no baseline and its steady data reach from its
+ * first steady ring to at least baselineAutoDays later (up to the watermark), fits the window
+ * of those first days. Returns the new version, or null when it is not time yet.
+ */
+export async function maybeFitFirstBaseline(pool: Pool, unitId: string, watermarkMs: number | null, settings: WorkerConfig): Promise<BaselineRecord | null> {
+  if (watermarkMs === null) return null;
+  if ((await latestBaselineVersion(pool, unitId)) > 0) return null;
+  const first = await firstSteadyMs(pool, unitId);
+  if (first === null) return null;
+  const to = first + settings.baselineAutoDays * 86_400_000;
+  if (watermarkMs < to) return null;
+  try {
+    return await fitBaseline(pool, unitId, first, to, 'automatic', settings);
+  } catch (err) {
+    if (err instanceof BaselineFitError) return null;
+    throw err;
+  }
+}

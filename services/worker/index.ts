@@ -1,0 +1,260 @@
+/**
+ * The worker process: claims a fair share of the fleet's units (leases renewed while it runs,
+ * given back when it stops or holds more than its share), analyses each held unit's new rings
+ * as soon as ingest says they are committed (LISTEN) and on a node-cron sweep as a safety net,
+ * finds and analyses late rings, fits a unit's first baseline when it has enough steady data,
+ * computes drift nightly, and runs the alert jobs (webhook delivery, shelf expiry, silent units).
+ */
+import { hostname } from 'node:os';
+import { randomBytes } from 'node:crypto';
+import cron from 'node-cron';
+import { defaultThresholds } from '../core/findings.ts';
+import type { Config } from '../db/config.ts';
+import type { Logger } from '../db/logger.ts';
+import type { Pool } from '../db/pool.ts';
+import { ensureProgressRows, findLateRings, receivedHorizon, setLateCheckedFrom } from '../db/analysis.ts';
+import { claimUnits, ensureClaimRows, heartbeat, liveWorkerCount, releaseUnits, renewLeases, retireWorker } from '../db/claims.ts';
+import { startAlertJobs } from './alert-jobs.ts';
+import { deadbandThresholds, loadAlertSettings } from './alerts.ts';
+import { maybeFitFirstBaseline } from './baselines.ts';
+import { runDrift, type DriftRunResult } from './drift.ts';
+import { startListener } from './listener.ts';
+import { analyseNextBatch, invalidateInputs, memoryOf, reanalyseSpan, spansOf, type PipelineContext } from './pipeline.ts';
+
+export interface WorkerDeps {
+  pool: Pool;
+  logger: Logger;
+  config: Config;
+  /** Defaults to host-pid-random. */
+  workerId?: string;
+}
+
+export interface Worker {
+  readonly workerId: string;
+  /** Units this worker holds now. */
+  units(): string[];
+  /** Runs the safety-net sweep now (claims, late rings, every held unit). */
+  sweep(): Promise<void>;
+  /** Runs the nightly drift computation now for the held units, as of asOfMs. */
+  runDrift(asOfMs?: number): Promise<DriftRunResult[]>;
+  /** Resolves when no unit is waiting or being analysed. */
+  settled(): Promise<void>;
+  stop(): Promise<void>;
+}
+
+/** How often a unit without a baseline is checked for enough steady data. */
+const AUTO_FIT_CHECK_MS = 5 * 60_000;
+const RETRY_MS = 1_000;
+
+export async function startWorker(deps: WorkerDeps): Promise<Worker> {
+  const { pool, config } = deps;
+  const s = config.worker;
+  const workerId = deps.workerId ?? s.id ?? `${hostname()}-${process.pid}-${randomBytes(3).toString('hex')}`;
+  const log = deps.logger.child({ component: 'worker', workerId });
+  const alertSettings = loadAlertSettings(config);
+  const pc: PipelineContext = {
+    pool,
+    logger: log,
+    config,
+    workerId,
+    alertSettings,
+    raise: defaultThresholds,
+    hold: deadbandThresholds(defaultThresholds, alertSettings),
+    memory: new Map(),
+  };
+
+  const owned = new Set<string>();
+  const dirty = new Set<string>();
+  const running = new Map<string, Promise<void>>();
+  const late = new Map<string, { times: number[]; horizon: Date }>();
+  const waiters: Array<() => void> = [];
+  let stopped = false;
+
+  const checkSettled = () => {
+    if (running.size === 0 && dirty.size === 0) while (waiters.length) (waiters.shift() as () => void)();
+  };
+
+  const mark = (ids: Iterable<string>) => {
+    for (const id of ids) if (owned.has(id) && !dirty.has(id)) dirty.add(id);
+    pump();
+  };
+
+  function pump(): void {
+    if (stopped) return;
+    for (const id of dirty) {
+      if (running.size >= s.concurrency) break;
+      if (running.has(id)) continue;
+      dirty.delete(id);
+      running.set(
+        id,
+        runUnit(id).finally(() => {
+          running.delete(id);
+          pump();
+          checkSettled();
+        }),
+      );
+    }
+    checkSettled();
+  }
+
+  async function runUnit(unitId: string): Promise<void> {
+    try {
+      const work = late.get(unitId);
+      if (work) {
+        late.delete(unitId);
+        for (const [a, b] of spansOf(work.times)) {
+          const n = await reanalyseSpan(pc, unitId, a, b, 'late');
+          if (n === null) {
+            owned.delete(unitId);
+            return;
+          }
+          log.info({ unitId, from: new Date(a).toISOString(), to: new Date(b).toISOString(), rings: n }, 'late rings analysed');
+        }
+        await setLateCheckedFrom(pool, [unitId], work.horizon);
+      }
+      const r = await analyseNextBatch(pc, unitId);
+      if (r.status === 'lost') {
+        owned.delete(unitId);
+        log.info({ unitId }, 'unit no longer held');
+        return;
+      }
+      if (r.rings > 0) log.debug({ unitId, rings: r.rings }, 'rings analysed');
+      if (r.status === 'more') {
+        dirty.add(unitId);
+        return;
+      }
+      const mem = memoryOf(pc, unitId);
+      if (mem.baselineVersion === null && Date.now() - mem.lastAutoFitCheck > AUTO_FIT_CHECK_MS) {
+        mem.lastAutoFitCheck = Date.now();
+        const fitted = await maybeFitFirstBaseline(pool, unitId, mem.watermarkMs, s);
+        if (fitted) {
+          invalidateInputs(pc, unitId);
+          log.info({ unitId, baselineVersion: fitted.version, from: fitted.windowFrom, to: fitted.windowTo }, 'first baseline fitted');
+        }
+      }
+    } catch (err) {
+      log.error({ unitId, err: (err as Error).message }, 'analysis round failed; retrying');
+      setTimeout(() => mark([unitId]), RETRY_MS).unref();
+    }
+  }
+
+  let cycle: Promise<void> | null = null;
+  /** One claim cycle at a time (the timer and the sweep both ask for one). */
+  function claimCycle(): Promise<void> {
+    cycle ??= claimCycleOnce().finally(() => {
+      cycle = null;
+    });
+    return cycle;
+  }
+
+  async function claimCycleOnce(): Promise<void> {
+    await heartbeat(pool, workerId, hostname(), process.pid);
+    const all = await ensureClaimRows(pool);
+    const held = new Set(await renewLeases(pool, workerId, s.leaseS));
+    for (const id of [...owned]) {
+      if (!held.has(id)) {
+        owned.delete(id);
+        pc.memory.delete(id);
+        log.warn({ unitId: id }, 'lease lost');
+      }
+    }
+    for (const id of held) owned.add(id);
+    const live = await liveWorkerCount(pool, s.leaseS);
+    const share = s.maxUnits > 0 ? s.maxUnits : Math.ceil(all.length / live);
+    if (owned.size > share) {
+      const idle = [...owned].filter((id) => !running.has(id) && !dirty.has(id));
+      const busy = [...owned].filter((id) => running.has(id) || dirty.has(id));
+      const give = [...idle, ...busy].slice(0, owned.size - share);
+      await releaseUnits(pool, workerId, give);
+      for (const id of give) {
+        owned.delete(id);
+        dirty.delete(id);
+        pc.memory.delete(id);
+      }
+      log.info({ units: give }, 'units given back (over fair share)');
+    } else if (owned.size < share) {
+      const got = await claimUnits(pool, workerId, share - owned.size, s.leaseS);
+      if (got.length) {
+        await ensureProgressRows(pool, got, await receivedHorizon(pool));
+        for (const id of got) owned.add(id);
+        log.info({ units: got }, 'units claimed');
+        mark(got);
+      }
+    }
+  }
+
+  async function sweep(): Promise<void> {
+    if (stopped) return;
+    await claimCycle();
+    const ids = [...owned];
+    const horizon = await receivedHorizon(pool);
+    const found = await findLateRings(pool, ids, 1_000_000);
+    await setLateCheckedFrom(pool, ids.filter((id) => !found.has(id)), horizon);
+    for (const [id, times] of found) {
+      late.set(id, { times, horizon });
+      log.info({ unitId: id, rings: times.length }, 'late rings found');
+    }
+    mark(ids);
+  }
+
+  const safely = (what: string, fn: () => Promise<unknown>) => async () => {
+    if (stopped) return;
+    try {
+      await fn();
+    } catch (err) {
+      log.error({ err: (err as Error).message }, `${what} failed`);
+    }
+  };
+
+  // Claim loop: renew leases and claim free units well within the lease.
+  let claimTimer: NodeJS.Timeout | null = null;
+  const claimLoop = async () => {
+    await safely('claim cycle', claimCycle)();
+    if (!stopped) claimTimer = setTimeout(claimLoop, s.claimEveryS * 1000);
+  };
+  await claimCycle();
+  claimTimer = setTimeout(claimLoop, s.claimEveryS * 1000);
+
+  const listener = startListener(pool, log, (units) => mark(units === '*' ? owned : units));
+  const sweepTask = cron.schedule(s.sweepCron, safely('sweep', sweep), { noOverlap: true, name: `sweep-${workerId}` });
+  const driftTask = cron.schedule(
+    s.driftCron,
+    safely('drift', async () => {
+      await runDrift({ pool, logger: log, config }, [...owned]);
+      for (const id of owned) invalidateInputs(pc, id);
+    }),
+    { noOverlap: true, timezone: 'UTC', name: `drift-${workerId}` },
+  );
+  const alertJobs = startAlertJobs({ pool, logger: deps.logger, config });
+  void safely('sweep', sweep)();
+  log.info({ units: [...owned], leaseS: s.leaseS, batchRings: s.batchRings }, 'worker started');
+
+  return {
+    workerId,
+    units: () => [...owned].sort(),
+    sweep,
+    async runDrift(asOfMs?: number) {
+      const r = await runDrift({ pool, logger: log, config }, [...owned], asOfMs);
+      for (const id of owned) invalidateInputs(pc, id);
+      return r;
+    },
+    settled() {
+      return new Promise<void>((resolve) => {
+        waiters.push(resolve);
+        checkSettled();
+      });
+    },
+    async stop() {
+      if (stopped) return;
+      stopped = true;
+      await sweepTask.destroy();
+      await driftTask.destroy();
+      if (claimTimer) clearTimeout(claimTimer);
+      await listener.stop();
+      await alertJobs.stop();
+      await Promise.allSettled([...running.values()]);
+      await retireWorker(pool, workerId).catch((err) => log.warn({ err: (err as Error).message }, 'could not give units back'));
+      log.info('worker stopped');
+    },
+  };
+}

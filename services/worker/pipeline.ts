@@ -1,0 +1,260 @@
+/**
+ * The analysis pipeline of one unit. A round is one transaction: check the lease (and lock the
+ * claim row), read the next rings after the watermark (binary COPY), analyse them in time
+ * order, write their analysis (delete + COPY of the span), merge their rollups, advance the
+ * watermark, log the batch and hand the alert observations to the alert rules, then COMMIT:
+ * all of it or none, so a crash never loses or repeats a ring. Late rings (at or before the
+ * watermark, without analysis) are analysed by re-running their span with the memory of the
+ * rings before it, and the hours and days they touch are recomputed from stored analysis.
+ */
+import type { Finding, Thresholds } from '../core/findings.ts';
+import type { Config } from '../db/config.ts';
+import type { Logger } from '../db/logger.ts';
+import { withTransaction, type Pool } from '../db/pool.ts';
+import {
+  advanceProgress,
+  AnalysisEncoder,
+  countUnanalysed,
+  deleteRollupBuckets,
+  lastSteadySpread,
+  lockOwnedUnit,
+  lockProgress,
+  logBatch,
+  readAnalysis,
+  readLastAnalysis,
+  readRingsAfter,
+  readRingsBetween,
+  readRollupBuckets,
+  readRollups,
+  writeAnalysis,
+  writeRollups,
+  type UnitProgress,
+} from '../db/analysis.ts';
+import { latestBaseline } from '../db/baselines.ts';
+import { driftStateStamp, readDriftStates } from '../db/drift.ts';
+import { createUnitsRepository } from '../db/units.ts';
+import type { ChamberDriftInput } from '../core/findings.ts';
+import { applyAlertObservations, type AlertSettings } from './alerts.ts';
+import { bucketOf, DAY_MS, HOUR_MS, RollupAccumulator } from './rollups.ts';
+import { UnitAnalyser, type AnalyserInputs } from './unit-analyser.ts';
+
+export interface PipelineContext {
+  pool: Pool;
+  logger: Logger;
+  config: Config;
+  /** null: no lease check (tools and tests that run without a claiming worker). */
+  workerId: string | null;
+  alertSettings: AlertSettings;
+  raise: Thresholds;
+  hold: Thresholds;
+  /** Per-unit memory kept between rounds. */
+  memory: Map<string, UnitMemory>;
+}
+
+export interface UnitMemory {
+  analyser: UnitAnalyser | null;
+  /** The watermark the analyser's memory is as of. */
+  watermarkMs: number | null;
+  inputs: AnalyserInputs | null;
+  inputsLoadedAt: number;
+  baselineVersion: number | null;
+  driftStamp: number | null;
+  lastAutoFitCheck: number;
+}
+
+/** Inputs (configuration versions, baseline, drift) are re-read at most this often. */
+const INPUTS_TTL_MS = 30_000;
+const NO_CLAIM = 'no lease check';
+
+export function memoryOf(pc: PipelineContext, unitId: string): UnitMemory {
+  let m = pc.memory.get(unitId);
+  if (!m) pc.memory.set(unitId, (m = { analyser: null, watermarkMs: null, inputs: null, inputsLoadedAt: 0, baselineVersion: null, driftStamp: null, lastAutoFitCheck: 0 }));
+  return m;
+}
+
+/** Forgets the unit's inputs so the next round re-reads them (after a baseline fit or drift run). */
+export function invalidateInputs(pc: PipelineContext, unitId: string): void {
+  const m = pc.memory.get(unitId);
+  if (m) m.inputsLoadedAt = 0;
+}
+
+async function loadInputs(pc: PipelineContext, unitId: string, mem: UnitMemory): Promise<AnalyserInputs> {
+  const now = Date.now();
+  if (mem.inputs && now - mem.inputsLoadedAt < INPUTS_TTL_MS) return mem.inputs;
+  const [versions, baseline, stamp] = await Promise.all([
+    createUnitsRepository(pc.pool).versions(unitId),
+    latestBaseline(pc.pool, unitId),
+    driftStateStamp(pc.pool, unitId),
+  ]);
+  if (versions.length === 0) throw new Error(`unit ${unitId} has no configuration`);
+  let driftChambers: (ChamberDriftInput | null)[] = mem.inputs?.driftChambers ?? [];
+  if (stamp !== mem.driftStamp || (baseline?.version ?? null) !== mem.baselineVersion) {
+    const states = baseline ? (await readDriftStates(pc.pool, unitId)).filter((s) => s.subject === 'chamber' && s.baselineVersion === baseline.version) : [];
+    driftChambers = [];
+    for (const s of states) driftChambers[s.idx - 1] = { cusum: s.cusum, rate: s.rate };
+    for (let k = 0; k < driftChambers.length; k++) driftChambers[k] ??= null;
+  }
+  const inputs: AnalyserInputs = {
+    unitId,
+    versions,
+    baseline: baseline ? baseline.baseline : null,
+    driftChambers,
+    raise: pc.raise,
+    hold: pc.hold,
+    settings: pc.config.worker,
+  };
+  mem.inputs = inputs;
+  mem.inputsLoadedAt = now;
+  mem.baselineVersion = baseline?.version ?? null;
+  mem.driftStamp = stamp;
+  if (mem.analyser) mem.analyser.setInputs(inputs);
+  return inputs;
+}
+
+async function lockUnit(pc: PipelineContext, client: Parameters<typeof lockOwnedUnit>[0], unitId: string): Promise<UnitProgress | null> {
+  return pc.workerId === null ? lockProgress(client, unitId) : lockOwnedUnit(client, unitId, pc.workerId);
+}
+
+/** A fresh analyser whose memory is that of the stored history up to and including atMs. */
+async function primedAnalyser(client: Parameters<typeof lockOwnedUnit>[0], unitId: string, inputs: AnalyserInputs, atMs: number | null): Promise<UnitAnalyser> {
+  const analyser = new UnitAnalyser(inputs);
+  if (atMs === null) return analyser;
+  const from = analyser.contextStartMs(atMs);
+  const [rings, recent, prev] = [
+    await readRingsBetween(client, unitId, from, atMs, 10_000_000),
+    await readLastAnalysis(client, unitId, atMs, inputs.settings.recentRings),
+    await lastSteadySpread(client, unitId, atMs),
+  ];
+  analyser.prime(rings, recent, prev);
+  return analyser;
+}
+
+export type RoundStatus = 'lost' | 'idle' | 'done' | 'more';
+
+/**
+ * Analyses the next batch of a unit's rings after its watermark, in one transaction.
+ * 'lost': this worker no longer holds the unit; 'idle': nothing new; 'more': a full batch was
+ * analysed and more may follow; 'done': the backlog is analysed.
+ */
+export async function analyseNextBatch(pc: PipelineContext, unitId: string): Promise<{ status: RoundStatus; rings: number }> {
+  const mem = memoryOf(pc, unitId);
+  const batch = pc.config.worker.batchRings;
+  let newWatermark: number | null = null;
+  try {
+    const result = await withTransaction(pc.pool, async (client) => {
+      const progress = await lockUnit(pc, client, unitId);
+      if (!progress) return { status: 'lost' as const, rings: 0 };
+      const inputs = await loadInputs(pc, unitId, mem);
+      if (!mem.analyser || mem.watermarkMs !== progress.watermarkMs) {
+        mem.analyser = null;
+        mem.analyser = await primedAnalyser(client, unitId, inputs, progress.watermarkMs);
+        mem.watermarkMs = progress.watermarkMs;
+      }
+      const analyser = mem.analyser;
+      const rings = await readRingsAfter(client, unitId, progress.watermarkMs, batch);
+      if (rings.count === 0) return { status: 'idle' as const, rings: 0 };
+      // From here the analyser's memory runs ahead of the database until COMMIT.
+      mem.watermarkMs = NaN;
+      const enc = new AnalysisEncoder(unitId);
+      const acc = new RollupAccumulator();
+      const observations: { ts: Date; raise: Finding[]; hold: Finding[] }[] = [];
+      for (let j = 0; j < rings.count; j++) {
+        const r = analyser.analyse(rings, j);
+        enc.add(r.row);
+        acc.add(r.row);
+        if (r.raise && r.hold) observations.push({ ts: new Date(rings.tsMs[j]), raise: r.raise, hold: r.hold });
+      }
+      await writeAnalysis(client, pc.pool, enc);
+      const stored = [
+        ...(await readRollupBuckets(client, unitId, 'hour', acc.buckets('hour'))),
+        ...(await readRollupBuckets(client, unitId, 'day', acc.buckets('day'))),
+      ];
+      await writeRollups(client, unitId, acc.mergedWith(stored));
+      const first = rings.tsMs[0];
+      const last = rings.tsMs[rings.count - 1];
+      await advanceProgress(client, unitId, last, rings.count, 0);
+      await logBatch(client, { unitId, workerId: pc.workerId ?? NO_CLAIM, kind: 'in_order', fromMs: first, toMs: last, rings: rings.count });
+      if (observations.length) await applyAlertObservations(client, unitId, observations, pc.alertSettings);
+      newWatermark = last;
+      return { status: rings.count >= batch ? ('more' as const) : ('done' as const), rings: rings.count };
+    });
+    if (newWatermark !== null) mem.watermarkMs = newWatermark;
+    if (result.status === 'lost') pc.memory.delete(unitId);
+    return result;
+  } catch (err) {
+    // The transaction rolled back: the memory may be ahead of what is stored.
+    mem.analyser = null;
+    throw err;
+  }
+}
+
+/** Groups ring times into spans: a gap longer than gapMs starts a new span. */
+export function spansOf(timesMs: number[], gapMs = HOUR_MS): Array<[number, number]> {
+  const t = [...timesMs].sort((a, b) => a - b);
+  const out: Array<[number, number]> = [];
+  for (const x of t) {
+    const cur = out[out.length - 1];
+    if (cur && x - cur[1] <= gapMs) cur[1] = x;
+    else out.push([x, x]);
+  }
+  return out;
+}
+
+/**
+ * Re-analyses a unit's rings in [fromMs, toMs] (extended by the reach of the analyser's memory,
+ * since a ring changes the steady test and window tests of those after it, but never past the
+ * watermark), with the
+ * memory of the rings before fromMs; then recomputes every hour and day the span touches from
+ * stored analysis. Idempotent: running it twice gives the same rows. Rings that had no
+ * analysis before are added to the late counter. Returns the rings analysed, or
+ * null when this worker does not hold the unit.
+ */
+export async function reanalyseSpan(pc: PipelineContext, unitId: string, fromMs: number, toMs: number, kind: 'late' | 'rerun'): Promise<number | null> {
+  const mem = memoryOf(pc, unitId);
+  const n = await withTransaction(pc.pool, async (client) => {
+    const progress = await lockUnit(pc, client, unitId);
+    if (!progress) return null;
+    if (progress.watermarkMs === null || fromMs > progress.watermarkMs) return 0;
+    const w = pc.config.worker;
+    const reachMs = Math.max(w.steadyWindowS * 1000, (w.windowTestMinutes + w.windowTestEveryMinutes) * 60_000);
+    const end = Math.min(progress.watermarkMs, toMs + reachMs);
+    const inputs = await loadInputs(pc, unitId, mem);
+    const before = fromMs - 0.001;
+    const analyser = await primedAnalyser(client, unitId, inputs, before);
+    const rings = await readRingsBetween(client, unitId, fromMs, end, 10_000_000);
+    if (rings.count === 0) return 0;
+    const newRings = await countUnanalysed(client, unitId, fromMs, end);
+    const enc = new AnalysisEncoder(unitId);
+    for (let j = 0; j < rings.count; j++) enc.add(analyser.analyse(rings, j).row);
+    await writeAnalysis(client, pc.pool, enc);
+    await recomputeRollups(client, unitId, rings.tsMs[0], rings.tsMs[rings.count - 1]);
+    await advanceProgress(client, unitId, null, 0, newRings);
+    await logBatch(client, { unitId, workerId: pc.workerId ?? NO_CLAIM, kind, fromMs: rings.tsMs[0], toMs: rings.tsMs[rings.count - 1], rings: rings.count });
+    return rings.count;
+  });
+  // The in-order memory may cover rings just re-analysed: rebuild it next round.
+  mem.analyser = null;
+  if (n === null) pc.memory.delete(unitId);
+  return n;
+}
+
+/** Recomputes the hourly rollups of every hour in [fromMs, toMs] from stored analysis, then their days from the hours. */
+export async function recomputeRollups(client: Parameters<typeof lockOwnedUnit>[0], unitId: string, fromMs: number, toMs: number): Promise<void> {
+  const h0 = bucketOf('hour', fromMs);
+  const h1 = bucketOf('hour', toMs) + HOUR_MS;
+  const hours = new RollupAccumulator();
+  const stored = await readAnalysis(client, unitId, h0, h1);
+  for (let i = 0; i < stored.count; i++) hours.addStored(stored, i);
+  const hourBuckets: number[] = [];
+  for (let h = h0; h < h1; h += HOUR_MS) hourBuckets.push(h);
+  await deleteRollupBuckets(client, unitId, 'hour', hourBuckets);
+  await writeRollups(client, unitId, hours.all().filter((r) => r.period === 'hour'));
+  const d0 = bucketOf('day', fromMs);
+  const d1 = bucketOf('day', toMs) + DAY_MS;
+  const days = new RollupAccumulator();
+  for (const r of await readRollups(client, unitId, 'hour', d0, d1)) days.addRollup(r, 'day');
+  const dayBuckets: number[] = [];
+  for (let d = d0; d < d1; d += DAY_MS) dayBuckets.push(d);
+  await deleteRollupBuckets(client, unitId, 'day', dayBuckets);
+  await writeRollups(client, unitId, days.all());
+}

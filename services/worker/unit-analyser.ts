@@ -1,0 +1,262 @@
+/**
+ * One unit's ring-by-ring analysis with the memory it needs between rings: the recent loads
+ * for the steady-state test, the recent readings for the window tests (frozen, erratic,
+ * drifting alone), the recent validity codes (recurring outliers and gaps) and the spread of
+ * the previous steady ring. That memory is a function of the ring history only, so `prime`
+ * rebuilds it from stored rings and analysis after a restart or a takeover and the next ring
+ * is analysed exactly as it would have been without the interruption. No I/O here.
+ */
+import {
+  analyseRing,
+  baselineAt,
+  correctedLoadFraction,
+  defaultSteadyStateOptions,
+  evaluateFindings,
+  gradeRank,
+  prepareUnit,
+  spreadLimitDegC,
+  steadyState,
+  VALIDITY,
+  windowValidity,
+  type ChamberDriftInput,
+  type Finding,
+  type SteadyStateOptions,
+  type Thresholds,
+  type UnitBaseline,
+  type UnitContext,
+  type WindowVerdict,
+} from '../core/index.ts';
+import type { WorkerConfig } from '../db/config.ts';
+import type { AnalysisColumns, AnalysisRow, RingColumns } from '../db/analysis.ts';
+import { versionInForce, type ConfigVersionRecord } from '../db/units.ts';
+
+export interface AnalyserInputs {
+  unitId: string;
+  versions: ConfigVersionRecord[];
+  baseline: UnitBaseline | null;
+  /** Latest drift state per chamber (index 0 = chamber 1). */
+  driftChambers: (ChamberDriftInput | null)[];
+  raise: Thresholds;
+  hold: Thresholds;
+  settings: WorkerConfig;
+}
+
+export interface RingResult {
+  row: AnalysisRow;
+  /** Findings at the normal and the deadband thresholds; null when the unit is not in service (no observation). */
+  raise: Finding[] | null;
+  hold: Finding[] | null;
+}
+
+const MAX_M = 64;
+
+export class UnitAnalyser {
+  private readonly contexts = new Map<number, UnitContext>();
+  private readonly steadyWindowS: number;
+  private readonly windowMs: number;
+  private readonly slotMs: number;
+  // Steady-state window: times (s) and corrected loads.
+  private stT: number[] = [];
+  private stL: number[] = [];
+  // Window tests: times (ms) and readings.
+  private wT: number[] = [];
+  private wR: Float64Array[] = [];
+  private lastSlot = NaN;
+  private verdicts: WindowVerdict[] = [];
+  private verdictM = 0;
+  // Recent validity codes.
+  private codes: Uint8Array[] = [];
+  private readonly outliers = new Int32Array(MAX_M);
+  private readonly missing = new Int32Array(MAX_M);
+  private prevSteadySpread: number | null = null;
+  lastTsMs = -Infinity;
+  private readonly steadyOptions: SteadyStateOptions;
+
+  constructor(private inputs: AnalyserInputs) {
+    this.steadyWindowS = inputs.settings.steadyWindowS;
+    this.steadyOptions = { ...defaultSteadyStateOptions, windowS: this.steadyWindowS };
+    this.windowMs = inputs.settings.windowTestMinutes * 60_000;
+    this.slotMs = inputs.settings.windowTestEveryMinutes * 60_000;
+  }
+
+  /** New baseline, drift state or configuration versions; the memory of recent rings is kept. */
+  setInputs(inputs: AnalyserInputs): void {
+    const key = (i: AnalyserInputs) => i.versions.map((v) => `${v.version}@${v.effectiveFrom}`).join(',');
+    if (key(inputs) !== key(this.inputs)) this.contexts.clear();
+    this.inputs = inputs;
+  }
+
+  get baselineVersion(): number | null {
+    return this.inputs.baseline ? this.inputs.baseline.version : null;
+  }
+
+  private context(tsMs: number): { ctx: UnitContext; version: number } {
+    const v = versionInForce(this.inputs.versions, tsMs) ?? this.inputs.versions[0];
+    let ctx = this.contexts.get(v.version);
+    if (!ctx) this.contexts.set(v.version, (ctx = prepareUnit(v.config)));
+    return { ctx, version: v.version };
+  }
+
+  /** Steady-state window: add (t, L), drop what is older than the window. */
+  private pushLoad(tS: number, load: number): void {
+    this.stT.push(tS);
+    this.stL.push(load);
+    let k = 0;
+    const from = tS - this.steadyWindowS;
+    while (k < this.stT.length && this.stT[k] < from) k++;
+    if (k > 0) {
+      this.stT.splice(0, k);
+      this.stL.splice(0, k);
+    }
+  }
+
+  /** Window-test readings: add, drop older than the window; run the tests at the first ring of each slot. */
+  private pushReadings(tsMs: number, readings: Float64Array, m: number): void {
+    this.wT.push(tsMs);
+    this.wR.push(readings);
+    let k = 0;
+    const from = tsMs - this.windowMs;
+    while (k < this.wT.length && this.wT[k] < from) k++;
+    if (k > 0) {
+      this.wT.splice(0, k);
+      this.wR.splice(0, k);
+    }
+    const slot = Math.floor(tsMs / this.slotMs);
+    if (slot !== this.lastSlot || m !== this.verdictM) {
+      this.lastSlot = slot;
+      this.verdictM = m;
+      const rings = this.wR.filter((r) => r.length === m);
+      this.verdicts = windowValidity(rings, m).filter((v) => v.reason !== 'valid');
+    }
+  }
+
+  /** Recent validity codes: add, count outliers and gaps, drop beyond recentRings. */
+  private pushCodes(codes: Uint8Array): void {
+    const m = Math.min(codes.length, MAX_M);
+    this.codes.push(codes);
+    for (let i = 0; i < m; i++) {
+      if (codes[i] === VALIDITY.isolated_outlier) this.outliers[i]++;
+      else if (codes[i] === VALIDITY.missing) this.missing[i]++;
+    }
+    while (this.codes.length > this.inputs.settings.recentRings) {
+      const old = this.codes.shift() as Uint8Array;
+      for (let i = 0; i < Math.min(old.length, MAX_M); i++) {
+        if (old[i] === VALIDITY.isolated_outlier) this.outliers[i]--;
+        else if (old[i] === VALIDITY.missing) this.missing[i]--;
+      }
+    }
+  }
+
+  /**
+   * Rebuilds the memory as of the last of `rings` (the stored rings just before the next one
+   * to analyse, covering at least the longer of the two windows plus one slot), with the
+   * last analysed rings' validity codes and the previous steady spread.
+   */
+  prime(rings: RingColumns, recent: AnalysisColumns, prevSteadySpread: number | null): void {
+    for (let j = 0; j < rings.count; j++) {
+      const t = rings.tsMs[j];
+      const { ctx } = this.context(t);
+      const load = correctedLoadFraction(rings.loadMw[j], rings.ambientC[j], rings.ambientKPa[j], ctx.config);
+      this.pushLoad(t / 1000, load);
+      this.pushReadings(t, rings.exhaustC[j], ctx.m);
+      this.lastTsMs = t;
+    }
+    for (let j = 0; j < recent.count; j++) this.pushCodes(Uint8Array.from(recent.validity[j]));
+    this.prevSteadySpread = prevSteadySpread;
+  }
+
+  /** Analyses the next ring (time order). */
+  analyse(rings: RingColumns, j: number): RingResult {
+    const tsMs = rings.tsMs[j];
+    const { ctx, version } = this.context(tsMs);
+    const cfg = ctx.config;
+    const load = correctedLoadFraction(rings.loadMw[j], rings.ambientC[j], rings.ambientKPa[j], cfg);
+    const speed = rings.speedPct[j];
+    const readings = rings.exhaustC[j];
+    this.pushLoad(tsMs / 1000, load);
+    const st = steadyState(speed, this.stT, this.stL, tsMs / 1000, this.steadyOptions);
+    const a = analyseRing(ctx, readings, load);
+    this.pushReadings(tsMs, readings, ctx.m);
+    const validity = a.validity.slice();
+    this.pushCodes(validity);
+
+    const b = this.inputs.baseline;
+    let tcResidual: Float64Array | null = null;
+    let chamberResidual: Float64Array | null = null;
+    if (b && st.steady) {
+      tcResidual = new Float64Array(ctx.m).fill(NaN);
+      for (let i = 0; i < ctx.m; i++) {
+        const bb = b.thermocouples[i] ? baselineAt(b.thermocouples[i], load) : null;
+        if (bb) tcResidual[i] = a.deviationDegC[i] - bb.median;
+      }
+      chamberResidual = new Float64Array(ctx.n).fill(NaN);
+      for (let k = 0; k < ctx.n; k++) {
+        const bb = b.chambers[k] ? baselineAt(b.chambers[k], load) : null;
+        if (bb) chamberResidual[k] = a.chamberDeviationDegC[k] - bb.median;
+      }
+    }
+    const limit = spreadLimitDegC(b, load, this.inputs.raise);
+
+    let raise: Finding[] | null = null;
+    let hold: Finding[] | null = null;
+    const s = this.inputs.settings;
+    if (speed >= s.findingsMinSpeedPct && load >= s.findingsMinLoad) {
+      const history = {
+        previousSteadySpreadDegC: this.prevSteadySpread,
+        recentOutlierCounts: this.outliers.subarray(0, ctx.m),
+        recentMissingCounts: this.missing.subarray(0, ctx.m),
+        windowVerdicts: this.verdicts,
+      };
+      const drift = { chambers: this.inputs.driftChambers };
+      raise = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, drift, thresholds: this.inputs.raise });
+      hold = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, drift, thresholds: this.inputs.hold });
+    }
+    if (st.steady && Number.isFinite(a.spread.spreadDegC)) this.prevSteadySpread = a.spread.spreadDegC;
+    this.lastTsMs = tsMs;
+
+    const sp = a.spread;
+    const row: AnalysisRow = {
+      tsMs,
+      configVersion: version,
+      baselineVersion: b ? b.version : null,
+      loadFraction: load,
+      steady: st.steady,
+      spread: sp.spreadDegC,
+      spreadExcl1: sp.spreadExcl1DegC,
+      spreadExcl2: sp.spreadExcl2DegC,
+      spreadLimit: limit.limitDegC,
+      limitFromBaseline: limit.fromBaseline,
+      ringMean: sp.meanDegC,
+      robustCentre: sp.robustCentreDegC,
+      stdDev: sp.stdDevDegC,
+      hottestTc: sp.hottestThermocouple,
+      coldestTc: sp.coldestThermocouple,
+      secondColdestTc: sp.secondColdestThermocouple,
+      coldestAdjacent: sp.coldestAdjacent,
+      validCount: a.coverage.validCount,
+      coverageDegraded: a.coverage.degraded,
+      validity,
+      tcDeviation: a.deviationDegC.slice(),
+      tcResidual,
+      swirlDeg: a.swirlDeg,
+      chamberDeviation: a.chamberDeviationDegC.slice(),
+      chamberUncertainty: a.chamberUncertaintyDegC.slice(),
+      chamberResidual,
+      ringLevel: a.ringLevelDegC,
+      fitSd: a.fitResidualSdDegC,
+      worstChamber: a.worstChamber,
+      worstLikelihood: a.worstChamberLikelihood,
+      runnerUpChamber: a.runnerUpChamber,
+      runnerUpLikelihood: a.runnerUpLikelihood,
+      worstGrade: raise && raise.length ? gradeRank(raise[0].grade) : null,
+      findingsJson: raise && raise.length ? JSON.stringify(raise.map((f) => ({ kind: f.kind, grade: f.grade, chamber: f.chamber, thermocouple: f.thermocouple }))) : null,
+    };
+    return { row, raise, hold };
+  }
+
+  /** How far back stored rings must reach to prime the memory as of atMs. */
+  contextStartMs(atMs: number): number {
+    const slotStart = Math.floor(atMs / this.slotMs) * this.slotMs;
+    return Math.min(atMs - this.steadyWindowS * 1000, slotStart - this.windowMs);
+  }
+}
