@@ -42,6 +42,8 @@ export class IngestRun {
   private sinceCommit = 0;
   readonly tally: IngestTally = { accepted: 0, duplicates: 0, rejected: [], rejectedCount: 0 };
   private readonly maxListed: number;
+  /** Rings accepted and already committed (with commitEveryRings, before the end). */
+  committedAccepted = 0;
 
   constructor(private readonly pool: Pool, private readonly opts: IngestRunOptions) {
     this.enc = new RingCopyEncoder(Math.min(64 << 20, Math.max(1 << 16, opts.chunkRings * 320)));
@@ -94,6 +96,7 @@ export class IngestRun {
     this.write = null;
     this.sinceCommit = 0;
     if (w) await w.commit();
+    this.committedAccepted = this.tally.accepted;
     this.opts.onCommit?.(this.tally);
   }
 
