@@ -81,3 +81,72 @@ export async function firstSteadyMs(q: Queryable, unitId: string): Promise<numbe
   );
   return rows.length ? Number(rows[0].t) : null;
 }
+
+export interface BaselineRequestRecord {
+  id: string;
+  unitId: string;
+  windowFrom: Date;
+  windowTo: Date;
+  requestedBy: string;
+  requestedAt: Date;
+  state: 'pending' | 'fitted' | 'failed';
+  version: number | null;
+  error: string | null;
+  finishedAt: Date | null;
+}
+
+function requestFromRow(r: Record<string, unknown>): BaselineRequestRecord {
+  return {
+    id: r.id as string,
+    unitId: r.unit_id as string,
+    windowFrom: r.window_from as Date,
+    windowTo: r.window_to as Date,
+    requestedBy: r.requested_by as string,
+    requestedAt: r.requested_at as Date,
+    state: r.state as BaselineRequestRecord['state'],
+    version: (r.version as number | null) ?? null,
+    error: (r.error as string | null) ?? null,
+    finishedAt: (r.finished_at as Date | null) ?? null,
+  };
+}
+
+/** Records a request to fit a baseline once the window is analysed. */
+export async function insertBaselineRequest(q: Queryable, unitId: string, fromMs: number, toMs: number, by: string): Promise<BaselineRequestRecord> {
+  const { rows } = await q.query(
+    `INSERT INTO baseline_requests (unit_id, window_from, window_to, requested_by) VALUES ($1, $2, $3, $4) RETURNING *`,
+    [unitId, new Date(fromMs), new Date(toMs), by],
+  );
+  return requestFromRow(rows[0]);
+}
+
+/** Requests of a unit, newest first (pending ones and the last finished ones). */
+export async function listBaselineRequests(q: Queryable, unitId: string, limit = 20): Promise<BaselineRequestRecord[]> {
+  const { rows } = await q.query(`SELECT * FROM baseline_requests WHERE unit_id = $1 ORDER BY requested_at DESC LIMIT $2`, [unitId, limit]);
+  return rows.map(requestFromRow);
+}
+
+/** Pending requests of these units whose window ends at or before the unit's analysis watermark. */
+export async function dueBaselineRequests(q: Queryable, unitIds: string[]): Promise<BaselineRequestRecord[]> {
+  if (unitIds.length === 0) return [];
+  const { rows } = await q.query(
+    `SELECT r.* FROM baseline_requests r JOIN analysis_progress p USING (unit_id)
+      WHERE r.unit_id = ANY($1::text[]) AND r.state = 'pending' AND p.watermark_ts >= r.window_to
+      ORDER BY r.requested_at`,
+    [unitIds],
+  );
+  return rows.map(requestFromRow);
+}
+
+/** Marks a request done: the version made, or the reason none was. */
+export async function finishBaselineRequest(q: Queryable, id: string, result: { version: number } | { error: string }): Promise<void> {
+  await q.query(
+    `UPDATE baseline_requests SET state = $2, version = $3, error = $4, finished_at = now() WHERE id = $1 AND state = 'pending'`,
+    'version' in result ? [id, 'fitted', result.version, null] : [id, 'failed', null, result.error],
+  );
+}
+
+/** The unit's analysis watermark (ms), or null when nothing is analysed yet. */
+export async function analysisWatermarkMs(q: Queryable, unitId: string): Promise<number | null> {
+  const { rows } = await q.query(`SELECT (extract(epoch from watermark_ts) * 1000)::float8 AS t FROM analysis_progress WHERE unit_id = $1`, [unitId]);
+  return rows.length && rows[0].t !== null ? Number(rows[0].t) : null;
+}

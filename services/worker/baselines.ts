@@ -8,7 +8,8 @@
 import { defaultBaselineOptions, fitUnitBaseline, type BaselineOptions, type BaselineSample } from '../core/baseline.ts';
 import type { WorkerConfig } from '../db/config.ts';
 import { countSteady, readAnalysis } from '../db/analysis.ts';
-import { firstSteadyMs, insertBaseline, latestBaselineVersion, type BaselineRecord } from '../db/baselines.ts';
+import { dueBaselineRequests, finishBaselineRequest, firstSteadyMs, insertBaseline, latestBaselineVersion, type BaselineRecord } from '../db/baselines.ts';
+import type { Logger } from '../db/logger.ts';
 import { withTransaction, type Pool } from '../db/pool.ts';
 import { isoMicros } from '../db/pg-binary.ts';
 
@@ -77,4 +78,25 @@ export async function maybeFitFirstBaseline(pool: Pool, unitId: string, watermar
     if (err instanceof BaselineFitError) return null;
     throw err;
   }
+}
+
+/**
+ * Fits the pending requests of these units whose window analysis has passed. Returns the
+ * units that got a new version.
+ */
+export async function fitDueRequests(pool: Pool, logger: Logger, unitIds: string[], settings: WorkerConfig): Promise<string[]> {
+  const done: string[] = [];
+  for (const r of await dueBaselineRequests(pool, unitIds)) {
+    try {
+      const b = await fitBaseline(pool, r.unitId, r.windowFrom.getTime(), r.windowTo.getTime(), r.requestedBy, settings);
+      await finishBaselineRequest(pool, r.id, { version: b.version });
+      done.push(r.unitId);
+      logger.info({ unitId: r.unitId, requestId: r.id, baselineVersion: b.version }, 'requested baseline fitted');
+    } catch (err) {
+      if (!(err instanceof BaselineFitError)) throw err;
+      await finishBaselineRequest(pool, r.id, { error: err.message });
+      logger.warn({ unitId: r.unitId, requestId: r.id, reason: err.message }, 'requested baseline could not be fitted');
+    }
+  }
+  return done;
 }

@@ -16,7 +16,7 @@ import { ensureProgressRows, findLateRings, receivedHorizon, setLateCheckedFrom 
 import { claimUnits, ensureClaimRows, heartbeat, liveWorkerCount, releaseUnits, renewLeases, retireWorker } from '../db/claims.ts';
 import { startAlertJobs } from './alert-jobs.ts';
 import { deadbandThresholds, loadAlertSettings } from './alerts.ts';
-import { maybeFitFirstBaseline } from './baselines.ts';
+import { fitDueRequests, maybeFitFirstBaseline } from './baselines.ts';
 import { runDrift, type DriftRunResult } from './drift.ts';
 import { startListener } from './listener.ts';
 import { analyseNextBatch, invalidateInputs, memoryOf, reanalyseSpan, spansOf, type PipelineContext } from './pipeline.ts';
@@ -194,6 +194,7 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
       late.set(id, { times, horizon });
       log.info({ unitId: id, rings: times.length }, 'late rings found');
     }
+    for (const id of await fitDueRequests(pool, log, ids, s)) invalidateInputs(pc, id);
     mark(ids);
   }
 

@@ -31,6 +31,9 @@ export const ROUTES: RouteCase[] = [
   { method: 'POST', url: '/v1/units', path: '/v1/units', allowed: ['admin'], payload: () => unitBody(`auth-new-${n++}`), unitScoped: false },
   { method: 'GET', url: '/v1/units/auth-a', path: '/v1/units/{unitId}', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'PATCH', url: '/v1/units/auth-a', path: '/v1/units/{unitId}', allowed: ['admin'], payload: () => ({ name: `renamed ${n++}` }), unitScoped: true },
+  { method: 'GET', url: '/v1/units/auth-a/status', path: '/v1/units/{unitId}/status', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  { method: 'GET', url: '/v1/units/auth-a/baselines', path: '/v1/units/{unitId}/baselines', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  { method: 'POST', url: '/v1/units/auth-a/baselines', path: '/v1/units/{unitId}/baselines', allowed: ['admin'], payload: () => ({ from: '2026-01-01T00:00:00Z', to: '2026-01-15T00:00:00Z' }), unitScoped: true },
 ];
 
 const ALL_ROLES: Role[] = ['ingest', 'viewer', 'operator', 'admin'];

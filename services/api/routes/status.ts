@@ -1,0 +1,137 @@
+/**
+ * GET /v1/units/:unitId/status (read): the latest analysis of a unit (the time of the latest
+ * analysed ring, or null before the first; the latest stored ring), its exhaust spreads and
+ * limit, coldest and hottest thermocouples, chamber estimates with the swirl used, invalid
+ * thermocouples with their reasons, the active alerts, and how far analysis has come (rings
+ * stored and analysed, the watermark, the worker holding the unit).
+ * Also `workerRoutes`: this route and the baselines routes, registered together.
+ */
+import type { FastifyInstance } from 'fastify';
+import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
+import { Type, type TSchema } from 'typebox';
+import { ADVISORY_CAUTION } from '../../core/findings.ts';
+import { VALIDITY_REASONS } from '../../core/types.ts';
+import { analysisProgress, latestAnalysis } from '../../db/analysis.ts';
+import { listActiveAlerts } from '../../db/alerts.ts';
+import { notFound } from '../errors.ts';
+import { ErrorReply, UnitParams } from '../schemas.ts';
+import { baselineRoutes } from './baselines.ts';
+
+const Nullable = <T extends TSchema>(t: T) => Type.Union([t, Type.Null()]);
+const DegC = (description: string) => Nullable(Type.Number({ description: `${description}, °C` }));
+
+export const StatusReply = Type.Object({
+  unitId: Type.String(),
+  ts: Nullable(Type.String({ format: 'date-time', description: 'time of the latest analysed ring; null before the first' })),
+  lastRingTs: Nullable(Type.String({ format: 'date-time', description: 'time of the latest stored ring' })),
+  loadFraction: Nullable(Type.Number({ description: 'corrected load, fraction of the ISO rating' })),
+  steady: Type.Boolean(),
+  spread: DegC('hottest − coldest valid thermocouple'),
+  spreadExcl1: DegC('hottest − second coldest'),
+  spreadExcl2: DegC('hottest − third coldest'),
+  limit: DegC('spread limit at this load'),
+  limitFromBaseline: Type.Boolean({ description: 'false: the default limit (no baseline at this load yet)' }),
+  ringMean: DegC('mean of the valid thermocouples'),
+  hottestThermocouple: Nullable(Type.Integer({ description: 'numbered from 1' })),
+  coldestThermocouple: Nullable(Type.Integer({ description: 'numbered from 1' })),
+  secondColdestThermocouple: Nullable(Type.Integer({ description: 'numbered from 1' })),
+  coldestAdjacent: Type.Boolean({ description: 'the two coldest are neighbours (a chamber rather than a sensor)' }),
+  coverage: Type.Object({ valid: Type.Integer(), total: Type.Integer(), degraded: Type.Boolean() }),
+  swirlDeg: Nullable(Type.Number({ description: 'swirl angle used to map the ring to chambers, degrees' })),
+  chambers: Type.Array(
+    Type.Object({
+      chamber: Type.Integer({ description: 'numbered from 1' }),
+      deviationDegC: Nullable(Type.Number({ description: 'from the average chamber, °C' })),
+      uncertaintyDegC: Nullable(Type.Number({ description: 'one σ, °C' })),
+      residualDegC: Nullable(Type.Number({ description: 'deviation − baseline at this load, °C (steady rings with a baseline)' })),
+    }),
+  ),
+  worstChamber: Nullable(
+    Type.Object({
+      chamber: Type.Integer(),
+      likelihood: Nullable(Type.Number()),
+      runnerUpChamber: Nullable(Type.Integer()),
+      runnerUpLikelihood: Nullable(Type.Number()),
+    }),
+  ),
+  invalidThermocouples: Type.Array(Type.Object({ thermocouple: Type.Integer({ description: 'numbered from 1' }), reason: Type.String() })),
+  configVersion: Nullable(Type.Integer()),
+  baselineVersion: Nullable(Type.Integer({ description: 'baseline version the limit and residuals used' })),
+  activeAlerts: Type.Array(Type.Object({}, { additionalProperties: true, description: 'as the items of GET /v1/alerts' })),
+  progress: Type.Object({
+    ringsStored: Type.Integer(),
+    ringsAnalysed: Type.Integer(),
+    ringsPending: Type.Integer({ description: 'stored − analysed' }),
+    lateRingsAnalysed: Type.Integer({ description: 'rings analysed after others later than them' }),
+    watermarkTs: Nullable(Type.String({ format: 'date-time', description: 'analysis is complete up to here, in ring order' })),
+    workerId: Nullable(Type.String()),
+    leaseUntil: Nullable(Type.String({ format: 'date-time' })),
+  }),
+  caution: Type.String(),
+});
+
+const errors = { 400: ErrorReply, 401: ErrorReply, 403: ErrorReply, 404: ErrorReply };
+const iso = (d: Date | null) => (d ? d.toISOString() : null);
+const num = (v: number | null | undefined) => (v === null || v === undefined || !Number.isFinite(v) ? null : v);
+
+export async function statusRoutes(base: FastifyInstance): Promise<void> {
+  const app = base.withTypeProvider<TypeBoxTypeProvider>();
+  app.get('/v1/units/:unitId/status', {
+    schema: { tags: ['analysis'], summary: 'Latest analysis of a unit, its active alerts and how far analysis has come', params: UnitParams, response: { 200: StatusReply, ...errors } },
+    config: { access: 'read' },
+  }, async (request) => {
+    const unitId = request.params.unitId;
+    if (!(await app.repos.units.exists(unitId))) throw notFound(`No unit ${unitId}.`);
+    const [a, p, alerts] = await Promise.all([latestAnalysis(app.pool, unitId), analysisProgress(app.pool, unitId), listActiveAlerts(app.pool, unitId)]);
+    const validity = a?.validity ?? [];
+    return {
+      unitId,
+      ts: iso(a?.ts ?? null),
+      lastRingTs: iso(p.lastRingTs),
+      loadFraction: num(a?.loadFraction),
+      steady: a?.steady ?? false,
+      spread: num(a?.spread),
+      spreadExcl1: num(a?.spreadExcl1),
+      spreadExcl2: num(a?.spreadExcl2),
+      limit: num(a?.spreadLimit),
+      limitFromBaseline: a?.limitFromBaseline ?? false,
+      ringMean: num(a?.ringMean),
+      hottestThermocouple: a?.hottestTc ?? null,
+      coldestThermocouple: a?.coldestTc ?? null,
+      secondColdestThermocouple: a?.secondColdestTc ?? null,
+      coldestAdjacent: a?.coldestAdjacent ?? false,
+      coverage: { valid: a?.validCount ?? 0, total: validity.length, degraded: a?.coverageDegraded ?? false },
+      swirlDeg: num(a?.swirlDeg),
+      chambers: (a?.chamberDeviation ?? []).map((d, k) => ({
+        chamber: k + 1,
+        deviationDegC: num(d),
+        uncertaintyDegC: num(a?.chamberUncertainty[k]),
+        residualDegC: num(a?.chamberResidual?.[k]),
+      })),
+      worstChamber:
+        a && a.worstChamber !== null
+          ? { chamber: a.worstChamber, likelihood: num(a.worstLikelihood), runnerUpChamber: a.runnerUpChamber, runnerUpLikelihood: num(a.runnerUpLikelihood) }
+          : null,
+      invalidThermocouples: validity.flatMap((code, i) => (code === 0 ? [] : [{ thermocouple: i + 1, reason: VALIDITY_REASONS[code] ?? 'missing' }])),
+      configVersion: a?.configVersion ?? null,
+      baselineVersion: a?.baselineVersion ?? null,
+      activeAlerts: alerts as unknown as Record<string, unknown>[],
+      progress: {
+        ringsStored: p.ringsStored,
+        ringsAnalysed: p.ringsAnalysed,
+        ringsPending: Math.max(0, p.ringsStored - p.ringsAnalysed),
+        lateRingsAnalysed: p.lateRingsAnalysed,
+        watermarkTs: iso(p.watermarkTs),
+        workerId: p.workerId,
+        leaseUntil: iso(p.leaseUntil),
+      },
+      caution: ADVISORY_CAUTION,
+    };
+  });
+}
+
+/** The routes backed by the worker's tables: status and baselines. */
+export async function workerRoutes(app: FastifyInstance): Promise<void> {
+  await app.register(statusRoutes);
+  await app.register(baselineRoutes);
+}
