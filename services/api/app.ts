@@ -21,6 +21,7 @@ import { installErrorHandling } from './errors.ts';
 import { authPlugin, bearerKey } from './auth.ts';
 import { healthRoutes } from './routes/health.ts';
 import { unitRoutes } from './routes/units.ts';
+import { alertRoutes } from './routes/alerts.ts';
 import { workerRoutes } from './routes/status.ts';
 import { dashboardRoutes } from './routes/dashboard.ts';
 import { ErrorReply } from './schemas.ts';
@@ -94,6 +95,7 @@ export async function buildApp(deps: AppDeps): Promise<FastifyInstance> {
   await app.register(healthRoutes);
   app.get('/openapi.json', { schema: { hide: true }, config: { access: 'public' } }, async () => app.swagger());
   if (parts.api) await app.register(unitRoutes);
+  if (parts.api) await app.register(alertRoutes);
   if (parts.api) await app.register(workerRoutes);
   if (parts.api) await app.register(dashboardRoutes);
   for (const r of deps.routes ?? []) await app.register(r);

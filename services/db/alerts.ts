@@ -667,10 +667,10 @@ function webhookFromDb(r: Record<string, unknown>): WebhookJson {
 
 const WEBHOOK_COLUMNS = `id, url, min_grade, unit_ids, created_at, created_by, deleted_at`;
 
-export async function createWebhook(db: Queryable, w: { url: string; minGrade: Grade; secret: string; unitIds: string[] | null; createdBy: string | null }): Promise<WebhookJson> {
+export async function createWebhook(db: Queryable, w: { url: string; minGrade: Grade; secret: string; unitIds: string[] | null; createdBy: string | null; id?: string }): Promise<WebhookJson> {
   const { rows } = await db.query(
-    `INSERT INTO webhooks (url, min_grade, secret, unit_ids, created_by) VALUES ($1, $2, $3, $4, $5) RETURNING ${WEBHOOK_COLUMNS}`,
-    [w.url, w.minGrade, w.secret, w.unitIds, w.createdBy],
+    `INSERT INTO webhooks (id, url, min_grade, secret, unit_ids, created_by) VALUES ($1, $2, $3, $4, $5, $6) RETURNING ${WEBHOOK_COLUMNS}`,
+    [w.id ?? randomUUID(), w.url, w.minGrade, w.secret, w.unitIds, w.createdBy],
   );
   return webhookFromDb(rows[0]);
 }

@@ -10,7 +10,7 @@ import { createRingAnalysis, type RingAnalysis } from '../../services/core/ring.
 import type { Finding, FindingKind, Grade } from '../../services/core/findings.ts';
 import type { UnitConfig } from '../../services/core/types.ts';
 import { applyAlertObservations, loadAlertSettings, type AlertObservation, type AlertSettings } from '../../services/worker/alerts.ts';
-import { recordChange, type AlertRow } from '../../services/db/alerts.ts';
+import { createWebhook, recordChange, type AlertRow } from '../../services/db/alerts.ts';
 
 export const T0 = Date.parse('2026-03-01T10:00:00Z');
 export const at = (s: number) => new Date(T0 + s * 1000);
@@ -152,4 +152,14 @@ export async function seedAlert(pool: Pool, p: { unitId: string; kind?: FindingK
     await recordChange(c, a, { action: 'raised', at: raisedAt }, true);
   });
   return a;
+}
+
+/** Fixed ids of the auth matrix's alert (on unit auth-a) and webhook. */
+export const AUTH_ALERT_ID = '6f1d2c3b-0000-4000-8000-00000000a1e7';
+export const AUTH_WEBHOOK_ID = '6f1d2c3b-0000-4000-8000-0000000000e6';
+
+/** An alert on auth-a and a webhook with the fixed ids, for the auth matrix. */
+export async function seedAuthFixtures(pool: Pool): Promise<void> {
+  await seedAlert(pool, { unitId: 'auth-a', id: AUTH_ALERT_ID });
+  await createWebhook(pool, { id: AUTH_WEBHOOK_ID, url: 'http://127.0.0.1:9/auth', minGrade: 'alarm', secret: 'auth-matrix-secret-0000', unitIds: null, createdBy: 'test' });
 }
