@@ -479,3 +479,11 @@ export async function copyRingsRaw(pool: pg.Pool, enc: RingCopyEncoder): Promise
     client.release();
   }
 }
+
+/** Earliest and latest ring time over these units, or null when none has a ring. */
+export async function ringTimeSpan(pool: pg.Pool | pg.ClientBase, unitIds: string[]): Promise<{ firstMs: number; lastMs: number } | null> {
+  const { rows } = await pool.query(`SELECT min(ts) AS first, max(ts) AS last FROM rings WHERE unit_id = ANY($1::text[])`, [unitIds]);
+  const first = rows[0]?.first as Date | null;
+  const last = rows[0]?.last as Date | null;
+  return first && last ? { firstMs: first.getTime(), lastMs: last.getTime() } : null;
+}
