@@ -19,3 +19,4 @@ export * from './baseline.ts';
 export * from './drift.ts';
 export * from './calibration.ts';
 export * from './findings.ts';
+export * from './starts.ts';
