@@ -24,6 +24,13 @@ import { unitRoutes } from './routes/units.ts';
 import { alertRoutes } from './routes/alerts.ts';
 import { workerRoutes } from './routes/status.ts';
 import { dashboardRoutes } from './routes/dashboard.ts';
+import { fleetRoutes } from './routes/fleet.ts';
+import { analysisRoutes } from './routes/analysis.ts';
+import { chamberRoutes } from './routes/chambers.ts';
+import { thermocoupleRoutes } from './routes/thermocouples.ts';
+import { pictureRoutes } from './routes/pictures.ts';
+import { reviewRoutes } from './routes/review.ts';
+import { swirlRoutes } from './routes/swirl.ts';
 import { ErrorReply } from './schemas.ts';
 import './context.ts';
 
@@ -98,6 +105,13 @@ export async function buildApp(deps: AppDeps): Promise<FastifyInstance> {
   if (parts.api) await app.register(alertRoutes);
   if (parts.api) await app.register(workerRoutes);
   if (parts.api) await app.register(dashboardRoutes);
+  if (parts.api) await app.register(fleetRoutes);
+  if (parts.api) await app.register(analysisRoutes);
+  if (parts.api) await app.register(chamberRoutes);
+  if (parts.api) await app.register(thermocoupleRoutes);
+  if (parts.api) await app.register(pictureRoutes);
+  if (parts.api) await app.register(reviewRoutes);
+  if (parts.api) await app.register(swirlRoutes);
   for (const r of deps.routes ?? []) await app.register(r);
   return app;
 }

@@ -13,16 +13,18 @@ import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
 import { Type } from 'typebox';
 import { ErrorReply } from '../schemas.ts';
 import { ADVISORY_CAUTION } from '../../core/findings.ts';
+import { REVIEW_STYLE_HASH } from './review.ts';
 
 const HERE = path.dirname(fileURLToPath(import.meta.url));
 const SOURCE = path.join(HERE, '..', 'dashboard');
 
 /**
  * The page's Content-Security-Policy: scripts, styles and data from this server only; no
- * inline script or style, no framing, no form posts elsewhere.
+ * inline script or style (except the printable review's own style sheet, by its hash: the
+ * review opens from the page as a blob and inherits this policy), no framing, no form posts.
  */
 export const DASHBOARD_CSP =
-  "default-src 'none'; script-src 'self'; style-src 'self'; img-src 'self' data: blob:; connect-src 'self'; font-src 'self'; base-uri 'none'; form-action 'none'; frame-ancestors 'none'";
+  `default-src 'none'; script-src 'self'; style-src 'self' ${REVIEW_STYLE_HASH}; img-src 'self' data: blob:; connect-src 'self'; font-src 'self'; base-uri 'none'; form-action 'none'; frame-ancestors 'none'`;
 
 interface Asset {
   body: string;

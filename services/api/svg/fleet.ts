@@ -16,8 +16,8 @@ export interface FleetTile {
   temperatureUnit: 'C' | 'F';
   lastRingTs: string | null;
   freshness: Freshness;
-  spreadDegC: number | null;
-  spreadLimitDegC: number | null;
+  spreadC: number | null;
+  spreadLimitC: number | null;
   worstGrade: Grade | null;
   activeAlerts: number;
   unacknowledged: number;
@@ -27,8 +27,8 @@ export interface FleetTile {
 const GRADE_ORDER: Record<Grade, number> = { notice: 1, warning: 2, alarm: 3, critical: 4 };
 
 /** Fleet order: worst active alert first, then spread as a share of its limit, then name. */
-export function rankFleet<T extends Pick<FleetTile, 'worstGrade' | 'spreadDegC' | 'spreadLimitDegC' | 'unitId' | 'freshness'>>(rows: readonly T[]): T[] {
-  const ratio = (r: T) => (r.spreadDegC !== null && r.spreadLimitDegC ? r.spreadDegC / r.spreadLimitDegC : -1);
+export function rankFleet<T extends Pick<FleetTile, 'worstGrade' | 'spreadC' | 'spreadLimitC' | 'unitId' | 'freshness'>>(rows: readonly T[]): T[] {
+  const ratio = (r: T) => (r.spreadC !== null && r.spreadLimitC ? r.spreadC / r.spreadLimitC : -1);
   const stale = (r: T) => (r.freshness === 'silent' ? 1 : 0);
   return [...rows].sort(
     (a, b) =>
@@ -120,8 +120,8 @@ function tile(r: FleetTile, x: number, y: number, nowMs: number): string {
   const bx = x + 12;
   const by = y + 58;
   const bw = TW - 24;
-  const spread = diffIn(u, r.spreadDegC);
-  const limit = diffIn(u, r.spreadLimitDegC);
+  const spread = diffIn(u, r.spreadC);
+  const limit = diffIn(u, r.spreadLimitC);
   const full = Math.max(limit !== null ? limit * 1.5 : 0, spread !== null ? spread * 1.05 : 0, u === 'F' ? 90 : 50);
   out.push(`<rect x="${bx}" y="${by}" width="${bw}" height="14" fill="${PALETTE.faint}" fill-opacity="0.5" stroke="${PALETTE.grid}" stroke-width="0.6"/>`);
   if (spread !== null) {

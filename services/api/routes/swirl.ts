@@ -1,0 +1,145 @@
+/**
+ * POST /v1/units/:unitId/swirl/calibrate {from, to, chamber}: fits a swirl curve ψ(L) from a
+ * window in which one chamber was known to be cold (a deliberate fuel-bias test or a confirmed
+ * event). The rings of the window (thinned evenly to at most 20,000, running at synchronous
+ * speed and some load) are each searched for the cold plume; the curve is fitted through the
+ * plume angles against corrected load. Returns the curve, its residuals per load band and the
+ * unit's current curve for comparison. Nothing is stored: a person decides whether to PATCH
+ * the unit with it.
+ */
+import type { FastifyInstance } from 'fastify';
+import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
+import { Type } from 'typebox';
+import { calibrateSwirl, calibrationResidualSigmaDeg, correctedLoadFraction, swirlDeg, type CalibrationSample } from '../../core/index.ts';
+import { versionInForce } from '../../db/units.ts';
+import { notFound, unprocessable } from '../errors.ts';
+import { UnitId } from '../schemas.ts';
+import { readErrors, readsOf, timeWindow, unitOr404 } from './read-common.ts';
+
+export const CALIBRATION_MAX_DAYS = 31;
+export const CALIBRATION_MAX_RINGS = 20_000;
+
+const Nullable = <T extends Parameters<typeof Type.Union>[0][number]>(t: T) => Type.Union([t, Type.Null()]);
+
+export const CalibrateBody = Type.Object(
+  {
+    from: Type.String({ format: 'date-time' }),
+    to: Type.String({ format: 'date-time' }),
+    chamber: Type.Integer({ minimum: 1, maximum: 64, description: 'the chamber known to be cold, numbered from 1' }),
+    method: Type.Optional(Type.Union([Type.Literal('piecewise-linear'), Type.Literal('polynomial')], { default: 'piecewise-linear' })),
+    degree: Type.Optional(Type.Integer({ minimum: 0, maximum: 3, description: 'polynomial degree' })),
+  },
+  { additionalProperties: false },
+);
+
+const Band = Type.Object({
+  loadFrom: Type.Number(),
+  loadTo: Type.Number(),
+  n: Type.Integer(),
+  meanSwirlDeg: Type.Number({ description: 'mean swirl found from the plume angles' }),
+  fittedDeg: Type.Number(),
+  currentCurveDeg: Type.Number({ description: 'the unit\'s configured curve at the band centre' }),
+  residualMeanDeg: Type.Number(),
+  residualSdDeg: Nullable(Type.Number()),
+});
+
+export const CalibrateReply = Type.Object({
+  unitId: Type.String(),
+  chamber: Type.Integer(),
+  from: Type.String(),
+  to: Type.String(),
+  ringsInWindow: Type.Integer(),
+  ringsExamined: Type.Integer(),
+  ringsUsed: Type.Integer({ description: 'rings in which a cold plume was found' }),
+  rejected: Type.Integer(),
+  method: Type.String(),
+  sense: Type.Union([Type.Literal(1), Type.Literal(-1)]),
+  curve: Type.Array(Type.Tuple([Type.Number(), Type.Number()]), { description: '[corrected load fraction, swirl degrees]: ready for PATCH /v1/units/:unitId swirl.curve' }),
+  currentCurve: Type.Array(Type.Tuple([Type.Number(), Type.Number()])),
+  rmsResidualDeg: Nullable(Type.Number()),
+  robustResidualSigmaDeg: Nullable(Type.Number()),
+  bands: Type.Array(Band),
+  advice: Type.String(),
+});
+
+/** Speed within this much of synchronous and load above this fraction for a ring to be used. */
+const SPEED_TOLERANCE_PCT = 1.5;
+const MIN_LOAD = 0.1;
+
+export async function swirlRoutes(base: FastifyInstance): Promise<void> {
+  const app = base.withTypeProvider<TypeBoxTypeProvider>();
+  const reads = readsOf(app);
+
+  app.post('/v1/units/:unitId/swirl/calibrate', {
+    schema: {
+      tags: ['read'],
+      summary: 'Fit a swirl curve from a window in which one chamber was known to be cold (stores nothing)',
+      description: `The window is limited to ${CALIBRATION_MAX_DAYS} days; its rings are thinned evenly to at most ${CALIBRATION_MAX_RINGS}.`,
+      params: Type.Object({ unitId: UnitId }),
+      body: CalibrateBody,
+      response: { 200: CalibrateReply, ...readErrors, 422: readErrors[400] },
+    },
+    config: { access: 'read' },
+  }, async (request) => {
+    const unit = await unitOr404(app, request.params.unitId);
+    const b = request.body;
+    const w = timeWindow(b, Date.now(), 1, CALIBRATION_MAX_DAYS, 'A swirl calibration window');
+    const config = versionInForce(unit.versions, w.toMs)?.config ?? unit.config;
+    if (b.chamber > config.chambers.count) throw notFound(`Unit ${unit.id} has ${config.chambers.count} chambers; chamber ${b.chamber} does not exist (chambers are numbered from 1).`);
+    const { total, rings } = await reads.ringsForCalibration(unit.id, w.fromMs, w.toMs, CALIBRATION_MAX_RINGS);
+    if (total === 0) throw unprocessable(`Unit ${unit.id} has no rings between ${new Date(w.fromMs).toISOString()} and ${new Date(w.toMs).toISOString()}; choose the window of the cold-chamber test.`);
+    const samples: CalibrationSample[] = [];
+    for (const r of rings) {
+      if (Math.abs(r.speedPct - 100) > SPEED_TOLERANCE_PCT) continue;
+      const cfg = versionInForce(unit.versions, r.tsMs)?.config ?? config;
+      const load = correctedLoadFraction(r.loadMw, r.ambientC, r.ambientKPa, cfg);
+      if (!(load >= MIN_LOAD)) continue;
+      samples.push({ loadFraction: load, readingsDegC: r.exhaustC });
+    }
+    if (samples.length === 0) throw unprocessable(`None of the ${total} rings of the window was at synchronous speed and above ${MIN_LOAD * 100} % corrected load; a calibration needs fired, loaded rings.`);
+    const cal = calibrateSwirl(config, b.chamber, samples, { method: b.method ?? 'piecewise-linear', ...(b.degree !== undefined ? { degree: b.degree } : {}) });
+    if (cal.points.length === 0) throw unprocessable(`No cold plume was found in the ${samples.length} loaded rings of the window; is chamber ${b.chamber} the cold one, and is the window the test's?`);
+    // Residuals per 5 % load band.
+    const bands = new Map<number, number[]>();
+    cal.points.forEach((p, i) => {
+      const k = Math.floor(p.loadFraction / 0.05);
+      const list = bands.get(k) ?? [];
+      list.push(i);
+      bands.set(k, list);
+    });
+    const bandRows = [...bands.entries()].sort((a, c) => a[0] - c[0]).map(([k, idx]) => {
+      const pts = idx.map((i) => cal.points[i]);
+      const mean = (f: (p: (typeof pts)[number]) => number) => pts.reduce((s, p) => s + f(p), 0) / pts.length;
+      const rm = mean((p) => p.residualDeg);
+      const sd = pts.length > 1 ? Math.sqrt(pts.reduce((s, p) => s + (p.residualDeg - rm) ** 2, 0) / (pts.length - 1)) : null;
+      const centre = (k + 0.5) * 0.05;
+      return { loadFrom: k * 0.05, loadTo: (k + 1) * 0.05, n: pts.length, meanSwirlDeg: mean((p) => p.swirlDeg), fittedDeg: mean((p) => p.fittedDeg), currentCurveDeg: swirlDeg(config.swirl.curve, centre), residualMeanDeg: rm, residualSdDeg: sd };
+    });
+    const rms = Number.isFinite(cal.rmsResidualDeg) ? cal.rmsResidualDeg : null;
+    const sigma = calibrationResidualSigmaDeg(cal);
+    const pitch = 360 / config.chambers.count;
+    const advice = rms === null
+      ? 'The fit failed; widen the window or check the chamber number.'
+      : rms < pitch / 4
+        ? `The fit is tight (RMS ${rms.toFixed(1)}°, a quarter chamber pitch is ${(pitch / 4).toFixed(1)}°). If it differs from the configured curve, update the unit's swirl curve with PATCH /v1/units/${unit.id}.`
+        : `The residuals are wide (RMS ${rms.toFixed(1)}° against a chamber pitch of ${pitch.toFixed(1)}°): the plume may not be distinct enough, or the window holds rings from before or after the test. Do not adopt this curve without a second test.`;
+    return {
+      unitId: unit.id,
+      chamber: b.chamber,
+      from: new Date(w.fromMs).toISOString(),
+      to: new Date(w.toMs).toISOString(),
+      ringsInWindow: total,
+      ringsExamined: rings.length,
+      ringsUsed: cal.points.length,
+      rejected: cal.rejected + (rings.length - samples.length),
+      method: cal.method,
+      sense: config.swirl.sense,
+      curve: cal.curve.map(([l, d]) => [Math.round(l * 1000) / 1000, Math.round(d * 10) / 10] as [number, number]),
+      currentCurve: config.swirl.curve,
+      rmsResidualDeg: rms,
+      robustResidualSigmaDeg: Number.isFinite(sigma) ? sigma : null,
+      bands: bandRows,
+      advice,
+    };
+  });
+}
