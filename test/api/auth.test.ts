@@ -34,6 +34,18 @@ export const ROUTES: RouteCase[] = [
   { method: 'GET', url: '/v1/units/auth-a/status', path: '/v1/units/{unitId}/status', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'GET', url: '/v1/units/auth-a/baselines', path: '/v1/units/{unitId}/baselines', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'POST', url: '/v1/units/auth-a/baselines', path: '/v1/units/{unitId}/baselines', allowed: ['admin'], payload: () => ({ from: '2026-01-01T00:00:00Z', to: '2026-01-15T00:00:00Z' }), unitScoped: true },
+  { method: 'GET', url: '/v1/whoami', path: '/v1/whoami', allowed: ['viewer', 'operator', 'admin'], unitScoped: false },
+  { method: 'GET', url: '/v1/fleet', path: '/v1/fleet', allowed: ['viewer', 'operator', 'admin'], unitScoped: false },
+  { method: 'GET', url: '/v1/fleet.svg', path: '/v1/fleet.svg', allowed: ['viewer', 'operator', 'admin'], unitScoped: false },
+  { method: 'GET', url: '/v1/units/auth-a/analysis?every=1h', path: '/v1/units/{unitId}/analysis', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  { method: 'GET', url: '/v1/units/auth-a/chambers', path: '/v1/units/{unitId}/chambers', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  { method: 'GET', url: '/v1/units/auth-a/chambers/2/trend', path: '/v1/units/{unitId}/chambers/{chamber}/trend', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  { method: 'GET', url: '/v1/units/auth-a/thermocouples', path: '/v1/units/{unitId}/thermocouples', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  { method: 'POST', url: '/v1/units/auth-a/swirl/calibrate', path: '/v1/units/{unitId}/swirl/calibrate', allowed: ['viewer', 'operator', 'admin'], payload: () => ({ from: '2026-01-01T00:00:00Z', to: '2026-01-02T00:00:00Z', chamber: 1 }), unitScoped: true },
+  { method: 'GET', url: '/v1/units/auth-a/ring.svg', path: '/v1/units/{unitId}/ring.svg', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  { method: 'GET', url: '/v1/units/auth-a/chambers/2/trend.svg', path: '/v1/units/{unitId}/chambers/{chamber}/trend.svg', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  { method: 'GET', url: '/v1/units/auth-a/spread.svg', path: '/v1/units/{unitId}/spread.svg', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  { method: 'GET', url: '/v1/units/auth-a/review', path: '/v1/units/{unitId}/review', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
 ];
 
 const ALL_ROLES: Role[] = ['ingest', 'viewer', 'operator', 'admin'];

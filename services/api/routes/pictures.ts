@@ -13,6 +13,7 @@ import type { UnitRecord } from '../../db/units.ts';
 import { notFound } from '../errors.ts';
 import { UnitId } from '../schemas.ts';
 import { ringSvg, type RingPlotInput } from '../svg/ring.ts';
+import { esc, svgOpen } from '../svg/draw.ts';
 import { spreadSvg, type SpreadPoint } from '../svg/spread.ts';
 import { trendSvg, type TrendPlotInput } from '../svg/trend.ts';
 import { ChamberParams, TREND_MAX_DAYS, configOf, residualTrend } from './chambers.ts';
@@ -54,6 +55,11 @@ export function ringPlotInput(unit: UnitRecord, a: StoredAnalysis, readings: (nu
       deviationC: a.chamberDeviationC[k] ?? null,
     })),
   };
+}
+
+/** A picture that says there is nothing to draw yet (so a page shows a sentence, not a broken image). */
+export function placeholderSvg(title: string, message: string): string {
+  return `${svgOpen(560, 120, title)}<text x="20" y="32" font-size="15" font-weight="bold">${esc(title)}</text><text x="20" y="64" class="empty">${esc(message)}</text></svg>`;
 }
 
 const alertLabel = (a: AlertSummary) => `${a.grade} ${a.kind.replace(/_/g, ' ')} raised ${a.raisedAt.slice(0, 16).replace('T', ' ')}: ${a.message}`;
@@ -115,7 +121,7 @@ export async function pictureRoutes(base: FastifyInstance): Promise<void> {
   }, async (request, reply) => {
     const unit = await unitOr404(app, request.params.unitId);
     const a = await reads.analysisNear(unit.id, request.query.at ? Date.parse(request.query.at) : null);
-    if (!a) throw notFound(`Unit ${unit.id} has no analysed ring yet; the ring plot appears once rings arrive and are analysed.`);
+    if (!a) return reply.header('content-type', svgType).send(placeholderSvg(`${unit.name} (${unit.id}): exhaust ring`, 'No analysed ring yet: the ring plot appears once rings arrive and are analysed.'));
     const readings = await reads.ringReadings(unit.id, a.ts);
     return reply.header('content-type', svgType).send(ringSvg(ringPlotInput(unit, a, readings)));
   });

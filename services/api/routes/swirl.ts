@@ -12,7 +12,7 @@ import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
 import { Type } from 'typebox';
 import { calibrateSwirl, calibrationResidualSigmaDeg, correctedLoadFraction, swirlDeg, type CalibrationSample } from '../../core/index.ts';
 import { versionInForce } from '../../db/units.ts';
-import { notFound, unprocessable } from '../errors.ts';
+import { notFound } from '../errors.ts';
 import { UnitId } from '../schemas.ts';
 import { readErrors, readsOf, timeWindow, unitOr404 } from './read-common.ts';
 
@@ -50,6 +50,7 @@ export const CalibrateReply = Type.Object({
   to: Type.String(),
   ringsInWindow: Type.Integer(),
   ringsExamined: Type.Integer(),
+  fitted: Type.Boolean({ description: 'false when the window gave nothing to fit (see advice)' }),
   ringsUsed: Type.Integer({ description: 'rings in which a cold plume was found' }),
   rejected: Type.Integer(),
   method: Type.String(),
@@ -77,7 +78,7 @@ export async function swirlRoutes(base: FastifyInstance): Promise<void> {
       description: `The window is limited to ${CALIBRATION_MAX_DAYS} days; its rings are thinned evenly to at most ${CALIBRATION_MAX_RINGS}.`,
       params: Type.Object({ unitId: UnitId }),
       body: CalibrateBody,
-      response: { 200: CalibrateReply, ...readErrors, 422: readErrors[400] },
+      response: { 200: CalibrateReply, ...readErrors },
     },
     config: { access: 'read' },
   }, async (request) => {
@@ -87,7 +88,6 @@ export async function swirlRoutes(base: FastifyInstance): Promise<void> {
     const config = versionInForce(unit.versions, w.toMs)?.config ?? unit.config;
     if (b.chamber > config.chambers.count) throw notFound(`Unit ${unit.id} has ${config.chambers.count} chambers; chamber ${b.chamber} does not exist (chambers are numbered from 1).`);
     const { total, rings } = await reads.ringsForCalibration(unit.id, w.fromMs, w.toMs, CALIBRATION_MAX_RINGS);
-    if (total === 0) throw unprocessable(`Unit ${unit.id} has no rings between ${new Date(w.fromMs).toISOString()} and ${new Date(w.toMs).toISOString()}; choose the window of the cold-chamber test.`);
     const samples: CalibrationSample[] = [];
     for (const r of rings) {
       if (Math.abs(r.speedPct - 100) > SPEED_TOLERANCE_PCT) continue;
@@ -96,9 +96,17 @@ export async function swirlRoutes(base: FastifyInstance): Promise<void> {
       if (!(load >= MIN_LOAD)) continue;
       samples.push({ loadFraction: load, readingsDegC: r.exhaustC });
     }
-    if (samples.length === 0) throw unprocessable(`None of the ${total} rings of the window was at synchronous speed and above ${MIN_LOAD * 100} % corrected load; a calibration needs fired, loaded rings.`);
-    const cal = calibrateSwirl(config, b.chamber, samples, { method: b.method ?? 'piecewise-linear', ...(b.degree !== undefined ? { degree: b.degree } : {}) });
-    if (cal.points.length === 0) throw unprocessable(`No cold plume was found in the ${samples.length} loaded rings of the window; is chamber ${b.chamber} the cold one, and is the window the test's?`);
+    const cal = samples.length ? calibrateSwirl(config, b.chamber, samples, { method: b.method ?? 'piecewise-linear', ...(b.degree !== undefined ? { degree: b.degree } : {}) }) : null;
+    const base = { unitId: unit.id, chamber: b.chamber, from: new Date(w.fromMs).toISOString(), to: new Date(w.toMs).toISOString(), ringsInWindow: total, ringsExamined: rings.length, sense: config.swirl.sense, currentCurve: config.swirl.curve };
+    if (!cal || cal.points.length === 0) {
+      // Nothing to fit: say why, in the same shape, so a client need not branch on the status.
+      const advice = total === 0
+        ? `Unit ${unit.id} has no rings in this window; choose the window of the cold-chamber test.`
+        : samples.length === 0
+          ? `None of the ${total} rings of the window was at synchronous speed and above ${MIN_LOAD * 100} % corrected load; a calibration needs fired, loaded rings.`
+          : `No cold plume was found in the ${samples.length} loaded rings of the window; is chamber ${b.chamber} the cold one, and is the window the test's?`;
+      return { ...base, fitted: false, ringsUsed: 0, rejected: rings.length, method: b.method ?? 'piecewise-linear', curve: [], rmsResidualDeg: null, robustResidualSigmaDeg: null, bands: [], advice };
+    }
     // Residuals per 5 % load band.
     const bands = new Map<number, number[]>();
     cal.points.forEach((p, i) => {
@@ -124,18 +132,12 @@ export async function swirlRoutes(base: FastifyInstance): Promise<void> {
         ? `The fit is tight (RMS ${rms.toFixed(1)}°, a quarter chamber pitch is ${(pitch / 4).toFixed(1)}°). If it differs from the configured curve, update the unit's swirl curve with PATCH /v1/units/${unit.id}.`
         : `The residuals are wide (RMS ${rms.toFixed(1)}° against a chamber pitch of ${pitch.toFixed(1)}°): the plume may not be distinct enough, or the window holds rings from before or after the test. Do not adopt this curve without a second test.`;
     return {
-      unitId: unit.id,
-      chamber: b.chamber,
-      from: new Date(w.fromMs).toISOString(),
-      to: new Date(w.toMs).toISOString(),
-      ringsInWindow: total,
-      ringsExamined: rings.length,
+      ...base,
+      fitted: true,
       ringsUsed: cal.points.length,
       rejected: cal.rejected + (rings.length - samples.length),
       method: cal.method,
-      sense: config.swirl.sense,
       curve: cal.curve.map(([l, d]) => [Math.round(l * 1000) / 1000, Math.round(d * 10) / 10] as [number, number]),
-      currentCurve: config.swirl.curve,
       rmsResidualDeg: rms,
       robustResidualSigmaDeg: Number.isFinite(sigma) ? sigma : null,
       bands: bandRows,
