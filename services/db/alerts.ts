@@ -835,6 +835,19 @@ export async function finishAttempt(db: Queryable, r: AttemptResult): Promise<vo
   );
 }
 
+/**
+ * Deletes up to `limit` finished outbox rows (delivered, dead, cancelled) created before
+ * `before`, with their delivery log; returns how many went.
+ */
+export async function pruneWebhookLog(db: Queryable, before: Date, limit: number): Promise<number> {
+  const { rowCount } = await db.query(
+    `DELETE FROM webhook_outbox WHERE id IN (
+       SELECT id FROM webhook_outbox WHERE state <> 'pending' AND created_at < $1 ORDER BY id LIMIT $2 FOR UPDATE SKIP LOCKED)`,
+    [before, limit],
+  );
+  return rowCount ?? 0;
+}
+
 /** State and attempt count of an outbox row (for tests and diagnostics). */
 export async function outboxRows(db: Queryable, where: { alertId?: string; webhookId?: string } = {}): Promise<Array<{ id: string; webhookId: string; alertId: string; event: string; body: string; state: string; attempts: number; nextAttemptAt: Date; deliveredAt: Date | null; lastError: string | null }>> {
   const { rows } = await db.query(

@@ -177,6 +177,8 @@ export interface WebhookConfig {
   pollMs: number;
   /** Outbox rows claimed per poll. */
   batchSize: number;
+  /** Finished outbox rows (delivered, dead, cancelled) and their delivery log are kept this long, days. */
+  keepDays: number;
 }
 
 function perKind(env: Env, prefix: string, max: number): Partial<Record<AlertKind, number>> {
@@ -323,6 +325,7 @@ export function loadConfig(env: Env = process.env): Config {
       timeoutMs: integer(env, 'CANSIGHT_WEBHOOK_TIMEOUT_MS', 10_000, 100, 300_000),
       pollMs: integer(env, 'CANSIGHT_WEBHOOK_POLL_MS', 1000, 10, 600_000),
       batchSize: integer(env, 'CANSIGHT_WEBHOOK_BATCH', 20, 1, 1000),
+      keepDays: integer(env, 'CANSIGHT_WEBHOOK_KEEP_DAYS', 30, 1, 3650),
     },
     worker: workerConfig(env),
   };

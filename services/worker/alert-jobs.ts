@@ -26,6 +26,7 @@ import {
   isShelved,
   latestRingTs,
   openAlertForUpdate,
+  pruneWebhookLog,
   recordChange,
   tryLockCondition,
   unitFreshness,
@@ -141,6 +142,19 @@ export async function expireShelves(pool: Pool, now: Date, opts: JobOptions = {}
   }
 }
 
+/** Deletes finished outbox rows and their delivery log older than webhooks.keepDays before `now`. */
+export async function pruneWebhooks(pool: Pool, now: Date, settings: Pick<AlertSettings, 'webhooks'>, opts: JobOptions = {}): Promise<number> {
+  const before = new Date(now.getTime() - settings.webhooks.keepDays * 86_400_000);
+  let total = 0;
+  for (;;) {
+    const n = await pruneWebhookLog(pool, before, 1000);
+    total += n;
+    if (n < 1000) break;
+  }
+  if (total) opts.logger?.info({ rows: total, before: before.toISOString() }, 'webhook log pruned');
+  return total;
+}
+
 const SILENT_KEY = 'unit_silent';
 
 /**
@@ -239,7 +253,8 @@ function repeat(everyMs: number, name: string, logger: Logger, fn: () => Promise
 
 /**
  * Starts the worker's alert jobs: webhook delivery every webhooks.pollMs (draining full batches
- * at once), shelf expiry and the silent-unit check every alerts.checkIntervalS.
+ * at once), shelf expiry and the silent-unit check every alerts.checkIntervalS, and pruning of
+ * the finished webhook log every hour.
  */
 export function startAlertJobs(deps: { pool: Pool; logger: Logger; config: Config }): { stop(): Promise<void> } {
   const settings = loadAlertSettings(deps.config);
@@ -253,6 +268,7 @@ export function startAlertJobs(deps: { pool: Pool; logger: Logger; config: Confi
     }),
     repeat(settings.checkIntervalS * 1000, 'shelves', logger, () => expireShelves(deps.pool, new Date(), { logger })),
     repeat(settings.checkIntervalS * 1000, 'silent-units', logger, () => checkSilentUnits(deps.pool, new Date(), settings, { logger })),
+    repeat(3_600_000, 'webhook-log', logger, () => pruneWebhooks(deps.pool, new Date(), settings, { logger })),
   ];
   logger.info({ pollMs: settings.webhooks.pollMs, checkIntervalS: settings.checkIntervalS, unitSilentS: settings.unitSilentS }, 'alert jobs started');
   return {

@@ -10,7 +10,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createTestDatabase, type TestDatabase } from '../helpers/db.ts';
 import { addUnit, apply, finding, obs, settings } from '../helpers/alerts.ts';
 import { createWebhook, deleteWebhook, listDeliveries, outboxRows, shelveAlert } from '../../services/db/alerts.ts';
-import { backoffDelayS, deliverDueWebhooks, expireShelves, signBody } from '../../services/worker/alert-jobs.ts';
+import { backoffDelayS, deliverDueWebhooks, expireShelves, pruneWebhooks, signBody } from '../../services/worker/alert-jobs.ts';
 
 let db: TestDatabase;
 let n = 0;
@@ -202,6 +202,23 @@ describe('webhook delivery', () => {
     expect((await row(hook.id)).state).toBe('cancelled');
     expect((await deliverDueWebhooks(db.pool, new Date(Date.now() + 86_400_000), s)).attempted).toBe(0);
     expect((await listDeliveries(db.pool, hook.id, { limit: 10 })).deliveries).toHaveLength(1);
+  });
+
+  it('finished rows and their log are pruned after the keeping time; pending ones stay', async () => {
+    const up = await receiver(0, () => 200);
+    try {
+      const done = await setup(up.port);
+      await deliverDueWebhooks(db.pool, new Date(Date.now() + 1000), done.s);
+      const waiting = await setup(await freePort());
+      const keep = { webhooks: { ...done.s.webhooks, keepDays: 30 } };
+      expect(await pruneWebhooks(db.pool, new Date(Date.now() + 29 * 86_400_000), keep)).toBe(0);
+      expect(await pruneWebhooks(db.pool, new Date(Date.now() + 31 * 86_400_000), keep)).toBeGreaterThanOrEqual(1);
+      expect(await outboxRows(db.pool, { webhookId: done.hook.id })).toEqual([]);
+      expect((await listDeliveries(db.pool, done.hook.id, { limit: 10 })).deliveries).toEqual([]);
+      expect(await outboxRows(db.pool, { webhookId: waiting.hook.id })).toHaveLength(1);
+    } finally {
+      await up.close();
+    }
   });
 
   it('a shelved alert sends nothing for its rule changes; the end of its shelf is sent', async () => {
