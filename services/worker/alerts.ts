@@ -48,6 +48,7 @@ import {
   setAlertWatermark,
   type AlertChange,
   type AlertRow,
+  type ChangeInput,
   type PendingCondition,
   type Queryable,
 } from '../db/alerts.ts';
@@ -278,7 +279,22 @@ export async function applyAlertObservations(
   const maxGapMs = settings.maxGapS * 1000;
   const gradeDelayMs = settings.gradeDelayS * 1000;
 
+  let activeCount = 0;
+  for (const a of open.values()) if (a.active) activeCount++;
+  // Latest finding holding each active alert; copied onto the row before it is written.
+  const latest = new Map<AlertRow, AlertSubject>();
+  const describeLatest = (a: AlertRow) => {
+    const f = latest.get(a);
+    if (f) {
+      describe(a, f);
+      latest.delete(a);
+    }
+  };
+  const NONE: ReadonlySet<string> = new Set();
+
   for (const o of fresh) {
+    // Nothing found, nothing waiting, nothing active: nothing can change (the common healthy ring).
+    if (o.raise.length === 0 && o.hold.length === 0 && pending.size === 0 && activeCount === 0) continue;
     const t = o.ts.getTime();
     const raise = byKey(o.raise);
     const hold = byKey(o.hold);
@@ -288,7 +304,7 @@ export async function applyAlertObservations(
     }
 
     // An on-delay in progress ends when its condition leaves the raise level.
-    for (const k of [...pending.keys()]) {
+    for (const k of pending.keys()) {
       if (!raise.has(k)) {
         pending.delete(k);
         pendingTouched.add(k);
@@ -296,7 +312,7 @@ export async function applyAlertObservations(
     }
 
     // Raise level: start or continue the on-delay; raise (or reactivate) when it has run out.
-    const justChanged = new Set<string>();
+    let justChanged: Set<string> | null = null;
     for (const [k, f] of raise) {
       if (f.kind === ('unit_silent' as string)) continue;
       const a = open.get(k);
@@ -306,13 +322,14 @@ export async function applyAlertObservations(
       }
       let p = pending.get(k);
       if (p && t - p.lastSeen.getTime() > maxGapMs) p = undefined;
-      if (!p) p = { conditionKey: k, kind: f.kind, since: o.ts, lastSeen: o.ts, grade: f.grade, finding: f as unknown as Record<string, unknown> };
-      else {
+      if (!p) {
+        p = { conditionKey: k, kind: f.kind, since: o.ts, lastSeen: o.ts, grade: f.grade, finding: f as unknown as Record<string, unknown> };
+        pending.set(k, p);
+      } else {
         p.grade = lower(p.grade, f.grade);
         p.lastSeen = o.ts;
         p.finding = f as unknown as Record<string, unknown>;
       }
-      pending.set(k, p);
       pendingTouched.add(k);
       if (t - p.since.getTime() < settings.onDelayS[f.kind] * 1000) continue;
       pending.delete(k);
@@ -328,6 +345,7 @@ export async function applyAlertObservations(
         a.lastChangedAt = o.ts;
         a.pendingGrade = null;
         a.pendingGradeSince = null;
+        latest.delete(a);
         describe(a, f);
         changes.push(await recordChange(client, a, { action: 'reactivated', at: o.ts, fromGrade: from, details, notify: notify(a) }, false));
         alertsTouched.delete(a);
@@ -336,23 +354,26 @@ export async function applyAlertObservations(
         changes.push(await recordChange(client, created, { action: 'raised', at: o.ts, details }, true));
         open.set(k, created);
       }
-      justChanged.add(k);
+      activeCount++;
+      (justChanged ??= new Set()).add(k);
     }
 
     // Hold level: keep active alerts, move their grades, return them to normal after the off-delay.
-    for (const a of [...open.values()]) {
-      if (!a.active || justChanged.has(a.conditionKey)) continue;
+    const skip = justChanged ?? NONE;
+    for (const a of open.values()) {
+      if (!a.active || skip.has(a.conditionKey)) continue;
       const k = a.conditionKey;
       const h = hold.get(k);
+      alertsTouched.add(a);
       if (h) {
         const r = raise.get(k);
         a.absentSince = null;
         a.lastSeenAt = o.ts;
-        describe(a, r ?? h);
-        alertsTouched.add(a);
-        const change = await considerGrade(client, a, r ? r.grade : null, h.grade, o.ts, gradeDelayMs, notify(a));
+        latest.set(a, r ?? h);
+        const change = considerGrade(a, r ? r.grade : null, h.grade, o.ts, gradeDelayMs, notify(a));
         if (change) {
-          changes.push(change);
+          describeLatest(a);
+          changes.push(await recordChange(client, a, change, false));
           alertsTouched.delete(a);
         }
         continue;
@@ -360,10 +381,10 @@ export async function applyAlertObservations(
       if (!a.absentSince) a.absentSince = o.ts;
       a.pendingGrade = null;
       a.pendingGradeSince = null;
-      alertsTouched.add(a);
       if (t - a.absentSince.getTime() < settings.offDelayS[a.kind] * 1000) continue;
       const endedAt = a.absentSince;
       a.active = false;
+      activeCount--;
       a.clearedAt = o.ts;
       a.lastChangedAt = o.ts;
       a.absentSince = null;
@@ -373,13 +394,17 @@ export async function applyAlertObservations(
         closeAlert(a, o.ts);
         open.delete(k);
       }
+      describeLatest(a);
       changes.push(await recordChange(client, a, { action: 'returned_to_normal', at: o.ts, details: { conditionEndedAt: endedAt.toISOString(), closed: closes }, notify: announce }, false));
       alertsTouched.delete(a);
     }
   }
 
   // Bookkeeping that is not a state change: evidence, last seen, off-delay and grade timers.
-  for (const a of alertsTouched) await saveAlert(client, a);
+  for (const a of alertsTouched) {
+    describeLatest(a);
+    await saveAlert(client, a);
+  }
   const upserts: PendingCondition[] = [];
   const removed: string[] = [];
   for (const k of pendingTouched) {
@@ -394,18 +419,17 @@ export async function applyAlertObservations(
 
 /**
  * Moves an active alert's grade. `raiseGrade` is its grade at the normal thresholds (null when
- * only the hold level finds it), `holdGrade` at the relaxed ones. Returns the change when the
- * grade moved.
+ * only the hold level finds it), `holdGrade` at the relaxed ones. Returns the change to record
+ * when the grade moved (the row is already updated).
  */
-async function considerGrade(
-  client: Queryable,
+function considerGrade(
   a: AlertRow,
   raiseGrade: Grade | null,
   holdGrade: Grade,
   at: Date,
   delayMs: number,
   notify: boolean,
-): Promise<AlertChange | null> {
+): ChangeInput | null {
   const g = a.grade;
   let candidate: Grade | null = null;
   if (raiseGrade && gradeRank(raiseGrade) > gradeRank(g)) candidate = raiseGrade;
@@ -436,10 +460,5 @@ async function considerGrade(
     a.ackedBy = null;
     a.ackComment = null;
   }
-  return recordChange(
-    client,
-    a,
-    { action: up ? 'escalated' : 'deescalated', at, fromGrade: g, details: { gradeSince: since.toISOString(), acknowledgementCleared: up && wasAcknowledged }, notify },
-    false,
-  );
+  return { action: up ? 'escalated' : 'deescalated', at, fromGrade: g, details: { gradeSince: since.toISOString(), acknowledgementCleared: up && wasAcknowledged }, notify };
 }
