@@ -221,6 +221,8 @@ export interface StartOptions {
   loadingMaxS: number;
   /** Flame out at or above this speed is a trip; below it, a normal fired shutdown (coast-down), %. */
   tripMinSpeedPct: number;
+  /** Without flame or fuel signals: leaving full speed with more than this fraction of rating last carried is a trip (a normal stop unloads first). */
+  tripMinLoadFraction: number;
   /** Fired time is counted across gaps up to this long, s. */
   firedGapMaxS: number;
   /** Below this speed the start-up swirl is used for chamber estimates, % (engineering judgement). */
@@ -282,6 +284,7 @@ export const defaultStartOptions: StartOptions = {
   loadedSettleS: 180,
   loadingMaxS: 7200,
   tripMinSpeedPct: 90,
+  tripMinLoadFraction: 0.15,
   firedGapMaxS: 900,
   startupSwirlBelowSpeedPct: 95,
   startupSwirlDeg: null,
@@ -396,6 +399,8 @@ interface PrevRing {
   load: number;
   fuel: number | null;
   fired: boolean | null;
+  /** Fired as counted for fired hours (the signal, or the detector's own view without one). */
+  firedSeen: boolean;
 }
 
 export interface StartDetectorState {
@@ -408,6 +413,8 @@ export interface StartDetectorState {
   runFromMs: number | null;
   coastMinSpeedPct: number | null;
   coastMinMs: number | null;
+  /** Last load seen while running above the synchronising level, MW (tells a trip from a stop without flame or fuel signals). */
+  lastLoadMw: number | null;
   counters: StartCounters;
 }
 
@@ -421,6 +428,7 @@ export function initialStartState(): StartDetectorState {
     runFromMs: null,
     coastMinSpeedPct: null,
     coastMinMs: null,
+    lastLoadMw: null,
     counters: { firedStarts: 0, failedStarts: 0, trips: 0, firedSeconds: 0 },
   };
 }
@@ -509,7 +517,6 @@ export function stepStartDetector(an: StartAnalyser, state: StartDetectorState, 
   const fuel = isNum(r.fuelFlowKgS) ? r.fuelFlowKgS : null;
   const load = isNum(r.loadMw) ? r.loadMw : 0;
   const dtS = prev ? (r.tMs - prev.t) / 1000 : 0;
-  if (prev && prev.fired && fired) state.counters.firedSeconds += Math.min(dtS, o.firedGapMaxS);
 
   let guard = 0;
   let again = true;
@@ -525,7 +532,10 @@ export function stepStartDetector(an: StartAnalyser, state: StartDetectorState, 
       }
       case 'idle': {
         const rising = prev ? r.speedPct > prev.speed : false;
-        if ((r.speedPct >= o.crankSpeedPct && rising) || fired === true) {
+        if (r.speedPct >= o.tripMinSpeedPct && fired !== false) {
+          // At speed already at the next ring: the start was not in the data (a gap); the run is followed, no start recorded.
+          enterRun(state, null, r.tMs);
+        } else if ((r.speedPct >= o.crankSpeedPct && rising) || fired === true) {
           const crankMs = crankInstant(prev, r, o);
           beginStart(an, state, crankMs, r);
           again = true;
@@ -540,6 +550,8 @@ export function stepStartDetector(an: StartAnalyser, state: StartDetectorState, 
         const fuelOn = fuelOnOf(r, o);
         if (r.speedPct < o.crankSpeedPct && fired !== true) {
           state.mode = 'idle';
+        } else if (r.speedPct >= o.tripMinSpeedPct && fired === true && (prev?.speed ?? 0) < o.crankSpeedPct) {
+          enterRun(state, null, r.tMs);
         } else if (fuelOn === true || fired === true || r.speedPct > (state.coastMinSpeedPct ?? 0) + o.crankSpeedPct) {
           // Cranked again before the shaft stopped: the start began where the speed was lowest.
           beginStart(an, state, state.coastMinMs ?? r.tMs, r);
@@ -559,15 +571,19 @@ export function stepStartDetector(an: StartAnalyser, state: StartDetectorState, 
           endRun(state, r.tMs, Math.max(r.speedPct, prev?.speed ?? 0) >= o.tripMinSpeedPct, events);
           enterCoast(state, r);
         } else if (fired === null && r.speedPct < o.tripMinSpeedPct) {
-          // No flame or fuel signal: a fall from speed while still loaded is a trip; after unloading, a stop.
-          endRun(state, r.tMs, (prev?.load ?? 0) > o.syncLoadFraction * rated, events);
+          // No flame or fuel signal: the shaft left full speed. A trip drops the load it carried; a stop unloads first.
+          endRun(state, r.tMs, (state.lastLoadMw ?? 0) > o.tripMinLoadFraction * rated, events);
           enterCoast(state, r);
         }
         break;
       }
     }
   }
-  state.prev = { t: r.tMs, speed: r.speedPct, load, fuel, fired };
+  // Fired time: from the flame or fuel signal; without either, from the detector's own view (running, or a start past its flame).
+  const firedNow = fired ?? (state.mode === 'running' || (state.mode === 'starting' && state.current?.at.flame_established !== undefined));
+  if (prev && prev.firedSeen && firedNow) state.counters.firedSeconds += Math.min(dtS, o.firedGapMaxS);
+  if (state.mode === 'running' && load > o.syncLoadFraction * an.config.ratedPowerMw) state.lastLoadMw = load;
+  state.prev = { t: r.tMs, speed: r.speedPct, load, fuel, fired, firedSeen: firedNow };
   return events;
 }
 
@@ -588,6 +604,7 @@ function endRun(state: StartDetectorState, atMs: number, trip: boolean, events: 
   events.push({ type: 'run_end', startId: state.runStartId, atMs, by: trip ? 'trip' : 'stop', outcome: state.runStartId === null ? null : trip ? 'tripped_from_load' : 'completed' });
   state.runStartId = null;
   state.runFromMs = null;
+  state.lastLoadMw = null;
 }
 
 /** The instant cranking began: back from the first ring above the crank speed along its rise, not before the previous ring. */
