@@ -601,24 +601,33 @@ export async function expireDueShelves(pool: pg.Pool, now: Date, limit: number):
 
 export interface UnitFreshness {
   unitId: string;
-  /** Time of the latest stored ring; null when the unit has sent none. */
-  lastRingTs: Date | null;
+  /** The latest stored ring (by ring time) and when it arrived; null when the unit has sent none. */
+  lastRing: LatestRing | null;
   /** The open unit_silent alert, if any. */
   silentAlertId: string | null;
   silentActive: boolean;
 }
 
-/** Every unit with its latest ring time and its open unit_silent alert. */
+export interface LatestRing {
+  ts: Date;
+  receivedAt: Date;
+}
+
+/** Every unit with its latest ring and its open unit_silent alert. */
 export async function unitFreshness(db: Queryable): Promise<UnitFreshness[]> {
   const { rows } = await db.query(
-    `SELECT u.id,
-            (SELECT max(r.ts) FROM rings r WHERE r.unit_id = u.id) AS last_ts,
-            a.id AS alert_id, a.active
+    `SELECT u.id, l.ts, l.received_at, a.id AS alert_id, a.active
        FROM units u
+       LEFT JOIN LATERAL (SELECT r.ts, r.received_at FROM rings r WHERE r.unit_id = u.id ORDER BY r.ts DESC LIMIT 1) l ON true
        LEFT JOIN alerts a ON a.unit_id = u.id AND a.condition_key = 'unit_silent' AND a.closed_at IS NULL
       ORDER BY u.id`,
   );
-  return rows.map((r) => ({ unitId: r.id, lastRingTs: date(r.last_ts), silentAlertId: r.alert_id ?? null, silentActive: Boolean(r.active) }));
+  return rows.map((r) => ({
+    unitId: r.id,
+    lastRing: r.ts ? { ts: date(r.ts) as Date, receivedAt: date(r.received_at) as Date } : null,
+    silentAlertId: r.alert_id ?? null,
+    silentActive: Boolean(r.active),
+  }));
 }
 
 /**
@@ -630,9 +639,10 @@ export async function tryLockCondition(c: Queryable, unitId: string, conditionKe
   return Boolean(rows[0].ok);
 }
 
-export async function latestRingTs(c: Queryable, unitId: string): Promise<Date | null> {
-  const { rows } = await c.query(`SELECT max(ts) AS ts FROM rings WHERE unit_id = $1`, [unitId]);
-  return date(rows[0].ts);
+/** The unit's latest ring by ring time, with when it arrived; null when it has sent none. */
+export async function latestRing(c: Queryable, unitId: string): Promise<LatestRing | null> {
+  const { rows } = await c.query(`SELECT ts, received_at FROM rings WHERE unit_id = $1 ORDER BY ts DESC LIMIT 1`, [unitId]);
+  return rows[0] ? { ts: date(rows[0].ts) as Date, receivedAt: date(rows[0].received_at) as Date } : null;
 }
 
 export async function openAlertForUpdate(c: Queryable, unitId: string, conditionKey: string): Promise<AlertRow | undefined> {

@@ -24,7 +24,7 @@ import {
   expireDueShelves,
   finishAttempt,
   isShelved,
-  latestRingTs,
+  latestRing,
   openAlertForUpdate,
   pruneWebhookLog,
   recordChange,
@@ -32,6 +32,7 @@ import {
   unitFreshness,
   type AlertChange,
   type ClaimedDelivery,
+  type LatestRing,
 } from '../db/alerts.ts';
 import { loadAlertSettings, newAlert, type AlertSettings } from './alerts.ts';
 
@@ -158,25 +159,29 @@ export async function pruneWebhooks(pool: Pool, now: Date, settings: Pick<AlertS
 const SILENT_KEY = 'unit_silent';
 
 /**
- * Raises unit_silent for each unit whose latest ring is older than unitSilentS at `now` (a unit
- * that has never sent a ring is not judged), and returns it to normal when rings are fresh
- * again. The silence time is its own on-delay; there is no off-delay. Times are wall-clock.
+ * Raises unit_silent for each unit whose data has stopped: its latest ring (by ring time) is
+ * older than unitSilentS at `now`, both by its time stamp and by when it arrived (so a history
+ * import that is still catching up does not count as silence). A unit that has never sent a
+ * ring is not judged. Returns the alert to normal when fresh rings arrive. The silence time is
+ * its own on-delay; there is no off-delay. Times are wall-clock.
  */
 export async function checkSilentUnits(pool: Pool, now: Date, settings: Pick<AlertSettings, 'unitSilentS'>, opts: JobOptions = {}): Promise<AlertChange[]> {
   if (settings.unitSilentS <= 0) return [];
   const limitMs = settings.unitSilentS * 1000;
-  const silent = (ts: Date | null) => ts !== null && now.getTime() - ts.getTime() > limitMs;
+  const silent = (r: LatestRing | null) => r !== null && now.getTime() - Math.max(r.ts.getTime(), r.receivedAt.getTime()) > limitMs;
   const changes: AlertChange[] = [];
   for (const u of await unitFreshness(pool)) {
-    const wantActive = silent(u.lastRingTs);
+    const wantActive = silent(u.lastRing);
     if (wantActive === u.silentActive) continue;
     const change = await withTransaction(pool, async (c) => {
       if (!(await tryLockCondition(c, u.unitId, SILENT_KEY))) return null;
-      const last = await latestRingTs(c, u.unitId);
+      const last = await latestRing(c, u.unitId);
       const a = await openAlertForUpdate(c, u.unitId, SILENT_KEY);
-      if (silent(last)) {
+      if (last && silent(last)) {
         if (a?.active) return null;
-        const silentForS = Math.round((now.getTime() - last!.getTime()) / 1000);
+        const lastAt = Math.max(last.ts.getTime(), last.receivedAt.getTime());
+        const silentForS = Math.round((now.getTime() - lastAt) / 1000);
+        const evidence = { lastRingTs: last.ts.toISOString(), lastReceivedAt: last.receivedAt.toISOString(), silentForS, limitS: settings.unitSilentS };
         const subject = {
           kind: 'unit_silent' as const,
           grade: 'warning' as const,
@@ -185,9 +190,9 @@ export async function checkSilentUnits(pool: Pool, now: Date, settings: Pick<Ale
           likelihood: null,
           runnerUpChamber: null,
           runnerUpLikelihood: null,
-          evidence: { lastRingTs: last!.toISOString(), silentForS, limitS: settings.unitSilentS },
+          evidence,
           baselineVersion: null,
-          message: `no exhaust ring from unit ${u.unitId} since ${last!.toISOString()} (${Math.round(silentForS / 60)} min)`,
+          message: `no exhaust ring from unit ${u.unitId} for ${Math.round(silentForS / 60)} min (latest ring ${last.ts.toISOString()})`,
           advice: 'check the plant gateway and its link to the unit; until data returns Cansight cannot see this exhaust ring',
         };
         if (a) {
@@ -198,10 +203,10 @@ export async function checkSilentUnits(pool: Pool, now: Date, settings: Pick<Ale
           a.lastSeenAt = now;
           a.message = subject.message;
           a.advice = subject.advice;
-          a.evidence = subject.evidence;
-          return recordChange(c, a, { action: 'reactivated', at: now, fromGrade: from, details: { lastRingTs: last!.toISOString() }, notify: !isShelved(a, now) });
+          a.evidence = evidence;
+          return recordChange(c, a, { action: 'reactivated', at: now, fromGrade: from, details: evidence, notify: !isShelved(a, now) });
         }
-        return recordChange(c, newAlert(u.unitId, SILENT_KEY, subject, 'warning', now), { action: 'raised', at: now, details: { lastRingTs: last!.toISOString() } }, true);
+        return recordChange(c, newAlert(u.unitId, SILENT_KEY, subject, 'warning', now), { action: 'raised', at: now, details: evidence }, true);
       }
       if (!a || !a.active) return null;
       a.active = false;
@@ -210,7 +215,7 @@ export async function checkSilentUnits(pool: Pool, now: Date, settings: Pick<Ale
       const closes = a.acknowledged;
       const notify = !isShelved(a, now);
       if (closes) closeAlert(a, now);
-      return recordChange(c, a, { action: 'returned_to_normal', at: now, details: { lastRingTs: last ? last.toISOString() : null, closed: closes }, notify });
+      return recordChange(c, a, { action: 'returned_to_normal', at: now, details: { lastRingTs: last ? last.ts.toISOString() : null, closed: closes }, notify });
     });
     if (change) {
       changes.push(change);

@@ -14,10 +14,10 @@ async function unit(): Promise<string> {
   await addUnit(db.pool, id);
   return id;
 }
-async function ring(unitId: string, ts: Date): Promise<void> {
+async function ring(unitId: string, ts: Date, receivedAt: Date = ts): Promise<void> {
   await db.pool.query(
-    `INSERT INTO rings (unit_id, ts, load_mw, ambient_c, ambient_kpa, speed_pct, exhaust_c) VALUES ($1, $2, 21, 15, 101.3, 100, $3)`,
-    [unitId, ts, Array.from({ length: 18 }, () => 550)],
+    `INSERT INTO rings (unit_id, ts, load_mw, ambient_c, ambient_kpa, speed_pct, exhaust_c, received_at) VALUES ($1, $2, 21, 15, 101.3, 100, $3, $4)`,
+    [unitId, ts, Array.from({ length: 18 }, () => 550), receivedAt],
   );
 }
 const ids = async (unitId: string, state: 'active' | 'shelved' | 'cleared' | 'open' | 'all', now = new Date()) =>
@@ -99,7 +99,7 @@ describe('unit_silent', () => {
     expect(raised.map((c) => [c.unitId, c.kind, c.action, c.grade])).toEqual([[u, 'unit_silent', 'raised', 'warning']]);
     expect((await checkSilentUnits(db.pool, new Date(silentAt.getTime() + 60_000), s)).filter((c) => c.unitId === u)).toEqual([]);
     const a = (await getAlert(db.pool, raised[0].alertId))!;
-    expect(a).toMatchObject({ kind: 'unit_silent', active: true, chamber: null, thermocouple: null, evidence: { lastRingTs: t0.toISOString(), silentForS: 901, limitS: 900 } });
+    expect(a).toMatchObject({ kind: 'unit_silent', active: true, chamber: null, thermocouple: null, evidence: { lastRingTs: t0.toISOString(), lastReceivedAt: t0.toISOString(), silentForS: 901, limitS: 900 } });
     expect(a.message).toContain(u);
 
     // The finding rules leave unit_silent alone.
@@ -113,6 +113,15 @@ describe('unit_silent', () => {
     // Returned to normal unacknowledged: a second silence reactivates the same alert.
     const again = (await checkSilentUnits(db.pool, new Date(resumed.getTime() + 901_000), s)).filter((c) => c.unitId === u);
     expect(again.map((c) => [c.action, c.alertId])).toEqual([['reactivated', a.id]]);
+  });
+
+  it('old rings that have just arrived (a history import catching up) are not silence', async () => {
+    const u = await unit();
+    const now = new Date();
+    await ring(u, new Date(now.getTime() - 30 * 86_400_000), new Date(now.getTime() - 5000));
+    expect((await checkSilentUnits(db.pool, now, settings({ silent: 900 }))).filter((c) => c.unitId === u)).toEqual([]);
+    const later = (await checkSilentUnits(db.pool, new Date(now.getTime() + 900_000), settings({ silent: 900 }))).filter((c) => c.unitId === u);
+    expect(later.map((c) => c.action)).toEqual(['raised']);
   });
 
   it('is off when the limit is 0', async () => {
