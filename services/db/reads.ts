@@ -173,6 +173,12 @@ export async function analysisNear(q: Queryable, unitId: string, atMs: number | 
   return storedAnalysis(best);
 }
 
+/** Time of the first analysed ring at or after sinceMs, or null. */
+export async function firstAnalysisTs(q: Queryable, unitId: string, sinceMs: number): Promise<number | null> {
+  const { rows } = await q.query(`SELECT ts FROM ring_analysis WHERE unit_id = $1 AND ts >= $2 ORDER BY ts LIMIT 1`, [unitId, new Date(sinceMs)]);
+  return rows.length ? (rows[0].ts as Date).getTime() : null;
+}
+
 /** The raw ring readings at one instant (°C, index 0 = thermocouple 1), or null. */
 export async function ringReadings(q: Queryable, unitId: string, tsIso: string): Promise<(number | null)[] | null> {
   const { rows } = await q.query(`SELECT exhaust_c FROM rings WHERE unit_id = $1 AND ts = $2`, [unitId, tsIso]);
@@ -496,6 +502,7 @@ export function createReadsRepository(pool: pg.Pool) {
   return {
     fleet: (scope: string[] | null, nowMs: number) => fleetRecords(pool, scope, nowMs),
     analysisNear: (unitId: string, atMs: number | null) => analysisNear(pool, unitId, atMs),
+    firstAnalysisTs: (unitId: string, sinceMs: number) => firstAnalysisTs(pool, unitId, sinceMs),
     ringReadings: (unitId: string, tsIso: string) => ringReadings(pool, unitId, tsIso),
     rawSeries: (unitId: string, fromMs: number, toMs: number, bucketS: number, limit: number) => rawSeries(pool, unitId, fromMs, toMs, bucketS, limit),
     rollupSeries: (unitId: string, period: 'hour' | 'day', fromMs: number, toMs: number, metrics: readonly string[], subject: number | null = null, limit?: number) =>

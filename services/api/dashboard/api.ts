@@ -114,6 +114,7 @@ export interface ChamberRow {
   chamber: number;
   angleDeg: number;
   plumeAngleDeg: number | null;
+  deviationC: number | null;
   residualC: number | null;
   uncertaintyC: number | null;
   driftCPer30d: number | null;

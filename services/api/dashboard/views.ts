@@ -95,7 +95,7 @@ export async function fleetView(ctx: ViewContext): Promise<void> {
     body.append(
       h(
         'tr',
-        { class: `fresh-${r.freshness}`, 'data-unit': r.unitId, 'data-grade': r.worstGrade ?? 'none' },
+        { class: `row-${r.freshness}`, 'data-unit': r.unitId, 'data-grade': r.worstGrade ?? 'none' },
         h('td', {}, gradeBadge(r.worstGrade, r.worstGrade ? '' : 'none active')),
         h('td', {}, h('a', { href, class: 'unit-link' }, r.name), h('div', { class: 'sub' }, `${r.unitId} · ${r.site}`)),
         h('td', {}, h('div', {}, `${dT(r.spreadC, u)} / ${dT(r.spreadLimitC, u)}`), meter(r.spreadC, r.spreadLimitC)),
@@ -190,15 +190,14 @@ export async function unitView(ctx: ViewContext, unitId: string): Promise<void> 
     ),
     figures,
     h('div', { class: 'two' }, panel('Exhaust ring now', ring), panel('Active alerts', alertsBox)),
-    panel('Exhaust spread, last 7 days', spreadTrend),
+    panel('Exhaust spread (up to the last 7 days)', spreadTrend),
     panel('Chambers', chambersBox),
     panel('Thermocouples', tcBox),
   );
 
-  const now = Date.now();
   await Promise.all([
     picture(ring, `/v1/units/${enc}/ring.svg`),
-    picture(spreadTrend, `/v1/units/${enc}/spread.svg?from=${new Date(now - 7 * DAY).toISOString()}&to=${new Date(now).toISOString()}`),
+    picture(spreadTrend, `/v1/units/${enc}/spread.svg`),
     alertsPanel(ctx, alertsBox, unitId, null),
     chamberTable(chambersBox, unitId, u),
     thermocoupleTable(tcBox, unitId, u),
@@ -209,13 +208,17 @@ function figure(label: string, value: string, cls = ''): HTMLElement[] {
   return [h('dt', {}, label), h('dd', { class: cls }, value)];
 }
 
+function tone(v: number | null): string | null {
+  return v === null ? null : v < 0 ? 'cold' : 'hot';
+}
+
 async function chamberTable(box: HTMLElement, unitId: string, u: TempUnit): Promise<void> {
   try {
     const data = await getJson<{ chambers: ChamberRow[]; baselineVersion: number | null }>(`/v1/units/${encodeURIComponent(unitId)}/chambers`);
     const t = h(
       'table',
       { class: 'grid' },
-      h('thead', {}, h('tr', {}, ...['Chamber', 'Residual now', 'Drift per 30 days (95 % interval)', 'CUSUM', 'Baseline', 'Active alert'].map((x) => h('th', { scope: 'col' }, x)))),
+      h('thead', {}, h('tr', {}, ...['Chamber', 'Deviation now (± 1σ)', 'Residual now', 'Drift per 30 days (95 % interval)', 'CUSUM', 'Baseline', 'Active alert'].map((x) => h('th', { scope: 'col' }, x)))),
     );
     const body = h('tbody');
     for (const c of data.chambers) {
@@ -225,7 +228,8 @@ async function chamberTable(box: HTMLElement, unitId: string, u: TempUnit): Prom
           'tr',
           { 'data-chamber': c.chamber },
           h('td', {}, h('a', { href: `#/unit/${encodeURIComponent(unitId)}/chamber/${c.chamber}` }, `chamber ${c.chamber}`)),
-          h('td', { class: c.residualC !== null && c.residualC < 0 ? 'cold' : 'hot' }, `${sdT(c.residualC, u)}${c.uncertaintyC !== null ? ` ± ${dT(c.uncertaintyC, u)}` : ''}`),
+          h('td', { class: tone(c.deviationC) }, `${sdT(c.deviationC, u)}${c.deviationC !== null && c.uncertaintyC !== null ? ` ± ${dT(c.uncertaintyC, u)}` : ''}`),
+          h('td', { class: tone(c.residualC) }, sdT(c.residualC, u)),
           h('td', {}, `${sdT(c.driftCPer30d, u, 2)}${iv ? ` (${sdT(iv[0], u, 2)} to ${sdT(iv[1], u, 2)})` : ''}`),
           h('td', {}, c.cusum ? (c.cusum.signal ? `signal: ${c.cusum.signal === 'down' ? 'colder' : 'hotter'}` : 'in control') : '–'),
           h('td', {}, c.baselineVersion !== null ? `v${c.baselineVersion}` : 'none yet'),
@@ -234,7 +238,7 @@ async function chamberTable(box: HTMLElement, unitId: string, u: TempUnit): Prom
       );
     }
     t.append(body);
-    box.replaceChildren(t, h('p', { class: 'sub' }, 'Residual: the chamber estimate against its own baseline at the same corrected load, with the all-chamber (common-mode) movement removed.'));
+    box.replaceChildren(t, h('p', { class: 'sub' }, `Deviation: the chamber estimate against the average chamber in the latest ring. Residual: against the chamber's own baseline at the same corrected load${data.baselineVersion === null ? ' (no baseline fitted yet, so no residual or drift)' : ''}.`));
   } catch (err) {
     box.replaceChildren(errorBox(err));
   }
@@ -364,11 +368,13 @@ export async function chamberView(ctx: ViewContext, unitId: string, chamber: num
   span.value = '90';
   const draw = () => {
     const now = Date.now();
-    void picture(trend, `/v1/units/${enc}/chambers/${chamber}/trend.svg?from=${new Date(now - Number(span.value) * DAY).toISOString()}&to=${new Date(now).toISOString()}`);
+    // 90 days is the server's default, which starts at the unit's first data when that is later.
+    const days = Number(span.value);
+    void picture(trend, days === 90 ? `/v1/units/${enc}/chambers/${chamber}/trend.svg` : `/v1/units/${enc}/chambers/${chamber}/trend.svg?from=${new Date(now - days * DAY).toISOString()}&to=${new Date(now).toISOString()}`);
   };
   span.addEventListener('change', draw);
   ctx.root.replaceChildren(
-    h('div', { class: 'pagehead' }, h('h1', {}, `${unit.name} · chamber ${chamber}`), h('p', { class: 'sub' }, 'Residual against the chamber\u2019s own baseline at the same corrected load, common-mode movement removed.')),
+    h('div', { class: 'pagehead' }, h('h1', {}, `${unit.name} · chamber ${chamber}`), h('p', { class: 'sub' }, 'Residual: against the chamber\u2019s own baseline at the same corrected load, common-mode movement removed. Before a baseline is fitted the trend shows the deviation from the average chamber.')),
     panel('Residual trend', h('p', { class: 'actions' }, h('label', {}, 'Window ', span)), trend),
     h('div', { class: 'two' }, panel('Evidence', evidence), panel('Active alerts on this chamber', active)),
     panel('Alert history', history),
@@ -387,7 +393,8 @@ export async function chamberView(ctx: ViewContext, unitId: string, chamber: num
             { class: 'figures narrow' },
             ...figure('Chamber angle', `${c.angleDeg.toFixed(0)}°`),
             ...figure('Plume on the ring now (after swirl)', c.plumeAngleDeg === null ? '–' : `${c.plumeAngleDeg.toFixed(0)}°`),
-            ...figure('Residual now', `${sdT(c.residualC, u)}${c.uncertaintyC !== null ? ` ± ${dT(c.uncertaintyC, u)}` : ''}`),
+            ...figure('Deviation now (from the average chamber)', `${sdT(c.deviationC, u)}${c.deviationC !== null && c.uncertaintyC !== null ? ` ± ${dT(c.uncertaintyC, u)}` : ''}`),
+            ...figure('Residual now (against its baseline)', sdT(c.residualC, u)),
             ...figure('Drift per 30 days', sdT(c.driftCPer30d, u, 2)),
             ...figure('95 % interval', iv ? `${sdT(iv[0], u, 2)} to ${sdT(iv[1], u, 2)}` : '–'),
             ...figure('Drift per 1000 fired hours', sdT(c.driftCPer1000h, u, 2)),

@@ -136,7 +136,7 @@ export const TREND_MAX_DAYS = 3700;
 export const TREND_HOURLY_MAX_DAYS = 31;
 
 /** Residual aggregates of one chamber (or thermocouple) from the rollups. */
-export async function residualTrend(reads: ReadsRepository, unitId: string, metric: 'chamber_residual' | 'tc_residual' | 'chamber_deviation', subject: number, fromMs: number, toMs: number, every?: '1h' | '1d') {
+export async function residualTrend(reads: ReadsRepository, unitId: string, metric: 'chamber_residual' | 'tc_residual' | 'chamber_deviation' | 'tc_deviation', subject: number, fromMs: number, toMs: number, every?: '1h' | '1d') {
   const span = (toMs - fromMs) / DAY_MS;
   const e = every ?? (span <= TREND_HOURLY_MAX_DAYS ? '1h' : '1d');
   const rows = await reads.rollupSeries(unitId, e === '1h' ? 'hour' : 'day', fromMs, toMs, [metric], subject);

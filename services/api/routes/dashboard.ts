@@ -84,6 +84,7 @@ function shell(): string {
 <meta charset="utf-8">
 <meta name="viewport" content="width=device-width, initial-scale=1">
 <title>Cansight · exhaust-ring monitoring</title>
+<link rel="icon" href="data:,">
 <link rel="stylesheet" href="/dashboard/app.css">
 <script defer src="/dashboard/app.js"></script>
 </head>

@@ -66,15 +66,18 @@ const alertLabel = (a: AlertSummary) => `${a.grade} ${a.kind.replace(/_/g, ' ')}
 
 /** The chamber trend picture's input: rollup residuals, drift line, band and alert marks. */
 export async function chamberTrendInput(reads: ReadsRepository, unit: UnitRecord, chamber: number, fromMs: number, toMs: number): Promise<TrendPlotInput> {
-  const [trend, drift, alerts] = await Promise.all([
+  const [residual, drift, alerts] = await Promise.all([
     residualTrend(reads, unit.id, 'chamber_residual', chamber, fromMs, toMs),
     reads.driftStates(unit.id, 'chamber'),
     reads.unitAlerts(unit.id, fromMs, toMs, 1000),
   ]);
+  // Before a baseline there is no residual: show the deviation from the average chamber instead, and say so.
+  const deviation = residual.points.length === 0;
+  const trend = deviation ? await residualTrend(reads, unit.id, 'chamber_deviation', chamber, fromMs, toMs) : residual;
   const d = drift.find((x) => x.index === chamber);
   const points = trend.points.filter((p) => p.meanC !== null).map((p) => ({ tMs: Date.parse(p.ts), meanC: p.meanC!, minC: p.minC, maxC: p.maxC, count: p.n }));
   let line: TrendPlotInput['drift'] = null;
-  if (d?.rate && Number.isFinite(d.rate.per30DaysDegC) && points.length >= 2) {
+  if (!deviation && d?.rate && Number.isFinite(d.rate.per30DaysDegC) && points.length >= 2) {
     // Slope from the worker's drift rate; level fitted to the points of the drift's own days.
     const slope = d.rate.per30DaysDegC / 30;
     const lastMs = Date.parse(d.lastDay + 'T00:00:00Z') + DAY_MS;
@@ -86,14 +89,17 @@ export async function chamberTrendInput(reads: ReadsRepository, unit: UnitRecord
   const u = unit.config.temperatureUnit;
   const span = (toMs - fromMs) / DAY_MS;
   return {
-    title: `${unit.name}: chamber ${chamber} residual`,
-    subtitle: `${trend.every === '1h' ? 'hourly' : 'daily'} means over ${span.toFixed(0)} days, steady rings only, against the baseline at the same corrected load${d?.rate ? ` · drift 95 % interval ${fmt(d.rate.per30DaysInterval[0], u)} to ${fmt(d.rate.per30DaysInterval[1], u)} per 30 days` : ''}`,
+    title: deviation ? `${unit.name}: chamber ${chamber} deviation from the average chamber` : `${unit.name}: chamber ${chamber} residual`,
+    subtitle: deviation
+      ? `${trend.every === '1h' ? 'hourly' : 'daily'} means over ${span < 2 ? (span * 24).toFixed(0) + ' hours' : span.toFixed(0) + ' days'} · no baseline yet, so no residual: this is the raw chamber estimate${trend.points.length ? '' : ' · no analysed ring in this window'}`
+      : `${trend.every === '1h' ? 'hourly' : 'daily'} means over ${span < 2 ? (span * 24).toFixed(0) + ' hours' : span.toFixed(0) + ' days'}, steady rings only, against the baseline at the same corrected load${d?.rate ? ` · drift 95 % interval ${fmt(d.rate.per30DaysInterval[0], u)} to ${fmt(d.rate.per30DaysInterval[1], u)} per 30 days` : ''}`,
     temperatureUnit: u,
     fromMs,
     toMs,
     points,
-    bandC: d?.sigmaC ? 2 * d.sigmaC : null,
-    baselineVersion: d?.baselineVersion ?? null,
+    quantity: deviation ? 'deviation' : 'residual',
+    bandC: !deviation && d?.sigmaC ? 2 * d.sigmaC : null,
+    baselineVersion: deviation ? null : (d?.baselineVersion ?? null),
     drift: line,
     alerts: alerts.filter((a) => a.chamber === chamber).map((a) => ({ tMs: Date.parse(a.raisedAt), grade: a.grade, label: alertLabel(a) })),
   };
@@ -102,6 +108,18 @@ export async function chamberTrendInput(reads: ReadsRepository, unit: UnitRecord
 function fmt(degC: number, u: 'C' | 'F'): string {
   const v = u === 'F' ? degC * 1.8 : degC;
   return `${v >= 0 ? '+' : ''}${v.toFixed(2)} °${u}`;
+}
+
+/**
+ * A default window (no `from` given) starts no earlier than the unit's first analysed ring in
+ * it, so a unit with a few hours of data is drawn over those hours, not squeezed into a corner.
+ */
+async function clampToData(reads: ReadsRepository, unitId: string, w: { fromMs: number; toMs: number }, fromGiven: boolean): Promise<{ fromMs: number; toMs: number }> {
+  if (fromGiven) return w;
+  const first = await reads.firstAnalysisTs(unitId, w.fromMs);
+  if (first === null || first <= w.fromMs) return w;
+  const span = w.toMs - first;
+  return { fromMs: Math.max(w.fromMs, first - Math.max(span * 0.03, 60_000)), toMs: w.toMs };
 }
 
 export async function pictureRoutes(base: FastifyInstance): Promise<void> {
@@ -140,7 +158,7 @@ export async function pictureRoutes(base: FastifyInstance): Promise<void> {
     const unit = await unitOr404(app, request.params.unitId);
     const k = request.params.chamber;
     if (k > unit.config.chambers.count) throw notFound(`Unit ${unit.id} has ${unit.config.chambers.count} chambers; chamber ${k} does not exist (chambers are numbered from 1).`);
-    const w = timeWindow(request.query, Date.now(), 90, TREND_MAX_DAYS, 'A chamber trend');
+    const w = await clampToData(reads, unit.id, timeWindow(request.query, Date.now(), 90, TREND_MAX_DAYS, 'A chamber trend'), Boolean(request.query.from));
     return reply.header('content-type', svgType).send(trendSvg(await chamberTrendInput(reads, unit, k, w.fromMs, w.toMs)));
   });
 
@@ -156,7 +174,7 @@ export async function pictureRoutes(base: FastifyInstance): Promise<void> {
     config: { access: 'read' },
   }, async (request, reply) => {
     const unit = await unitOr404(app, request.params.unitId);
-    const w = timeWindow(request.query, Date.now(), 7, 400, 'A spread trend');
+    const w = await clampToData(reads, unit.id, timeWindow(request.query, Date.now(), 7, 400, 'A spread trend'), Boolean(request.query.from));
     const days = (w.toMs - w.fromMs) / DAY_MS;
     let points: SpreadPoint[];
     let what: string;

@@ -27,6 +27,8 @@ export interface TrendPlotInput {
   /** Drift line: residual = interceptC + slopeCPerDay · (t − fromMs) / day. */
   drift: { interceptC: number; slopeCPerDay: number; label: string } | null;
   alerts: Array<{ tMs: number; grade: 'notice' | 'warning' | 'alarm' | 'critical'; label: string }>;
+  /** What the line is, for the axis and legend (default "residual"). */
+  quantity?: string;
 }
 
 const W = 760;
@@ -77,7 +79,7 @@ export function trendSvg(p: TrendPlotInput): string {
     out.push(`<line x1="${L}" x2="${L + pw}" y1="${c(y(v))}" y2="${c(y(v))}" stroke="${v === 0 ? PALETTE.ink : PALETTE.faint}" stroke-width="${v === 0 ? 1 : 0.7}"/>`);
     out.push(`<text x="${L - 6}" y="${c(y(v) + 4)}" text-anchor="end" font-size="10">${num(v, step < 1 ? 1 : 0)}</text>`);
   }
-  out.push(`<text x="14" y="${c(T + ph / 2)}" transform="rotate(-90 14 ${c(T + ph / 2)})" text-anchor="middle">residual °${u}</text>`);
+  out.push(`<text x="14" y="${c(T + ph / 2)}" transform="rotate(-90 14 ${c(T + ph / 2)})" text-anchor="middle">${esc(p.quantity ?? 'residual')} °${u}</text>`);
   const days = span / DAY_MS;
   const tickDays = days <= 2 ? 0.25 : niceStep(days, 8);
   for (let t = Math.ceil(p.fromMs / (tickDays * DAY_MS)) * tickDays * DAY_MS; t <= p.toMs; t += tickDays * DAY_MS) {
@@ -117,7 +119,7 @@ export function trendSvg(p: TrendPlotInput): string {
   }
   // Legend.
   const ly = H - 22;
-  out.push(`<path d="M${L},${ly} h22" stroke="${PALETTE.cold}" stroke-width="1.8"/><text x="${L + 28}" y="${ly + 4}">residual (bucket mean, whisker min–max)</text>`);
+  out.push(`<path d="M${L},${ly} h22" stroke="${PALETTE.cold}" stroke-width="1.8"/><text x="${L + 28}" y="${ly + 4}">${esc(p.quantity ?? 'residual')} (bucket mean, whisker min–max)</text>`);
   if (p.bandC !== null) out.push(`<rect x="${L + 290}" y="${ly - 6}" width="22" height="12" fill="${PALETTE.band}" fill-opacity="0.22" stroke="${PALETTE.band}" stroke-dasharray="4 3"/><text x="${L + 318}" y="${ly + 4}">normal band (baseline v${p.baselineVersion ?? '?'})</text>`);
   if (p.drift) out.push(`<path d="M${L + 500},${ly} h22" stroke="${PALETTE.drift}" stroke-width="2.2" stroke-dasharray="8 4"/><text x="${L + 528}" y="${ly + 4}">${esc(p.drift.label)}</text>`);
   out.push('</svg>');
