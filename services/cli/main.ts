@@ -5,6 +5,7 @@
 import { parseArgs } from 'node:util';
 import { loadConfigOrExit } from '../db/config.ts';
 import { keysCommand } from './keys.ts';
+import { reportCommand } from './report.ts';
 import { openRuntime, stopOnSignals } from './runtime.ts';
 import { serve } from './serve.ts';
 import { startWorker } from '../worker/index.ts';
@@ -46,6 +47,14 @@ async function run(argv: string[]): Promise<number> {
       const runtime = await openRuntime(loadConfigOrExit(), { migrate: true, role: 'keys' });
       try {
         return await keysCommand(rest, runtime.pool, out);
+      } finally {
+        await runtime.shutdown();
+      }
+    }
+    case 'report': {
+      const runtime = await openRuntime(loadConfigOrExit(), { migrate: true, role: 'report' });
+      try {
+        return await reportCommand(rest, { pool: runtime.pool, out });
       } finally {
         await runtime.shutdown();
       }

@@ -15,6 +15,8 @@ usage:
   cansight import FILE --unit U       load a CSV or NDJSON history file
   cansight demo --scenario NAME --out FILE
                                       write a simulated scenario (NDJSON or CSV)
+  cansight report --unit U --out FILE.html [--from T] [--to T] [--csv]
+                                      write the pre-outage review of a unit
 
 Configuration is read from environment variables; see README.md.
 Cansight advises; the turbine's own protection and the site's procedures govern.`;
