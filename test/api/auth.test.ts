@@ -6,17 +6,19 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { bearer, createTestApp, unitBody, type TestApp } from '../helpers/app.ts';
 import type { Role } from '../../services/db/keys.ts';
 import { createKeysRepository } from '../../services/db/keys.ts';
+import { AUTH_ALERT_ID, AUTH_WEBHOOK_ID, seedAuthFixtures } from '../helpers/alerts.ts';
 
 let t: TestApp;
 beforeAll(async () => {
   t = await createTestApp();
   await t.app.inject({ method: 'POST', url: '/v1/units', headers: bearer(t.keys.admin), payload: unitBody('auth-a') });
   await t.app.inject({ method: 'POST', url: '/v1/units', headers: bearer(t.keys.admin), payload: unitBody('auth-b') });
+  await seedAuthFixtures(t.db.pool);
 });
 afterAll(async () => t.close());
 
 interface RouteCase {
-  method: 'GET' | 'POST' | 'PATCH';
+  method: 'GET' | 'POST' | 'PATCH' | 'DELETE';
   url: string;
   /** OpenAPI path this case covers. */
   path: string;
@@ -31,6 +33,15 @@ export const ROUTES: RouteCase[] = [
   { method: 'POST', url: '/v1/units', path: '/v1/units', allowed: ['admin'], payload: () => unitBody(`auth-new-${n++}`), unitScoped: false },
   { method: 'GET', url: '/v1/units/auth-a', path: '/v1/units/{unitId}', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'PATCH', url: '/v1/units/auth-a', path: '/v1/units/{unitId}', allowed: ['admin'], payload: () => ({ name: `renamed ${n++}` }), unitScoped: true },
+  { method: 'GET', url: '/v1/alerts?unitId=auth-a', path: '/v1/alerts', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  { method: 'GET', url: `/v1/alerts/${AUTH_ALERT_ID}`, path: '/v1/alerts/{id}', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  { method: 'POST', url: `/v1/alerts/${AUTH_ALERT_ID}/ack`, path: '/v1/alerts/{id}/ack', allowed: ['operator', 'admin'], payload: () => ({ by: 'Auth Matrix' }), unitScoped: true },
+  { method: 'POST', url: `/v1/alerts/${AUTH_ALERT_ID}/shelve`, path: '/v1/alerts/{id}/shelve', allowed: ['operator', 'admin'], payload: () => ({ by: 'Auth Matrix', until: new Date(Date.now() + 3_600_000).toISOString(), reason: 'auth matrix' }), unitScoped: true },
+  { method: 'POST', url: `/v1/alerts/${AUTH_ALERT_ID}/unshelve`, path: '/v1/alerts/{id}/unshelve', allowed: ['operator', 'admin'], payload: () => ({ by: 'Auth Matrix' }), unitScoped: true },
+  { method: 'POST', url: '/v1/webhooks', path: '/v1/webhooks', allowed: ['admin'], payload: () => ({ url: `https://receiver.example.net/${n++}`, minGrade: 'alarm', secret: 'auth-matrix-secret-0000' }), unitScoped: false },
+  { method: 'GET', url: '/v1/webhooks', path: '/v1/webhooks', allowed: ['admin'], unitScoped: false },
+  { method: 'GET', url: `/v1/webhooks/${AUTH_WEBHOOK_ID}/deliveries`, path: '/v1/webhooks/{id}/deliveries', allowed: ['admin'], unitScoped: false },
+  { method: 'DELETE', url: `/v1/webhooks/${AUTH_WEBHOOK_ID}`, path: '/v1/webhooks/{id}', allowed: ['admin'], unitScoped: false },
   { method: 'GET', url: '/v1/units/auth-a/status', path: '/v1/units/{unitId}/status', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'GET', url: '/v1/units/auth-a/baselines', path: '/v1/units/{unitId}/baselines', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'POST', url: '/v1/units/auth-a/baselines', path: '/v1/units/{unitId}/baselines', allowed: ['admin'], payload: () => ({ from: '2026-01-01T00:00:00Z', to: '2026-01-15T00:00:00Z' }), unitScoped: true },
