@@ -24,7 +24,6 @@ import { migrate } from '../services/db/migrate.ts';
 import { createPool } from '../services/db/pool.ts';
 import { RingCopyEncoder, copyRingsRaw, countRings, type RingRow } from '../services/db/rings.ts';
 import { createUnitsRepository } from '../services/db/units.ts';
-import { ingestRoutes } from '../services/ingest/routes.ts';
 import type { UnitConfig } from '../services/core/types.ts';
 
 const N = Number(process.env.BENCH_RINGS ?? 200_000);
@@ -132,7 +131,7 @@ async function main(): Promise<void> {
     rows.length = 0;
 
     const config = loadConfig({ ...process.env, LOG_LEVEL: 'silent', CANSIGHT_RATE_LIMIT_PER_MIN: '10000000', CANSIGHT_POOL_MAX: String(CLIENTS * 2 + 4) });
-    const app = await buildApp({ config, pool, logger: createLogger('silent'), parts: { api: false, ingest: true }, routes: [ingestRoutes] });
+    const app = await buildApp({ config, pool, logger: createLogger('silent'), parts: { api: false, ingest: true } });
     await app.listen({ host: '127.0.0.1', port: 0 });
     const addr = app.server.address();
     const base = `http://127.0.0.1:${typeof addr === 'object' && addr ? addr.port : 0}`;

@@ -11,7 +11,7 @@ import { writeFile } from 'node:fs/promises';
 import { parseArgs } from 'node:util';
 import { buildScenario, scenarioNames, SCENARIOS } from '../sim/scenarios.ts';
 import { simulateUnit, type UnitSimulation } from '../sim/generator.ts';
-import type { SimRing } from '../sim/types.ts';
+import { mergeByTime } from '../sim/merge.ts';
 
 const DEMO_USAGE = `usage: cansight demo --scenario NAME --out FILE [--days N] [--seed S] [--unit ID]
                      [--end TIME] [--steady-interval SECONDS]
@@ -40,22 +40,6 @@ async function close(stream: WriteStream): Promise<void> {
     stream.once('error', reject);
     stream.end(resolve);
   });
-}
-
-/** Rings of several units merged in time order (ties by unit order). */
-function* mergeByTime(sims: UnitSimulation[]): Generator<SimRing> {
-  const its = sims.map((s) => s.rings());
-  const heads: (SimRing | null)[] = its.map((it) => it.next().value ?? null);
-  const keys = heads.map((h) => (h ? Date.parse(h.ts) : Infinity));
-  for (;;) {
-    let best = -1;
-    for (let i = 0; i < heads.length; i++) if (heads[i] && (best < 0 || keys[i] < keys[best])) best = i;
-    if (best < 0) return;
-    yield heads[best]!;
-    const nx = its[best].next();
-    heads[best] = nx.done ? null : nx.value;
-    keys[best] = heads[best] ? Date.parse(heads[best]!.ts) : Infinity;
-  }
 }
 
 function csvNumber(x: number | null): string {

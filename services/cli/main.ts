@@ -6,6 +6,8 @@ import { parseArgs } from 'node:util';
 import { loadConfigOrExit } from '../db/config.ts';
 import { keysCommand } from './keys.ts';
 import { reportCommand } from './report.ts';
+import { importCommand } from './import.ts';
+import { demoCommand } from './demo.ts';
 import { openRuntime, stopOnSignals } from './runtime.ts';
 import { serve } from './serve.ts';
 import { startWorker } from '../worker/index.ts';
@@ -18,13 +20,13 @@ async function run(argv: string[]): Promise<number> {
   switch (command) {
     case 'start': {
       const { values } = parseArgs({ args: rest, options: { 'no-demo': { type: 'boolean', default: false } }, strict: true });
-      await serve(loadConfigOrExit(), { parts: { api: true, ingest: true }, demo: !values['no-demo'], announce: true });
+      await serve(loadConfigOrExit(), { parts: { api: true, ingest: true }, worker: true, demo: !values['no-demo'], announce: true });
       return 0;
     }
     case 'api':
     case 'ingest': {
       parseArgs({ args: rest, options: {}, strict: true });
-      await serve(loadConfigOrExit(), { parts: { api: command === 'api', ingest: command === 'ingest' }, demo: false, announce: false });
+      await serve(loadConfigOrExit(), { parts: { api: command === 'api', ingest: command === 'ingest' }, worker: false, demo: false, announce: false });
       return 0;
     }
     case 'worker': {
@@ -51,6 +53,16 @@ async function run(argv: string[]): Promise<number> {
         await runtime.shutdown();
       }
     }
+    case 'import': {
+      const runtime = await openRuntime(loadConfigOrExit(), { migrate: true, role: 'import' });
+      try {
+        return await importCommand(rest, { pool: runtime.pool, config: runtime.config, logger: runtime.logger });
+      } finally {
+        await runtime.shutdown();
+      }
+    }
+    case 'demo':
+      return demoCommand(rest);
     case 'report': {
       const runtime = await openRuntime(loadConfigOrExit(), { migrate: true, role: 'report' });
       try {

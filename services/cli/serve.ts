@@ -5,13 +5,16 @@
 import type { FastifyInstance } from 'fastify';
 import { buildApp, type AppParts } from '../api/app.ts';
 import { createKeysRepository } from '../db/keys.ts';
-import { createUnitsRepository } from '../db/units.ts';
 import type { Config } from '../db/config.ts';
+import { startWorker } from '../worker/index.ts';
 import { openRuntime, stopOnSignals, type Runtime } from './runtime.ts';
-import { DEMO_UNITS } from './demo-units.ts';
+import { registerDemoFleet, startDemoFeed } from './demo-feed.ts';
 
 export interface ServeOptions {
   parts: AppParts;
+  /** Run the analysis worker in this process too. */
+  worker: boolean;
+  /** Register the demo fleet, send its history and keep feeding it live rings. */
   demo: boolean;
   /** Print the URL and first admin key for a person at a terminal. */
   announce: boolean;
@@ -26,33 +29,28 @@ export async function bootstrapKeys(runtime: Runtime): Promise<string | undefine
   return key;
 }
 
-export async function registerDemoUnits(runtime: Runtime): Promise<string[]> {
-  const units = createUnitsRepository(runtime.pool);
-  const made: string[] = [];
-  for (const u of DEMO_UNITS) {
-    if (await units.exists(u.id)) continue;
-    const { id, name, site, ...config } = u;
-    await units.create({ id, name, site }, config, 'demo').catch((err: Error) => {
-      if (!/already exists/.test(err.message)) throw err;
-    });
-    made.push(id);
-  }
-  return made;
-}
-
 export async function serve(config: Config, opts: ServeOptions): Promise<void> {
   const started = Date.now();
-  const runtime = await openRuntime(config, { migrate: true, role: opts.parts.api && opts.parts.ingest ? 'all' : opts.parts.api ? 'api' : 'ingest' });
+  const role = opts.parts.api && opts.parts.ingest ? 'all' : opts.parts.api ? 'api' : 'ingest';
+  const runtime = await openRuntime(config, { migrate: true, role });
   const stopped = stopOnSignals(runtime);
   const firstKey = await bootstrapKeys(runtime);
   if (opts.demo) {
-    const made = await registerDemoUnits(runtime);
+    const made = await registerDemoFleet(runtime.pool);
     if (made.length) runtime.logger.info({ units: made }, 'demo units registered');
   }
   const app: FastifyInstance = await buildApp({ config, pool: runtime.pool, logger: runtime.logger, parts: opts.parts });
   runtime.onShutdown(() => app.close());
   const address = await app.listen({ host: config.host, port: config.port });
   runtime.logger.info({ address, startMs: Date.now() - started }, 'listening');
+  if (opts.worker) {
+    const worker = await startWorker({ pool: runtime.pool, logger: runtime.logger, config });
+    runtime.onShutdown(() => worker.stop());
+  }
+  if (opts.demo) {
+    const feed = await startDemoFeed({ pool: runtime.pool, logger: runtime.logger, baseUrl: address, ...config.demo });
+    runtime.onShutdown(() => feed.stop());
+  }
   if (opts.announce) {
     const lines = [
       `Cansight is running at ${address}  (API reference: ${address}/docs)`,

@@ -127,6 +127,16 @@ export interface Config {
   };
   /** Requests per minute per key before 429. */
   rateLimitPerMinute: number;
+  /** The demo fleet of `cansight start`. */
+  demo: {
+    /** Days of history sent when the database holds none. */
+    historyDays: number;
+    /** Seconds between live sends. */
+    liveEveryS: number;
+    /** Seconds between rings in steady running. */
+    steadyIntervalS: number;
+    seed: number;
+  };
   /** Life cycle of alerts (ISA-18.2 on-delay, off-delay, deadband, shelving, unit silence). */
   alerts: AlertConfig;
   /** Webhook delivery from the outbox. */
@@ -136,7 +146,7 @@ export interface Config {
 }
 
 /** The alert kinds: the core's finding kinds and unit_silent (no data). Env names use them upper-cased. */
-export const ALERT_KINDS = ['thermocouple_fault', 'coverage_degraded', 'spread_high', 'spread_jump', 'chamber_cold', 'chamber_hot', 'chamber_drift', 'unit_silent'] as const;
+export const ALERT_KINDS = ['thermocouple_fault', 'coverage_degraded', 'spread_high', 'spread_jump', 'chamber_cold', 'chamber_hot', 'chamber_drift', 'unit_silent', 'chamber_unlit', 'start_failed'] as const;
 export type AlertKind = (typeof ALERT_KINDS)[number];
 
 export interface AlertConfig {
@@ -257,7 +267,7 @@ function workerConfig(env: Env): WorkerConfig {
     driftCron: cronPattern(env, 'CANSIGHT_DRIFT_CRON', '17 2 * * *'),
     steadyWindowS: integer(env, 'CANSIGHT_STEADY_WINDOW_S', 600, 10, 86_400),
     windowTestMinutes: integer(env, 'CANSIGHT_WINDOW_TEST_MINUTES', 30, 1, 1440),
-    windowTestEveryMinutes: integer(env, 'CANSIGHT_WINDOW_TEST_EVERY_MINUTES', 10, 1, 1440),
+    windowTestEveryMinutes: integer(env, 'CANSIGHT_WINDOW_TEST_EVERY_MINUTES', 30, 1, 1440),
     recentRings: integer(env, 'CANSIGHT_RECENT_RINGS', 30, 1, 10_000),
     findingsMinSpeedPct: decimal(env, 'CANSIGHT_FINDINGS_MIN_SPEED_PCT', 95, 0, 130),
     findingsMinLoad: decimal(env, 'CANSIGHT_FINDINGS_MIN_LOAD', 0.2, 0, 1.5),
@@ -304,6 +314,12 @@ export function loadConfig(env: Env = process.env): Config {
       },
     },
     rateLimitPerMinute: integer(env, 'CANSIGHT_RATE_LIMIT_PER_MIN', 6000, 1, 10_000_000),
+    demo: {
+      historyDays: integer(env, 'CANSIGHT_DEMO_DAYS', 90, 1, 400),
+      liveEveryS: integer(env, 'CANSIGHT_DEMO_LIVE_S', 5, 1, 3600),
+      steadyIntervalS: integer(env, 'CANSIGHT_DEMO_STEADY_S', 60, 1, 3600),
+      seed: integer(env, 'CANSIGHT_DEMO_SEED', 1, 0, 2_147_483_647),
+    },
     alerts: {
       onDelayS: integer(env, 'CANSIGHT_ALERT_ON_DELAY_S', 30, 0, 86_400),
       offDelayS: integer(env, 'CANSIGHT_ALERT_OFF_DELAY_S', 120, 0, 86_400),

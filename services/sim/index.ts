@@ -10,3 +10,4 @@ export { ambientC, ambientKPa, type SiteClimate } from './ambient.ts';
 export { UCI_EXHAUST_FIT, ringMeanC, baseLoadFraction, fitUciExhaustResponse, parseUciCsv } from './exhaust-model.ts';
 export { START_VALUES } from './operation.ts';
 export { buildScenario, scenarioNames, SCENARIOS, type Scenario, type ScenarioOptions } from './scenarios.ts';
+export { mergeByTime } from './merge.ts';

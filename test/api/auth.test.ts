@@ -23,11 +23,16 @@ interface RouteCase {
   /** OpenAPI path this case covers. */
   path: string;
   allowed: Role[];
-  payload?: () => object;
+  payload?: () => object | string;
+  contentType?: string;
   unitScoped: boolean;
 }
 
 let n = 0;
+/** A valid ring for unit auth-a (18 thermocouples), a minute apart per call. */
+function authRing(i: number) {
+  return { ts: new Date(Date.UTC(2026, 0, 1) + i * 60_000).toISOString(), loadMw: 20, ambientC: 15, ambientKPa: 101.3, speedPct: 100, exhaustC: Array.from({ length: 18 }, () => 540) };
+}
 export const ROUTES: RouteCase[] = [
   { method: 'GET', url: '/v1/units', path: '/v1/units', allowed: ['viewer', 'operator', 'admin'], unitScoped: false },
   { method: 'POST', url: '/v1/units', path: '/v1/units', allowed: ['admin'], payload: () => unitBody(`auth-new-${n++}`), unitScoped: false },
@@ -42,6 +47,8 @@ export const ROUTES: RouteCase[] = [
   { method: 'GET', url: '/v1/webhooks', path: '/v1/webhooks', allowed: ['admin'], unitScoped: false },
   { method: 'GET', url: `/v1/webhooks/${AUTH_WEBHOOK_ID}/deliveries`, path: '/v1/webhooks/{id}/deliveries', allowed: ['admin'], unitScoped: false },
   { method: 'DELETE', url: `/v1/webhooks/${AUTH_WEBHOOK_ID}`, path: '/v1/webhooks/{id}', allowed: ['admin'], unitScoped: false },
+  { method: 'POST', url: '/v1/units/auth-a/rings', path: '/v1/units/{unitId}/rings', allowed: ['ingest', 'admin'], payload: () => ({ rings: [authRing(n++)] }), unitScoped: true },
+  { method: 'POST', url: '/v1/rings', path: '/v1/rings', allowed: ['ingest', 'admin'], contentType: 'application/x-ndjson', payload: () => JSON.stringify({ unitId: 'auth-a', ...authRing(n++) }) + '\n', unitScoped: false },
   { method: 'GET', url: '/v1/units/auth-a/status', path: '/v1/units/{unitId}/status', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'GET', url: '/v1/units/auth-a/baselines', path: '/v1/units/{unitId}/baselines', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'POST', url: '/v1/units/auth-a/baselines', path: '/v1/units/{unitId}/baselines', allowed: ['admin'], payload: () => ({ from: '2026-01-01T00:00:00Z', to: '2026-01-15T00:00:00Z' }), unitScoped: true },
@@ -63,7 +70,8 @@ const ALL_ROLES: Role[] = ['ingest', 'viewer', 'operator', 'admin'];
 
 describe('auth matrix', () => {
   for (const r of ROUTES) {
-    const call = (headers: Record<string, string>) => t.app.inject({ method: r.method, url: r.url, headers, ...(r.payload ? { payload: r.payload() } : {}) });
+    const call = (headers: Record<string, string>) =>
+      t.app.inject({ method: r.method, url: r.url, headers: r.contentType ? { ...headers, 'content-type': r.contentType } : headers, ...(r.payload ? { payload: r.payload() } : {}) });
 
     it(`${r.method} ${r.url}: 401 without a key, with an unknown key, with a revoked key`, async () => {
       const none = await call({});

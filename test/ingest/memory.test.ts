@@ -12,7 +12,6 @@ import v8 from 'node:v8';
 import vm from 'node:vm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { bearer, createTestApp, type TestApp } from '../helpers/app.ts';
-import { ingestRoutes } from '../../services/ingest/routes.ts';
 import { count, registerUnit, TC } from './fixtures.ts';
 
 v8.setFlagsFromString('--expose-gc');
@@ -21,7 +20,7 @@ const gc = (globalThis.gc ?? vm.runInNewContext('gc')) as () => void;
 let t: TestApp;
 let port: number;
 beforeAll(async () => {
-  t = await createTestApp({ routes: [ingestRoutes] });
+  t = await createTestApp();
   await registerUnit(t, 'mem-a');
   await registerUnit(t, 'mem-b');
   await t.app.listen({ host: '127.0.0.1', port: 0 });

@@ -20,7 +20,6 @@ import { migrate } from '../../services/db/migrate.ts';
 import { createPool, type Pool } from '../../services/db/pool.ts';
 import { countRings } from '../../services/db/rings.ts';
 import { createUnitsRepository } from '../../services/db/units.ts';
-import { ingestRoutes } from '../../services/ingest/routes.ts';
 import { unitBody } from '../helpers/app.ts';
 import { ndjson, ring } from './fixtures.ts';
 
@@ -48,7 +47,6 @@ beforeAll(async () => {
     pool,
     logger,
     parts: { api: false, ingest: true },
-    routes: [ingestRoutes],
   });
   await app.listen({ host: '127.0.0.1', port: 0 });
   port = (app.server.address() as AddressInfo).port;
