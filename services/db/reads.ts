@@ -86,6 +86,20 @@ export async function fleetRecords(q: Queryable, scope: string[] | null, nowMs: 
   }));
 }
 
+/**
+ * A cheap fingerprint of everything fleetRecords reads except the clock: open alerts (count and
+ * latest change), analysis progress (latest change), units and configuration versions. Equal
+ * fingerprints mean equal records, apart from rings stored but not yet analysed.
+ */
+export async function fleetVersion(q: Queryable): Promise<string> {
+  const { rows } = await q.query(
+    `SELECT (SELECT count(*) || '/' || coalesce(max(updated_at)::text, '') FROM alerts WHERE closed_at IS NULL) AS a,
+            (SELECT coalesce(max(updated_at)::text, '') FROM analysis_progress) AS p,
+            (SELECT count(*) FROM unit_config_versions) || '/' || (SELECT count(*) FROM units) AS u`,
+  );
+  return `${rows[0].a}|${rows[0].p}|${rows[0].u}`;
+}
+
 // ---------------------------------------------------------------------------------------------
 // One analysed ring.
 
@@ -501,6 +515,7 @@ export type ReadsRepository = ReturnType<typeof createReadsRepository>;
 export function createReadsRepository(pool: pg.Pool) {
   return {
     fleet: (scope: string[] | null, nowMs: number) => fleetRecords(pool, scope, nowMs),
+    fleetVersion: () => fleetVersion(pool),
     analysisNear: (unitId: string, atMs: number | null) => analysisNear(pool, unitId, atMs),
     firstAnalysisTs: (unitId: string, sinceMs: number) => firstAnalysisTs(pool, unitId, sinceMs),
     ringReadings: (unitId: string, tsIso: string) => ringReadings(pool, unitId, tsIso),

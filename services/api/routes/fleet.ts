@@ -75,18 +75,42 @@ export function fleetRows(records: FleetRecord[], nowMs: number, silentS: number
   );
 }
 
+/** Fleet records are reused while the fleet's fingerprint is unchanged, for at most this long. */
+export const FLEET_CACHE_MS = 5_000;
+
 export async function fleetRoutes(base: FastifyInstance): Promise<void> {
   const app = base.withTypeProvider<TypeBoxTypeProvider>();
   const reads = readsOf(app);
   const silentS = app.appConfig.alerts.unitSilentS;
+  // A wall screen or fifty dashboards polling the board: one fingerprint query per request
+  // decides whether the records must be read again (they are, at the latest, every
+  // FLEET_CACHE_MS); within one second of the clock and one fingerprint every caller gets the
+  // same serialized body. Freshness comes from the clock of the second the body was made in.
+  interface Entry { version: string; atMs: number; records: FleetRecord[]; second: number; body: string | null }
+  const cache = new Map<string, Entry>();
+  async function body(scope: string[] | null, now: number): Promise<string> {
+    const key = scope === null ? '*' : [...scope].sort().join(',');
+    const second = Math.floor(now / 1000);
+    let e = cache.get(key);
+    const version = await reads.fleetVersion();
+    if (e && e.body !== null && e.second === second && e.version === version) return e.body;
+    if (!e || e.version !== version || now - e.atMs >= FLEET_CACHE_MS) {
+      const records = await reads.fleet(scope, now);
+      if (cache.size > 200) cache.clear();
+      e = { version, atMs: now, records, second, body: null };
+      cache.set(key, e);
+    }
+    const at = second * 1000;
+    e.second = second;
+    e.body = JSON.stringify({ asOf: new Date(at).toISOString(), units: fleetRows(e.records, at, silentS) });
+    return e.body;
+  }
 
   app.get('/v1/fleet', {
     schema: { tags: ['read'], summary: 'One row per unit, worst active alert first, with freshness, spread and coverage', response: { 200: FleetReply, ...readErrors } },
     config: { access: 'read' },
-  }, async (request) => {
-    const now = Date.now();
-    const records = await reads.fleet(unitScope(request), now);
-    return { asOf: new Date(now).toISOString(), units: fleetRows(records, now, silentS) };
+  }, async (request, reply) => {
+    return reply.header('content-type', 'application/json; charset=utf-8').send((await body(unitScope(request), Date.now())) as never);
   });
 
   app.get('/v1/fleet.svg', {
@@ -99,7 +123,7 @@ export async function fleetRoutes(base: FastifyInstance): Promise<void> {
     config: { access: 'read' },
   }, async (request, reply) => {
     const now = Date.now();
-    const rows = fleetRows(await reads.fleet(unitScope(request), now), now, silentS);
+    const rows = (JSON.parse(await body(unitScope(request), now)) as { units: FleetRow[] }).units;
     return reply.header('content-type', 'image/svg+xml; charset=utf-8').send(fleetSvg(rows, now));
   });
 }

@@ -1,0 +1,166 @@
+/**
+ * Read API benchmark: 1,000 units with a latest analysis each (synthetic rows written straight
+ * into the worker's tables), open alerts on a fifth of them, and a year of hourly and daily
+ * rollups on one unit. Measures GET /v1/fleet and GET /v1/units/:id/status with autocannon at
+ * 50 concurrent clients (p50, p99, requests per second), and a year of chamber trend read from
+ * the rollups (JSON and SVG). Uses DATABASE_URL if set, else an embedded PostgreSQL in a
+ * temporary directory. The last line printed is one JSON object {"bench":"api",…}.
+ * Goals: p99 under 50 ms for both routes; a year of trend under 200 ms.
+ */
+import { chmod, mkdtemp, rm } from 'node:fs/promises';
+import os from 'node:os';
+import path from 'node:path';
+import autocannon from 'autocannon';
+import { buildApp } from '../services/api/app.ts';
+import { loadConfig } from '../services/db/config.ts';
+import { startEmbeddedPostgres, type EmbeddedServer } from '../services/db/embedded.ts';
+import { createKeysRepository } from '../services/db/keys.ts';
+import { createLogger } from '../services/db/logger.ts';
+import { migrate } from '../services/db/migrate.ts';
+import { createPool } from '../services/db/pool.ts';
+import { insertAlerts, insertAnalyses, insertBaseline, insertRollups, type SyntheticRollup } from '../services/db/synthetic.ts';
+import { createUnitsRepository } from '../services/db/units.ts';
+import type { UnitConfig } from '../services/core/types.ts';
+
+const UNITS = Number(process.env.BENCH_UNITS ?? 1000);
+const CONNECTIONS = 50;
+const DURATION_S = Number(process.env.BENCH_DURATION_S ?? 10);
+const TREND_RUNS = 20;
+const HOUR = 3_600_000;
+const DAY = 86_400_000;
+
+const config: UnitConfig = {
+  ratedPowerMw: 42,
+  thermocouples: { count: 18, firstAngleDeg: 10 },
+  chambers: { count: 10, firstAngleDeg: 0 },
+  swirl: { sense: 1, curve: [[0.3, 92], [0.6, 74], [1.0, 55]] },
+  temperatureUnit: 'C',
+};
+
+const log = (line: string) => process.stdout.write(line + '\n');
+
+function percentile(sorted: number[], q: number): number {
+  return sorted[Math.min(sorted.length - 1, Math.floor(q * sorted.length))];
+}
+
+async function load(url: string, key: string, paths: () => string): Promise<{ p50: number; p99: number; rps: number; errors: number; non2xx: number }> {
+  const result = await autocannon({
+    url,
+    connections: CONNECTIONS,
+    duration: DURATION_S,
+    headers: { authorization: `Bearer ${key}` },
+    requests: [{ method: 'GET', setupRequest: (req) => ({ ...req, path: paths() }) }],
+  });
+  return { p50: result.latency.p50, p99: result.latency.p99, rps: Math.round(result.requests.average), errors: result.errors, non2xx: result.non2xx };
+}
+
+async function main(): Promise<void> {
+  const logger = createLogger(process.env.LOG_LEVEL ?? 'warn', { component: 'bench' });
+  let url = process.env.DATABASE_URL;
+  let server: EmbeddedServer | undefined;
+  let dir: string | undefined;
+  if (!url) {
+    dir = await mkdtemp(path.join(os.tmpdir(), 'cansight-bench-api-'));
+    await chmod(dir, 0o777);
+    server = await startEmbeddedPostgres({ dataDir: path.join(dir, 'data'), preferredPort: 0, logger });
+    url = server.url;
+  }
+  const pool = createPool(url, { max: 24 });
+  try {
+    await migrate(pool, logger);
+    const now = Date.now();
+    const tag = now.toString(36);
+    const ids = Array.from({ length: UNITS }, (_, i) => `bench-${tag}-${i}`);
+    log(`api benchmark: ${UNITS} units, ${CONNECTIONS} concurrent clients, ${DURATION_S} s per route`);
+    let t0 = performance.now();
+    const units = createUnitsRepository(pool);
+    for (const id of ids) await units.create({ id, name: `Bench unit ${id.split('-').at(-1)}`, site: 'Bench' }, config, 'bench');
+    for (let i = 0; i < ids.length; i++) {
+      const dev = Array.from({ length: 18 }, (_, k) => Math.sin(k + i) * 6);
+      await insertAnalyses(pool, ids[i], [
+        { tsMs: now - 60_000 - (i % 60) * 1000, loadFraction: 0.6 + (i % 40) / 100, spreadC: 20 + (i % 25), spreadLimitC: 40, validity: dev.map((_, k) => (i % 17 === 0 && k === 3 ? 2 : 0)), tcDeviationC: dev, chamberDeviationC: Array.from({ length: 10 }, (_, k) => Math.cos(k + i) * 4), swirlDeg: 70 },
+      ]);
+      if (i % 5 === 0) {
+        await insertAlerts(pool, ids[i], [
+          { kind: 'spread_high', grade: (['notice', 'warning', 'alarm', 'critical'] as const)[i % 4], raisedAtMs: now - HOUR, message: 'synthetic spread alert' },
+          ...(i % 10 === 0 ? [{ kind: 'thermocouple_fault', grade: 'warning' as const, thermocouple: 4, raisedAtMs: now - 2 * HOUR, message: 'synthetic thermocouple alert' }] : []),
+        ]);
+      }
+    }
+    // A year of rollups for the first unit: hourly and daily, every metric the worker writes.
+    const trendUnit = ids[0];
+    const rows: SyntheticRollup[] = [];
+    const metrics: Array<[string, number]> = [['spread', 1], ['spread_excl1', 1], ['spread_excl2', 1], ['ring_mean', 1], ['load_fraction', 1], ['chamber_deviation', 10], ['chamber_residual', 10], ['tc_deviation', 18], ['tc_residual', 18], ['tc_invalid', 18]];
+    for (const [period, step, count] of [['hour', HOUR, 366 * 24], ['day', DAY, 366]] as const) {
+      const end = Math.floor(now / step) * step;
+      for (let j = count - 1; j >= 0; j--) {
+        for (const [metric, subjects] of metrics) rows.push({ period, metric, bucketMs: end - j * step, means: Array.from({ length: subjects }, (_, k) => Math.sin(j / 50 + k) * 3) });
+      }
+    }
+    await insertRollups(pool, trendUnit, rows);
+    await insertBaseline(pool, trendUnit, 1, now - 400 * DAY, now - 380 * DAY);
+    await pool.query('ANALYZE');
+    log(`loaded ${UNITS} units, ${rows.length.toLocaleString('en')} rollup rows in ${((performance.now() - t0) / 1000).toFixed(1)} s`);
+
+    const cfg = loadConfig({ ...process.env, LOG_LEVEL: 'silent', CANSIGHT_RATE_LIMIT_PER_MIN: '10000000' });
+    const app = await buildApp({ config: cfg, pool, logger: createLogger('silent'), parts: { api: true, ingest: false } });
+    const base = await app.listen({ host: '127.0.0.1', port: 0 });
+    const key = (await createKeysRepository(pool).create('viewer', null, 'bench')).key;
+
+    // Warm up (compiles serializers, fills the pool).
+    for (let i = 0; i < 20; i++) {
+      await fetch(`${base}/v1/fleet`, { headers: { authorization: `Bearer ${key}` } });
+      await fetch(`${base}/v1/units/${ids[i]}/status`, { headers: { authorization: `Bearer ${key}` } });
+    }
+    const fleetBody = await (await fetch(`${base}/v1/fleet`, { headers: { authorization: `Bearer ${key}` } })).json() as { units: unknown[] };
+    if (fleetBody.units.length !== UNITS) throw new Error(`fleet returned ${fleetBody.units.length} units, expected ${UNITS}`);
+
+    const fleet = await load(base, key, () => '/v1/fleet');
+    log(`GET /v1/fleet                p50 ${fleet.p50} ms  p99 ${fleet.p99} ms  ${fleet.rps} req/s  (errors ${fleet.errors}, non-2xx ${fleet.non2xx})`);
+    let n = 0;
+    const status = await load(base, key, () => `/v1/units/${ids[n++ % ids.length]}/status`);
+    log(`GET /v1/units/:id/status     p50 ${status.p50} ms  p99 ${status.p99} ms  ${status.rps} req/s  (errors ${status.errors}, non-2xx ${status.non2xx})`);
+
+    const from = new Date(now - 365 * DAY).toISOString();
+    const to = new Date(now).toISOString();
+    const time = async (u: string) => {
+      const ms: number[] = [];
+      for (let i = 0; i < TREND_RUNS; i++) {
+        t0 = performance.now();
+        const res = await fetch(base + u, { headers: { authorization: `Bearer ${key}` } });
+        const body = await res.text();
+        if (res.status !== 200 || body.length < 100) throw new Error(`${u}: ${res.status} ${body.slice(0, 200)}`);
+        ms.push(performance.now() - t0);
+      }
+      ms.sort((a, b) => a - b);
+      return { median: Math.round(percentile(ms, 0.5) * 10) / 10, max: Math.round(ms[ms.length - 1] * 10) / 10 };
+    };
+    const trendJson = await time(`/v1/units/${trendUnit}/chambers/4/trend?from=${from}&to=${to}`);
+    const trendSvg = await time(`/v1/units/${trendUnit}/chambers/4/trend.svg?from=${from}&to=${to}`);
+    log(`a year of chamber trend      JSON median ${trendJson.median} ms (max ${trendJson.max})  SVG median ${trendSvg.median} ms (max ${trendSvg.max})`);
+    await app.close();
+
+    const goals = { p99UnderMs: 50, yearTrendUnderMs: 200 };
+    const met = fleet.p99 < goals.p99UnderMs && status.p99 < goals.p99UnderMs && trendJson.median < goals.yearTrendUnderMs && trendSvg.median < goals.yearTrendUnderMs;
+    log(JSON.stringify({
+      bench: 'api',
+      units: UNITS,
+      connections: CONNECTIONS,
+      durationS: DURATION_S,
+      fleet: { p50Ms: fleet.p50, p99Ms: fleet.p99, reqPerS: fleet.rps, errors: fleet.errors + fleet.non2xx },
+      status: { p50Ms: status.p50, p99Ms: status.p99, reqPerS: status.rps, errors: status.errors + status.non2xx },
+      yearTrendMs: { json: trendJson.median, svg: trendSvg.median, jsonMax: trendJson.max, svgMax: trendSvg.max },
+      goals,
+      met,
+    }));
+  } finally {
+    await pool.end();
+    if (server) await server.stop();
+    if (dir) await rm(dir, { recursive: true, force: true });
+  }
+}
+
+main().catch((err) => {
+  process.stderr.write(`bench/api: ${(err as Error).stack ?? err}\n`);
+  process.exitCode = 1;
+});
