@@ -18,11 +18,13 @@ const INT2_OID = 21;
 
 export class CopyBinaryWriter {
   private buf: Buffer;
+  private view: DataView;
   private pos = 0;
   rows = 0;
 
   constructor(initialBytes = 1 << 20) {
-    this.buf = Buffer.allocUnsafe(initialBytes);
+    this.buf = Buffer.alloc(initialBytes);
+    this.view = new DataView(this.buf.buffer, this.buf.byteOffset, this.buf.byteLength);
     this.reset();
   }
 
@@ -38,9 +40,10 @@ export class CopyBinaryWriter {
     if (this.pos + n <= this.buf.length) return;
     let size = this.buf.length * 2;
     while (size < this.pos + n) size *= 2;
-    const next = Buffer.allocUnsafe(size);
+    const next = Buffer.alloc(size);
     this.buf.copy(next, 0, 0, this.pos);
     this.buf = next;
+    this.view = new DataView(next.buffer, next.byteOffset, next.byteLength);
   }
 
   row(fields: number): void {
@@ -94,8 +97,8 @@ export class CopyBinaryWriter {
   float4(v: number | null): void {
     if (v === null || !Number.isFinite(v)) return this.null();
     this.room(8);
-    this.buf.writeInt32BE(4, this.pos);
-    this.buf.writeFloatBE(v, this.pos + 4);
+    this.view.setInt32(this.pos, 4);
+    this.view.setFloat32(this.pos + 4, v);
     this.pos += 8;
   }
 
@@ -122,49 +125,49 @@ export class CopyBinaryWriter {
     this.room(4 + 20 + 8 * n);
     const lenAt = this.pos;
     const start = this.pos + 4;
-    const b = this.buf;
-    b.writeInt32BE(1, start);
+    const d = this.view;
+    d.setInt32(start, 1);
     const nullAt = start + 4;
-    b.writeInt32BE(FLOAT4_OID, start + 8);
-    b.writeInt32BE(n, start + 12);
-    b.writeInt32BE(1, start + 16);
+    d.setInt32(start + 8, FLOAT4_OID);
+    d.setInt32(start + 12, n);
+    d.setInt32(start + 16, 1);
     let p = start + 20;
     let hasNull = 0;
     for (let i = 0; i < n; i++) {
       const v = values[i];
-      if (Number.isFinite(v)) {
-        b.writeInt32BE(4, p);
-        b.writeFloatBE(v, p + 4);
+      if (v === v && v !== Infinity && v !== -Infinity) {
+        d.setInt32(p, 4);
+        d.setFloat32(p + 4, v);
         p += 8;
       } else {
-        b.writeInt32BE(-1, p);
+        d.setInt32(p, -1);
         p += 4;
         hasNull = 1;
       }
     }
-    b.writeInt32BE(hasNull, nullAt);
-    b.writeInt32BE(p - start, lenAt);
+    d.setInt32(nullAt, hasNull);
+    d.setInt32(lenAt, p - start);
     this.pos = p;
   }
 
   /** smallint[] of the first n values. */
   int2Array(values: ArrayLike<number>, n = values.length): void {
     this.room(4 + 20 + 6 * n);
-    const b = this.buf;
+    const d = this.view;
     const lenAt = this.pos;
     const start = this.pos + 4;
-    b.writeInt32BE(1, start);
-    b.writeInt32BE(0, start + 4);
-    b.writeInt32BE(INT2_OID, start + 8);
-    b.writeInt32BE(n, start + 12);
-    b.writeInt32BE(1, start + 16);
+    d.setInt32(start, 1);
+    d.setInt32(start + 4, 0);
+    d.setInt32(start + 8, INT2_OID);
+    d.setInt32(start + 12, n);
+    d.setInt32(start + 16, 1);
     let p = start + 20;
     for (let i = 0; i < n; i++) {
-      b.writeInt32BE(2, p);
-      b.writeInt16BE(values[i], p + 4);
+      d.setInt32(p, 2);
+      d.setInt16(p + 4, values[i]);
       p += 6;
     }
-    b.writeInt32BE(p - start, lenAt);
+    d.setInt32(lenAt, p - start);
     this.pos = p;
   }
 

@@ -198,12 +198,22 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
     mark(ids);
   }
 
+  const jobs = new Set<Promise<void>>();
+  /** Runs a periodic job, logging its failure; stop() waits for the jobs in flight. */
   const safely = (what: string, fn: () => Promise<unknown>) => async () => {
     if (stopped) return;
+    const job = (async () => {
+      try {
+        await fn();
+      } catch (err) {
+        if (!stopped) log.error({ err: (err as Error).message }, `${what} failed`);
+      }
+    })();
+    jobs.add(job);
     try {
-      await fn();
-    } catch (err) {
-      log.error({ err: (err as Error).message }, `${what} failed`);
+      await job;
+    } finally {
+      jobs.delete(job);
     }
   };
 
@@ -253,7 +263,7 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
       if (claimTimer) clearTimeout(claimTimer);
       await listener.stop();
       await alertJobs.stop();
-      await Promise.allSettled([...running.values()]);
+      await Promise.allSettled([...jobs, ...running.values()]);
       await retireWorker(pool, workerId).catch((err) => log.warn({ err: (err as Error).message }, 'could not give units back'));
       log.info('worker stopped');
     },

@@ -35,6 +35,7 @@ import { driftStateStamp, readDriftStates } from '../db/drift.ts';
 import { createUnitsRepository } from '../db/units.ts';
 import type { ChamberDriftInput } from '../core/findings.ts';
 import { applyAlertObservations, type AlertSettings } from './alerts.ts';
+import { recordStartsForBatch } from '../db/starts.ts';
 import { bucketOf, DAY_MS, HOUR_MS, RollupAccumulator } from './rollups.ts';
 import { UnitAnalyser, type AnalyserInputs } from './unit-analyser.ts';
 
@@ -129,6 +130,8 @@ async function primedAnalyser(client: Parameters<typeof lockOwnedUnit>[0], unitI
   return analyser;
 }
 
+const r0 = (ms: number) => Math.round(ms);
+
 export type RoundStatus = 'lost' | 'idle' | 'done' | 'more';
 
 /**
@@ -151,8 +154,10 @@ export async function analyseNextBatch(pc: PipelineContext, unitId: string): Pro
         mem.watermarkMs = progress.watermarkMs;
       }
       const analyser = mem.analyser;
+      const t0 = performance.now();
       const rings = await readRingsAfter(client, unitId, progress.watermarkMs, batch);
       if (rings.count === 0) return { status: 'idle' as const, rings: 0 };
+      const t1 = performance.now();
       // From here the analyser's memory runs ahead of the database until COMMIT.
       mem.watermarkMs = NaN;
       const enc = new AnalysisEncoder(unitId);
@@ -164,17 +169,26 @@ export async function analyseNextBatch(pc: PipelineContext, unitId: string): Pro
         acc.add(r.row);
         if (r.raise && r.hold) observations.push({ ts: new Date(rings.tsMs[j]), raise: r.raise, hold: r.hold });
       }
+      const t2 = performance.now();
       await writeAnalysis(client, pc.pool, enc);
+      const t3 = performance.now();
       const stored = [
         ...(await readRollupBuckets(client, unitId, 'hour', acc.buckets('hour'))),
         ...(await readRollupBuckets(client, unitId, 'day', acc.buckets('day'))),
       ];
       await writeRollups(client, unitId, acc.mergedWith(stored));
+      const t4 = performance.now();
       const first = rings.tsMs[0];
       const last = rings.tsMs[rings.count - 1];
       await advanceProgress(client, unitId, last, rings.count, 0);
       await logBatch(client, { unitId, workerId: pc.workerId ?? NO_CLAIM, kind: 'in_order', fromMs: first, toMs: last, rings: rings.count });
+      await recordStartsForBatch(client, unitId, rings, inputs.versions, observations);
       if (observations.length) await applyAlertObservations(client, unitId, observations, pc.alertSettings);
+      const t5 = performance.now();
+      pc.logger.debug(
+        { unitId, rings: rings.count, readMs: r0(t1 - t0), analyseMs: r0(t2 - t1), writeMs: r0(t3 - t2), rollupMs: r0(t4 - t3), alertMs: r0(t5 - t4), observations: observations.length },
+        'batch analysed',
+      );
       newWatermark = last;
       return { status: rings.count >= batch ? ('more' as const) : ('done' as const), rings: rings.count };
     });

@@ -6,29 +6,15 @@
  * rebuilds it from stored rings and analysis after a restart or a takeover and the next ring
  * is analysed exactly as it would have been without the interruption. No I/O here.
  */
-import {
-  analyseRing,
-  baselineAt,
-  correctedLoadFraction,
-  defaultSteadyStateOptions,
-  evaluateFindings,
-  gradeRank,
-  prepareUnit,
-  spreadLimitDegC,
-  steadyState,
-  VALIDITY,
-  windowValidity,
-  type ChamberDriftInput,
-  type Finding,
-  type SteadyStateOptions,
-  type Thresholds,
-  type UnitBaseline,
-  type UnitContext,
-  type WindowVerdict,
-} from '../core/index.ts';
+import { analyseRing, prepareUnit, type UnitContext } from '../core/ring.ts';
+import { baselineAt, type UnitBaseline } from '../core/baseline.ts';
+import { correctedLoadFraction, defaultSteadyStateOptions, steadyState, type SteadyStateOptions } from '../core/correction.ts';
+import { evaluateFindings, gradeRank, spreadLimitDegC, type ChamberDriftInput, type Finding, type Thresholds } from '../core/findings.ts';
+import { VALIDITY } from '../core/types.ts';
+import { windowValidity, type WindowVerdict } from '../core/validity.ts';
 import type { WorkerConfig } from '../db/config.ts';
 import type { AnalysisColumns, AnalysisRow, RingColumns } from '../db/analysis.ts';
-import { versionInForce, type ConfigVersionRecord } from '../db/units.ts';
+import type { ConfigVersionRecord } from '../db/units.ts';
 
 export interface AnalyserInputs {
   unitId: string;
@@ -49,6 +35,8 @@ export interface RingResult {
 }
 
 const MAX_M = 64;
+/** Most rings the window tests look at. */
+const WINDOW_TEST_RINGS = 60;
 
 export class UnitAnalyser {
   private readonly contexts = new Map<number, UnitContext>();
@@ -62,10 +50,12 @@ export class UnitAnalyser {
   private wT: number[] = [];
   private wR: Float64Array[] = [];
   private lastSlot = NaN;
+  private verdictsDue = false;
   private verdicts: WindowVerdict[] = [];
   private verdictM = 0;
   // Recent validity codes.
   private codes: Uint8Array[] = [];
+  private codesHead = 0;
   private readonly outliers = new Int32Array(MAX_M);
   private readonly missing = new Int32Array(MAX_M);
   private prevSteadySpread: number | null = null;
@@ -75,6 +65,7 @@ export class UnitAnalyser {
   constructor(private inputs: AnalyserInputs) {
     this.steadyWindowS = inputs.settings.steadyWindowS;
     this.steadyOptions = { ...defaultSteadyStateOptions, windowS: this.steadyWindowS };
+    this.buildSchedule();
     this.windowMs = inputs.settings.windowTestMinutes * 60_000;
     this.slotMs = inputs.settings.windowTestEveryMinutes * 60_000;
   }
@@ -82,16 +73,32 @@ export class UnitAnalyser {
   /** New baseline, drift state or configuration versions; the memory of recent rings is kept. */
   setInputs(inputs: AnalyserInputs): void {
     const key = (i: AnalyserInputs) => i.versions.map((v) => `${v.version}@${v.effectiveFrom}`).join(',');
-    if (key(inputs) !== key(this.inputs)) this.contexts.clear();
+    const changed = key(inputs) !== key(this.inputs);
     this.inputs = inputs;
+    if (changed) {
+      this.contexts.clear();
+      this.buildSchedule();
+    }
   }
 
   get baselineVersion(): number | null {
     return this.inputs.baseline ? this.inputs.baseline.version : null;
   }
 
+  /** Configuration versions by the instant they take effect, oldest first. */
+  private schedule: { fromMs: number; v: ConfigVersionRecord }[] = [];
+
+  private buildSchedule(): void {
+    this.schedule = this.inputs.versions
+      .map((v) => ({ fromMs: v.effectiveFrom === null ? -Infinity : Date.parse(v.effectiveFrom), v }))
+      .sort((a, b) => a.fromMs - b.fromMs);
+  }
+
+  /** The configuration in force at tsMs (the first version before any takes effect) and its prepared context. */
   private context(tsMs: number): { ctx: UnitContext; version: number } {
-    const v = versionInForce(this.inputs.versions, tsMs) ?? this.inputs.versions[0];
+    const sch = this.schedule;
+    let v = sch[0].v;
+    for (let i = 1; i < sch.length && sch[i].fromMs <= tsMs; i++) v = sch[i].v;
     let ctx = this.contexts.get(v.version);
     if (!ctx) this.contexts.set(v.version, (ctx = prepareUnit(v.config)));
     return { ctx, version: v.version };
@@ -110,8 +117,8 @@ export class UnitAnalyser {
     }
   }
 
-  /** Window-test readings: add, drop older than the window; run the tests at the first ring of each slot. */
-  private pushReadings(tsMs: number, readings: Float64Array, m: number): void {
+  /** Window-test readings: add, drop older than the window; a new slot makes the verdicts due. */
+  private pushReadings(tsMs: number, readings: Float64Array): void {
     this.wT.push(tsMs);
     this.wR.push(readings);
     let k = 0;
@@ -122,28 +129,49 @@ export class UnitAnalyser {
       this.wR.splice(0, k);
     }
     const slot = Math.floor(tsMs / this.slotMs);
-    if (slot !== this.lastSlot || m !== this.verdictM) {
+    if (slot !== this.lastSlot) {
       this.lastSlot = slot;
-      this.verdictM = m;
-      const rings = this.wR.filter((r) => r.length === m);
-      this.verdicts = windowValidity(rings, m).filter((v) => v.reason !== 'valid');
+      this.verdictsDue = true;
     }
   }
 
-  /** Recent validity codes: add, count outliers and gaps, drop beyond recentRings. */
+  /**
+   * Runs the window tests when due, at the first ring in service of each slot (the tests only
+   * feed findings, which are only evaluated in service), over the readings of the window.
+   */
+  private refreshVerdicts(m: number): void {
+    if (!this.verdictsDue && m === this.verdictM) return;
+    this.verdictsDue = false;
+    this.verdictM = m;
+    const all = this.wR.filter((r) => r.length === m);
+    // At most WINDOW_TEST_RINGS rings, evenly spread over the window (seconds-apart transient
+    // rings would otherwise make the tests cost far more than the ring analysis).
+    const step = Math.max(1, Math.ceil(all.length / WINDOW_TEST_RINGS));
+    const rings = step === 1 ? all : all.filter((_, i) => (all.length - 1 - i) % step === 0);
+    this.verdicts = windowValidity(rings, m).filter((v) => v.reason !== 'valid');
+  }
+
+  private inService(speedPct: number, load: number): boolean {
+    const s = this.inputs.settings;
+    return speedPct >= s.findingsMinSpeedPct && load >= s.findingsMinLoad;
+  }
+
+  /** Recent validity codes: add, count outliers and gaps, drop the oldest beyond recentRings. */
   private pushCodes(codes: Uint8Array): void {
-    const m = Math.min(codes.length, MAX_M);
-    this.codes.push(codes);
-    for (let i = 0; i < m; i++) {
-      if (codes[i] === VALIDITY.isolated_outlier) this.outliers[i]++;
-      else if (codes[i] === VALIDITY.missing) this.missing[i]++;
-    }
-    while (this.codes.length > this.inputs.settings.recentRings) {
-      const old = this.codes.shift() as Uint8Array;
+    const cap = this.inputs.settings.recentRings;
+    if (this.codes.length >= cap) {
+      const old = this.codes[this.codesHead];
       for (let i = 0; i < Math.min(old.length, MAX_M); i++) {
         if (old[i] === VALIDITY.isolated_outlier) this.outliers[i]--;
         else if (old[i] === VALIDITY.missing) this.missing[i]--;
       }
+      this.codes[this.codesHead] = codes;
+      this.codesHead = (this.codesHead + 1) % cap;
+    } else this.codes.push(codes);
+    const m = Math.min(codes.length, MAX_M);
+    for (let i = 0; i < m; i++) {
+      if (codes[i] === VALIDITY.isolated_outlier) this.outliers[i]++;
+      else if (codes[i] === VALIDITY.missing) this.missing[i]++;
     }
   }
 
@@ -158,7 +186,8 @@ export class UnitAnalyser {
       const { ctx } = this.context(t);
       const load = correctedLoadFraction(rings.loadMw[j], rings.ambientC[j], rings.ambientKPa[j], ctx.config);
       this.pushLoad(t / 1000, load);
-      this.pushReadings(t, rings.exhaustC[j], ctx.m);
+      this.pushReadings(t, rings.exhaustC[j]);
+      if (this.inService(rings.speedPct[j], load)) this.refreshVerdicts(ctx.m);
       this.lastTsMs = t;
     }
     for (let j = 0; j < recent.count; j++) this.pushCodes(Uint8Array.from(recent.validity[j]));
@@ -176,7 +205,7 @@ export class UnitAnalyser {
     this.pushLoad(tsMs / 1000, load);
     const st = steadyState(speed, this.stT, this.stL, tsMs / 1000, this.steadyOptions);
     const a = analyseRing(ctx, readings, load);
-    this.pushReadings(tsMs, readings, ctx.m);
+    this.pushReadings(tsMs, readings);
     const validity = a.validity.slice();
     this.pushCodes(validity);
 
@@ -199,8 +228,8 @@ export class UnitAnalyser {
 
     let raise: Finding[] | null = null;
     let hold: Finding[] | null = null;
-    const s = this.inputs.settings;
-    if (speed >= s.findingsMinSpeedPct && load >= s.findingsMinLoad) {
+    if (this.inService(speed, load)) {
+      this.refreshVerdicts(ctx.m);
       const history = {
         previousSteadySpreadDegC: this.prevSteadySpread,
         recentOutlierCounts: this.outliers.subarray(0, ctx.m),
