@@ -31,6 +31,7 @@ import { thermocoupleRoutes } from './routes/thermocouples.ts';
 import { pictureRoutes } from './routes/pictures.ts';
 import { reviewRoutes } from './routes/review.ts';
 import { swirlRoutes } from './routes/swirl.ts';
+import { startRoutes } from './routes/starts.ts';
 import { ErrorReply } from './schemas.ts';
 import './context.ts';
 
@@ -112,6 +113,7 @@ export async function buildApp(deps: AppDeps): Promise<FastifyInstance> {
   if (parts.api) await app.register(pictureRoutes);
   if (parts.api) await app.register(reviewRoutes);
   if (parts.api) await app.register(swirlRoutes);
+  if (parts.api) await app.register(startRoutes);
   for (const r of deps.routes ?? []) await app.register(r);
   return app;
 }

@@ -1299,7 +1299,8 @@ function startFindings(an: StartAnalyser, c: StartInProgress, rec: StartRecord):
     out.push({
       kind: 'start_failed',
       grade: o.failedGrade[rec.outcome],
-      chamber: unlit.length === 1 ? unlit[0] : null,
+      // One condition per unit: the chamber a failed start points to is in the evidence and in its chamber_unlit finding.
+      chamber: null,
       thermocouple: null,
       likelihood: null,
       runnerUpChamber: null,

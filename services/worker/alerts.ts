@@ -87,6 +87,9 @@ export interface AlertSettings {
 const KIND_DEFAULTS: Partial<Record<AlertKind, { onDelayS: number; offDelayS: number }>> = {
   spread_jump: { onDelayS: 0, offDelayS: 600 },
   unit_silent: { onDelayS: 0, offDelayS: 0 },
+  // Start findings are held by the start recorder until a later start clears them (services/db/starts.ts).
+  chamber_unlit: { onDelayS: 0, offDelayS: 0 },
+  start_failed: { onDelayS: 0, offDelayS: 0 },
 };
 
 /** Alert settings from the configuration: general delays, per-kind defaults, then per-kind variables. */

@@ -7,6 +7,7 @@ import { bearer, createTestApp, unitBody, type TestApp } from '../helpers/app.ts
 import type { Role } from '../../services/db/keys.ts';
 import { createKeysRepository } from '../../services/db/keys.ts';
 import { AUTH_ALERT_ID, AUTH_WEBHOOK_ID, seedAuthFixtures } from '../helpers/alerts.ts';
+import { AUTH_START_ID, seedStart } from '../starts/fixtures.ts';
 
 let t: TestApp;
 beforeAll(async () => {
@@ -14,6 +15,7 @@ beforeAll(async () => {
   await t.app.inject({ method: 'POST', url: '/v1/units', headers: bearer(t.keys.admin), payload: unitBody('auth-a') });
   await t.app.inject({ method: 'POST', url: '/v1/units', headers: bearer(t.keys.admin), payload: unitBody('auth-b') });
   await seedAuthFixtures(t.db.pool);
+  await seedStart(t.db.pool, 'auth-a');
 });
 afterAll(async () => t.close());
 
@@ -64,6 +66,9 @@ export const ROUTES: RouteCase[] = [
   { method: 'GET', url: '/v1/units/auth-a/chambers/2/trend.svg', path: '/v1/units/{unitId}/chambers/{chamber}/trend.svg', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'GET', url: '/v1/units/auth-a/spread.svg', path: '/v1/units/{unitId}/spread.svg', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'GET', url: '/v1/units/auth-a/review', path: '/v1/units/{unitId}/review', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  { method: 'GET', url: '/v1/units/auth-a/starts', path: '/v1/units/{unitId}/starts', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  { method: 'GET', url: `/v1/units/auth-a/starts/${AUTH_START_ID}`, path: '/v1/units/{unitId}/starts/{startId}', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  { method: 'GET', url: `/v1/units/auth-a/starts/${AUTH_START_ID}/start.svg`, path: '/v1/units/{unitId}/starts/{startId}/start.svg', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
 ];
 
 const ALL_ROLES: Role[] = ['ingest', 'viewer', 'operator', 'admin'];

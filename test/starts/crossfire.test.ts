@@ -87,7 +87,7 @@ describe('a chamber that fails to crossfire, over chamber counts 8–16 and both
       expect(unlit.grade).toBe('alarm');
       const failed = r.found!.findings.find((x) => x.kind === 'start_failed')!;
       expect(failed.evidence.stoppedIn).toBe('acceleration');
-      expect(failed.chamber).toBe(r.truth.unlitChamber);
+      expect(failed.evidence.unlitChambers).toBe(String(r.truth.unlitChamber));
       expect(r.found!.lighting!.unlitChambers).toEqual([r.truth.unlitChamber]);
       expect(r.found!.crossfireCompleteS).toBeNull();
     }

@@ -31,6 +31,8 @@ export const AlertKindSchema = Type.Union([
   Type.Literal('chamber_hot'),
   Type.Literal('chamber_drift'),
   Type.Literal('unit_silent'),
+  Type.Literal('chamber_unlit'),
+  Type.Literal('start_failed'),
 ]);
 const ActionSchema = Type.Union([
   Type.Literal('raised'),
