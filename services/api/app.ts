@@ -24,6 +24,7 @@ import { unitRoutes } from './routes/units.ts';
 import { alertRoutes } from './routes/alerts.ts';
 import { workerRoutes } from './routes/status.ts';
 import { dashboardRoutes } from './routes/dashboard.ts';
+import { ingestRoutes } from '../ingest/routes.ts';
 import { fleetRoutes } from './routes/fleet.ts';
 import { analysisRoutes } from './routes/analysis.ts';
 import { chamberRoutes } from './routes/chambers.ts';
@@ -114,6 +115,7 @@ export async function buildApp(deps: AppDeps): Promise<FastifyInstance> {
   if (parts.api) await app.register(reviewRoutes);
   if (parts.api) await app.register(swirlRoutes);
   if (parts.api) await app.register(startRoutes);
+  if (parts.ingest) await app.register(ingestRoutes);
   for (const r of deps.routes ?? []) await app.register(r);
   return app;
 }
