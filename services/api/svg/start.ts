@@ -30,7 +30,7 @@ export interface StartPlotInput {
 const W = 780;
 const L = 66;
 const R = 66;
-const T = 58;
+const T = 76;
 const PANEL = [150, 110, 170];
 const GAP = 26;
 const B = 70;
@@ -77,7 +77,8 @@ export function startSvg(p: StartPlotInput): string {
     const fill = i % 2 === 0 ? '#f2f2f2' : '#ffffff';
     out.push(`<rect class="phase" data-phase="${esc(ph.phase)}" x="${c(a)}" y="${T}" width="${c(b - a)}" height="${c(bottom - T)}" fill="${fill}"><title>${esc(ph.phase.replace(/_/g, ' '))}: ${num(ph.durationS, 1)} s</title></rect>`);
     out.push(`<line x1="${c(a)}" x2="${c(a)}" y1="${T}" y2="${c(bottom)}" stroke="${PALETTE.grid}" stroke-width="0.6" stroke-dasharray="2 2"/>`);
-    out.push(`<text x="${c(a + 2)}" y="${T - 4 - (i % 2) * 10}" font-size="9">${esc(PHASE_LABEL[ph.phase] ?? ph.phase)}</text>`);
+    // Three rows of labels, so short phases side by side stay readable.
+    out.push(`<text x="${c(a + 2)}" y="${T - 4 - (i % 3) * 10}" font-size="9">${esc(PHASE_LABEL[ph.phase] ?? ph.phase)}</text>`);
   });
   out.push('</g>');
 
