@@ -59,10 +59,17 @@ export async function listBaselines(q: Queryable, unitId: string): Promise<Basel
 
 /**
  * Stores a new version numbered after the newest one. `build` receives that number and returns
- * the baseline to store; unit-level advisory lock so two fits of one unit take turns.
+ * the baseline to store; unit-level advisory lock so two fits of one unit take turns. With a
+ * request id, the request is marked fitted in the same transaction, and nothing is stored
+ * (null) when the request is no longer pending.
  */
-export async function insertBaseline(client: pg.ClientBase, unitId: string, build: (version: number) => UnitBaseline): Promise<BaselineRecord> {
+export async function insertBaseline(client: pg.ClientBase, unitId: string, build: (version: number) => UnitBaseline, requestId?: string): Promise<BaselineRecord | null> {
   await client.query(`SELECT pg_advisory_xact_lock(hashtext('cansight-baseline:' || $1))`, [unitId]);
+  if (requestId !== undefined) {
+    // A request is fitted once: whoever holds its row while it is still pending.
+    const { rows } = await client.query(`SELECT state FROM baseline_requests WHERE id = $1 FOR UPDATE`, [requestId]);
+    if (rows.length === 0 || rows[0].state !== 'pending') return null;
+  }
   const version = (await latestBaselineVersion(client, unitId)) + 1;
   const b = build(version);
   const { rows } = await client.query(
@@ -70,6 +77,9 @@ export async function insertBaseline(client: pg.ClientBase, unitId: string, buil
      VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9) RETURNING *`,
     [unitId, version, b.window.from, b.window.to, b.method, b.fittedAt, b.fittedBy, b.sampleCount, JSON.stringify(b)],
   );
+  if (requestId !== undefined) {
+    await client.query(`UPDATE baseline_requests SET state = 'fitted', version = $2, finished_at = now() WHERE id = $1`, [requestId, version]);
+  }
   return fromRow(rows[0]);
 }
 

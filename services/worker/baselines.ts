@@ -8,7 +8,7 @@
 import { defaultBaselineOptions, fitUnitBaseline, type BaselineOptions, type BaselineSample } from '../core/baseline.ts';
 import type { WorkerConfig } from '../db/config.ts';
 import { countSteady, readAnalysis } from '../db/analysis.ts';
-import { dueBaselineRequests, finishBaselineRequest, firstSteadyMs, insertBaseline, latestBaselineVersion, type BaselineRecord } from '../db/baselines.ts';
+import { dueBaselineRequests, finishBaselineRequest, insertBaseline, latestBaselineVersion, type BaselineRecord } from '../db/baselines.ts';
 import type { Logger } from '../db/logger.ts';
 import { withTransaction, type Pool } from '../db/pool.ts';
 import { isoMicros } from '../db/pg-binary.ts';
@@ -26,7 +26,16 @@ export function baselineOptions(settings: Pick<WorkerConfig, 'baselineBinWidth' 
  * Fits and stores a new baseline version from the steady rings in [fromMs, toMs). Throws a
  * BaselineFitError naming the problem when no load bin holds enough steady rings.
  */
-export async function fitBaseline(pool: Pool, unitId: string, fromMs: number, toMs: number, by: string, settings: WorkerConfig, nowMs = Date.now()): Promise<BaselineRecord> {
+export async function fitBaseline(
+  pool: Pool,
+  unitId: string,
+  fromMs: number,
+  toMs: number,
+  by: string,
+  settings: WorkerConfig,
+  opts: { nowMs?: number; requestId?: string } = {},
+): Promise<BaselineRecord | null> {
+  const nowMs = opts.nowMs ?? Date.now();
   const options = baselineOptions(settings);
   const total = await countSteady(pool, unitId, fromMs, toMs);
   if (total === 0) throw new BaselineFitError(`unit ${unitId} has no steady analysed rings between ${isoMicros(fromMs)} and ${isoMicros(toMs)}`);
@@ -57,23 +66,18 @@ export async function fitBaseline(pool: Pool, unitId: string, fromMs: number, to
       `no load bin between ${window.from} and ${window.to} holds ${options.minCount} steady rings (the fullest holds ${best}); choose a longer window`,
     );
   }
-  return withTransaction(pool, (c) => insertBaseline(c, unitId, (version) => ({ ...probe, version })));
+  return withTransaction(pool, (c) => insertBaseline(c, unitId, (version) => ({ ...probe, version }), opts.requestId));
 }
 
 /**
- * The automatic first fit: when the unit has no baseline and its steady data reach from its
- * first steady ring to at least baselineAutoDays later (up to the watermark), fits the window
- * of those first days. Returns the new version, or null when it is not time yet.
+ * The automatic first fit over [fromMs, toMs) (from the unit's first steady ring, at least
+ * baselineAutoDays long). Null when the unit already has a baseline or no load bin holds
+ * enough steady rings yet.
  */
-export async function maybeFitFirstBaseline(pool: Pool, unitId: string, watermarkMs: number | null, settings: WorkerConfig): Promise<BaselineRecord | null> {
-  if (watermarkMs === null) return null;
+export async function fitFirstBaseline(pool: Pool, unitId: string, fromMs: number, toMs: number, settings: WorkerConfig): Promise<BaselineRecord | null> {
   if ((await latestBaselineVersion(pool, unitId)) > 0) return null;
-  const first = await firstSteadyMs(pool, unitId);
-  if (first === null) return null;
-  const to = first + settings.baselineAutoDays * 86_400_000;
-  if (watermarkMs < to) return null;
   try {
-    return await fitBaseline(pool, unitId, first, to, 'automatic', settings);
+    return await fitBaseline(pool, unitId, fromMs, toMs, 'automatic', settings);
   } catch (err) {
     if (err instanceof BaselineFitError) return null;
     throw err;
@@ -88,8 +92,8 @@ export async function fitDueRequests(pool: Pool, logger: Logger, unitIds: string
   const done: string[] = [];
   for (const r of await dueBaselineRequests(pool, unitIds)) {
     try {
-      const b = await fitBaseline(pool, r.unitId, r.windowFrom.getTime(), r.windowTo.getTime(), r.requestedBy, settings);
-      await finishBaselineRequest(pool, r.id, { version: b.version });
+      const b = await fitBaseline(pool, r.unitId, r.windowFrom.getTime(), r.windowTo.getTime(), r.requestedBy, settings, { requestId: r.id });
+      if (!b) continue;
       done.push(r.unitId);
       logger.info({ unitId: r.unitId, requestId: r.id, baselineVersion: b.version }, 'requested baseline fitted');
     } catch (err) {

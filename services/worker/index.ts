@@ -16,7 +16,8 @@ import { ensureProgressRows, findLateRings, receivedHorizon, setLateCheckedFrom 
 import { claimUnits, ensureClaimRows, heartbeat, liveWorkerCount, releaseUnits, renewLeases, retireWorker } from '../db/claims.ts';
 import { startAlertJobs } from './alert-jobs.ts';
 import { deadbandThresholds, loadAlertSettings } from './alerts.ts';
-import { fitDueRequests, maybeFitFirstBaseline } from './baselines.ts';
+import { fitDueRequests, fitFirstBaseline } from './baselines.ts';
+import { firstSteadyMs } from '../db/baselines.ts';
 import { runDrift, type DriftRunResult } from './drift.ts';
 import { startListener } from './listener.ts';
 import { analyseNextBatch, invalidateInputs, memoryOf, reanalyseSpan, spansOf, type PipelineContext } from './pipeline.ts';
@@ -42,8 +43,8 @@ export interface Worker {
   stop(): Promise<void>;
 }
 
-/** How often a unit without a baseline is checked for enough steady data. */
-const AUTO_FIT_CHECK_MS = 5 * 60_000;
+/** How often a unit without a baseline and without a steady ring is looked at again. */
+const AUTO_FIT_CHECK_MS = 30_000;
 const RETRY_MS = 1_000;
 
 export async function startWorker(deps: WorkerDeps): Promise<Worker> {
@@ -119,19 +120,8 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
         return;
       }
       if (r.rings > 0) log.debug({ unitId, rings: r.rings }, 'rings analysed');
-      if (r.status === 'more') {
-        dirty.add(unitId);
-        return;
-      }
-      const mem = memoryOf(pc, unitId);
-      if (mem.baselineVersion === null && Date.now() - mem.lastAutoFitCheck > AUTO_FIT_CHECK_MS) {
-        mem.lastAutoFitCheck = Date.now();
-        const fitted = await maybeFitFirstBaseline(pool, unitId, mem.watermarkMs, s);
-        if (fitted) {
-          invalidateInputs(pc, unitId);
-          log.info({ unitId, baselineVersion: fitted.version, from: fitted.windowFrom, to: fitted.windowTo }, 'first baseline fitted');
-        }
-      }
+      if (r.status === 'more') dirty.add(unitId);
+      await firstBaselineWhenDue(unitId);
     } catch (err) {
       log.error({ unitId, err: (err as Error).message }, 'analysis round failed; retrying');
       setTimeout(() => mark([unitId]), RETRY_MS).unref();
@@ -145,6 +135,26 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
       cycle = null;
     });
     return cycle;
+  }
+
+  /** Fits a unit's first baseline once analysis has passed its first baselineAutoDays of steady data. */
+  async function firstBaselineWhenDue(unitId: string): Promise<void> {
+    const mem = memoryOf(pc, unitId);
+    if (mem.baselineVersion !== null || mem.watermarkMs === null || !Number.isFinite(mem.watermarkMs)) return;
+    if (mem.autoFitDueMs === null) {
+      if (Date.now() - mem.lastAutoFitCheck < AUTO_FIT_CHECK_MS) return;
+      mem.lastAutoFitCheck = Date.now();
+      const first = await firstSteadyMs(pool, unitId);
+      if (first === null) return;
+      mem.autoFitFromMs = first;
+      mem.autoFitDueMs = first + s.baselineAutoDays * 86_400_000;
+    }
+    if (mem.watermarkMs < mem.autoFitDueMs) return;
+    const fitted = await fitFirstBaseline(pool, unitId, mem.autoFitFromMs as number, mem.autoFitDueMs, s);
+    invalidateInputs(pc, unitId);
+    if (fitted) log.info({ unitId, baselineVersion: fitted.version, from: fitted.windowFrom, to: fitted.windowTo }, 'first baseline fitted');
+    // Too few steady rings per load bin yet: try again with one more day of data.
+    else mem.autoFitDueMs = mem.watermarkMs + 86_400_000;
   }
 
   async function claimCycleOnce(): Promise<void> {
@@ -183,7 +193,16 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
     }
   }
 
-  async function sweep(): Promise<void> {
+  let sweeping: Promise<void> | null = null;
+  /** One sweep at a time (the schedule and callers may ask at once). */
+  function sweep(): Promise<void> {
+    sweeping ??= sweepOnce().finally(() => {
+      sweeping = null;
+    });
+    return sweeping;
+  }
+
+  async function sweepOnce(): Promise<void> {
     if (stopped) return;
     await claimCycle();
     const ids = [...owned];

@@ -60,7 +60,11 @@ export interface UnitMemory {
   inputsLoadedAt: number;
   baselineVersion: number | null;
   driftStamp: number | null;
+  /** Wall time of the last look for the first steady ring (units without a baseline). */
   lastAutoFitCheck: number;
+  /** When the first baseline is due (first steady ring + baselineAutoDays), once known. */
+  autoFitDueMs: number | null;
+  autoFitFromMs: number | null;
 }
 
 /** Inputs (configuration versions, baseline, drift) are re-read at most this often. */
@@ -69,7 +73,7 @@ const NO_CLAIM = 'no lease check';
 
 export function memoryOf(pc: PipelineContext, unitId: string): UnitMemory {
   let m = pc.memory.get(unitId);
-  if (!m) pc.memory.set(unitId, (m = { analyser: null, watermarkMs: null, inputs: null, inputsLoadedAt: 0, baselineVersion: null, driftStamp: null, lastAutoFitCheck: 0 }));
+  if (!m) pc.memory.set(unitId, (m = { analyser: null, watermarkMs: null, inputs: null, inputsLoadedAt: 0, baselineVersion: null, driftStamp: null, lastAutoFitCheck: 0, autoFitDueMs: null, autoFitFromMs: null }));
   return m;
 }
 

@@ -129,7 +129,7 @@ export async function baselineRoutes(base: FastifyInstance): Promise<void> {
       return reply.status(202).send(requestReply(r));
     }
     try {
-      const b = await fitBaseline(app.pool, unitId, from, to, by, app.appConfig.worker);
+      const b = (await fitBaseline(app.pool, unitId, from, to, by, app.appConfig.worker)) as BaselineRecord;
       request.log.info({ unitId, baselineVersion: b.version, from: request.body.from, to: request.body.to }, 'baseline fitted on request');
       return reply.status(201).send(baselineReply(b, true));
     } catch (err) {
