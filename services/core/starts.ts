@@ -183,6 +183,8 @@ export interface StartOptions {
   crankMaxS: number;
   /** Fuel flow above this is "fuel on", kg/s (engineering judgement: above a meter's zero error). */
   fuelOnKgS: number;
+  /** A flame seen out while the fuel is still on (or not sent) is taken as out only after this long without it, s (engineering judgement: flame detectors can drop out for a moment). */
+  flameOutConfirmS: number;
   /** Fuel on this long without flame: failed to fire, s (engineering judgement). */
   firingTimeoutS: number;
   /** Without flame detectors or fuel flow: a ring-mean rise this far above the crank level is flame, °C. */
@@ -265,6 +267,7 @@ export const defaultStartOptions: StartOptions = {
   crankSpeedPct: 2,
   crankMaxS: 1800,
   fuelOnKgS: 0.005,
+  flameOutConfirmS: 3,
   firingTimeoutS: 60,
   flameExhaustRiseDegC: 20,
   warmupCutRatio: 0.8,
@@ -415,6 +418,8 @@ export interface StartDetectorState {
   coastMinMs: number | null;
   /** Last load seen while running above the synchronising level, MW (tells a trip from a stop without flame or fuel signals). */
   lastLoadMw: number | null;
+  /** First ring without flame after flame, while the loss awaits confirmation, ms. */
+  flameOffSinceMs?: number | null;
   counters: StartCounters;
 }
 
@@ -429,6 +434,7 @@ export function initialStartState(): StartDetectorState {
     coastMinSpeedPct: null,
     coastMinMs: null,
     lastLoadMw: null,
+    flameOffSinceMs: null,
     counters: { firedStarts: 0, failedStarts: 0, trips: 0, firedSeconds: 0 },
   };
 }
@@ -513,7 +519,12 @@ export function stepStartDetector(an: StartAnalyser, state: StartDetectorState, 
   if (!isNum(r.tMs) || !isNum(r.speedPct)) return [];
   if (prev && r.tMs <= prev.t) return [];
   const events: StartEvent[] = [];
-  const fired = firedOf(r, o);
+  let fired = firedOf(r, o);
+  // A flame that was on is out only once confirmed: the fuel is off too, or no flame for flameOutConfirmS.
+  if (fired === false && prev?.firedSeen) {
+    state.flameOffSinceMs ??= r.tMs;
+    if (fuelOnOf(r, o) !== false && r.tMs - state.flameOffSinceMs < o.flameOutConfirmS * 1000) fired = true;
+  } else if (fired !== false) state.flameOffSinceMs = null;
   const fuel = isNum(r.fuelFlowKgS) ? r.fuelFlowKgS : null;
   const load = isNum(r.loadMw) ? r.loadMw : 0;
   const dtS = prev ? (r.tMs - prev.t) / 1000 : 0;
@@ -552,7 +563,11 @@ export function stepStartDetector(an: StartAnalyser, state: StartDetectorState, 
           state.mode = 'idle';
         } else if (r.speedPct >= o.tripMinSpeedPct && fired === true && (prev?.speed ?? 0) < o.crankSpeedPct) {
           enterRun(state, null, r.tMs);
-        } else if (fuelOn === true || fired === true || r.speedPct > (state.coastMinSpeedPct ?? 0) + o.crankSpeedPct) {
+        } else if (
+          (fuelOn === true && !(prev !== null && prev.fuel !== null && prev.fuel > o.fuelOnKgS)) ||
+          (fired === true && prev?.fired !== true) ||
+          r.speedPct > (state.coastMinSpeedPct ?? 0) + o.crankSpeedPct
+        ) {
           // Cranked again before the shaft stopped: the start began where the speed was lowest.
           beginStart(an, state, state.coastMinMs ?? r.tMs, r);
           again = true;
@@ -568,7 +583,7 @@ export function stepStartDetector(an: StartAnalyser, state: StartDetectorState, 
         const rated = an.config.ratedPowerMw;
         if (fired === false) {
           // Flame out: a trip when the shaft was still at speed, else the end of a normal coast-down.
-          endRun(state, r.tMs, Math.max(r.speedPct, prev?.speed ?? 0) >= o.tripMinSpeedPct, events);
+          endRun(state, state.flameOffSinceMs ?? r.tMs, Math.max(r.speedPct, prev?.speed ?? 0) >= o.tripMinSpeedPct, events);
           enterCoast(state, r);
         } else if (fired === null && r.speedPct < o.tripMinSpeedPct) {
           // No flame or fuel signal: the shaft left full speed. A trip drops the load it carried; a stop unloads first.
@@ -584,6 +599,7 @@ export function stepStartDetector(an: StartAnalyser, state: StartDetectorState, 
   if (prev && prev.firedSeen && firedNow) state.counters.firedSeconds += Math.min(dtS, o.firedGapMaxS);
   if (state.mode === 'running' && load > o.syncLoadFraction * an.config.ratedPowerMw) state.lastLoadMw = load;
   state.prev = { t: r.tMs, speed: r.speedPct, load, fuel, fired, firedSeen: firedNow };
+  if (fired === false) state.flameOffSinceMs = null;
   return events;
 }
 
@@ -676,6 +692,8 @@ function startStep(
   addTrace(c, r, fuel, fired, mean, spread, inLightWindow ? chamberArray(a) : null, o, inLightWindow);
   const rated = an.config.ratedPowerMw;
   const fuelOn = fuelOnOf(r, o);
+  // When the flame went out (the first ring without it, once the loss is confirmed).
+  const outAt = state.flameOffSinceMs ?? t;
   const finish = (outcome: StartOutcome, stoppedIn: StartPhase | null, endMs: number): true => {
     finishStart(an, state, outcome, stoppedIn, endMs, events);
     return true;
@@ -727,7 +745,7 @@ function startStep(
     case 'warm_up': {
       if (c.phase === 'flame_established' && fuel !== null && fuelOn) c.firingFuelKgS = Math.max(c.firingFuelKgS ?? 0, fuel);
       pushLight(c, t, r.speedPct, mean, spread, a);
-      if (fired === false) return finish('flame_lost_in_warmup', c.phase, t);
+      if (fired === false) return finish('flame_lost_in_warmup', c.phase, outAt);
       if (c.phase === 'flame_established' && fuel !== null && c.firingFuelKgS !== null && fuel <= o.warmupCutRatio * c.firingFuelKgS) {
         c.at.warm_up = t;
         c.speedAt.warm_up = r.speedPct;
@@ -752,7 +770,7 @@ function startStep(
     case 'full_speed_no_load':
     case 'synchronised':
     case 'loading': {
-      return laterPhases(an, state, c, r, prev, fired, load, spread, rated, finish);
+      return laterPhases(an, state, c, r, prev, fired, load, spread, rated, outAt, finish);
     }
   }
   return false;
@@ -768,6 +786,7 @@ function laterPhases(
   load: number,
   spread: number | null,
   rated: number,
+  outAt: number,
   finish: (outcome: StartOutcome, stoppedIn: StartPhase | null, endMs: number) => true,
 ): boolean {
   const o = an.options;
@@ -797,7 +816,7 @@ function laterPhases(
       // Spreads of the rings already past the full-speed instant (this ring's is added below).
       for (const p of c.trace) if (p.tMs >= fsnl && p.tMs < t && p.spreadDegC !== null) c.fsnlSpreads.push(p.spreadDegC);
     }
-    if (fired === false || (fired === null && r.speedPct < c.maxSpeed - 10)) return finish('aborted', c.phase, t);
+    if (fired === false || (fired === null && r.speedPct < c.maxSpeed - 10)) return finish('aborted', c.phase, fired === false ? outAt : t);
     if (c.phase !== 'full_speed_no_load') return false;
   }
   if (c.phase === 'full_speed_no_load') {
@@ -812,8 +831,8 @@ function laterPhases(
     }
     if (fired === false) {
       const trip = Math.max(r.speedPct, prev?.speed ?? 0) >= o.tripMinSpeedPct && r.speedPct >= o.tripMinSpeedPct - 5;
-      if (trip) return finish('aborted', 'full_speed_no_load', t);
-      finish('completed', null, t);
+      if (trip) return finish('aborted', 'full_speed_no_load', outAt);
+      finish('completed', null, outAt);
       return true;
     }
     return false;
@@ -842,7 +861,7 @@ function laterPhases(
   if (t - (c.at.synchronised ?? t) >= o.loadingMaxS * 1000) return finish('completed', null, t);
   if (fired === false || load < o.syncLoadFraction * rated * 0.5) {
     // The run ends (or the breaker opened) before the load settled: the start itself completed.
-    finish('completed', null, t);
+    finish('completed', null, fired === false ? outAt : t);
     return true;
   }
   void state;

@@ -63,6 +63,24 @@ describe('failed starts', () => {
     expect(counters).toMatchObject({ firedStarts: 0, failedStarts: 1 });
   });
 
+  it('flame lost while the fuel is still on: confirmed after a few seconds, the start ending where the flame went out', () => {
+    const lossAt = ms(start.warmupAt) + 30_000;
+    const { start: d } = only(failedStartBatch(b, lossAt, { fuelOnS: 10, fuelKgS: start.warmupFuelKgS }));
+    expect(d.outcome).toBe('flame_lost_in_warmup');
+    expect(Math.abs(d.endMs - lossAt)).toBeLessThanOrEqual(1000);
+  });
+
+  it('a flame detector dropping out for one ring while the fuel stays on is not a lost flame', () => {
+    const c = structuredClone(b);
+    let r = 0;
+    while (c.tsMs[r] < ms(start.warmupAt) + 20_000) r++;
+    c.flameDetected[r] = 0;
+    const res = detectStarts(unit.config, startRings(c));
+    const d = res.starts.find((x) => Math.abs(x.crankMs - ms(start.crankAt)) < 5000)!;
+    expect(d.outcome).toBe('completed');
+    expect(d.findings).toEqual([]);
+  });
+
   it('a crank without fuel is not a start', () => {
     const firing = ms(start.firingAt);
     const batch = failedStartBatch(b, firing, { fuelOnS: 10, fuelKgS: 0, holdReadingsFromMs: firing });
