@@ -4,7 +4,7 @@
  * guard), then routes. `parts` chooses what this process serves: the read/act API, ingest, or
  * both (cansight start).
  */
-import Fastify, { type FastifyInstance, type FastifyServerOptions } from 'fastify';
+import Fastify, { LogController, type FastifyInstance, type FastifyServerOptions } from 'fastify';
 import helmet from '@fastify/helmet';
 import rateLimit from '@fastify/rate-limit';
 import swagger from '@fastify/swagger';
@@ -64,7 +64,8 @@ export async function buildApp(deps: AppDeps): Promise<FastifyInstance> {
     connectionTimeout: 0,
     requestTimeout: 300_000,
     keepAliveTimeout: 72_000,
-    disableRequestLogging: true,
+    // One line per event that matters (errors, refusals, stored rings), not two per request.
+    logController: new LogController({ disableRequestLogging: true }),
   });
 
   // Bodies are validated strictly (no coercion, unknown fields refused by the schemas);

@@ -83,8 +83,19 @@ export function toErrorReply(err: unknown): { status: number; body: ErrorBody } 
   return { status, body: { error: 'internal', message: 'An internal error occurred; it has been logged.' } };
 }
 
+/** True when the client closed the connection before the request body ended. */
+function clientWentAway(err: unknown, rawAborted: boolean): boolean {
+  const code = (err as { code?: string } | null)?.code;
+  return rawAborted || code === 'ECONNRESET' || code === 'ERR_STREAM_PREMATURE_CLOSE' || code === 'ECONNABORTED';
+}
+
 export function installErrorHandling(app: FastifyInstance): void {
   app.setErrorHandler((err, request, reply) => {
+    if (clientWentAway(err, request.raw.aborted || request.raw.destroyed) && !isDatabaseUnavailable(err)) {
+      // Nothing was stored (one transaction per request) and nobody is there to answer.
+      request.log.info({ url: request.url }, 'client closed the connection before the request ended; nothing stored');
+      return reply.status(400).send({ error: 'bad_request', message: 'The request ended before its body was complete.' });
+    }
     const { status, body } = toErrorReply(err);
     if (status >= 500) request.log.error({ err }, 'request failed');
     else request.log.info({ status, error: body.error, reason: body.message }, 'request refused');

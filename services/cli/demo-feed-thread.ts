@@ -10,6 +10,8 @@ import { mergeByTime } from '../sim/merge.ts';
 import type { SimUnit } from '../sim/types.ts';
 
 const DAY_MS = 86_400_000;
+/** Aborts the request in flight when the parent says stop, so stopping never waits for a send. */
+const stopSending = new AbortController();
 
 export interface DemoFeedJob {
   baseUrl: string;
@@ -34,6 +36,7 @@ async function send(baseUrl: string, key: string, body: string): Promise<{ accep
     method: 'POST',
     headers: { authorization: `Bearer ${key}`, 'content-type': 'application/x-ndjson' },
     body,
+    signal: stopSending.signal,
   });
   const reply = (await res.json()) as { accepted: number; duplicates: number; rejectedCount?: number; message?: string };
   if (!res.ok) throw new Error(`demo ingest answered ${res.status}: ${reply.message ?? ''}`);
@@ -69,6 +72,7 @@ async function run(job: DemoFeedJob): Promise<void> {
   port.on('message', (m: { type: string }) => {
     if (m.type === 'stop') {
       stopped = true;
+      stopSending.abort();
       wake?.();
     }
   });
@@ -85,7 +89,7 @@ async function run(job: DemoFeedJob): Promise<void> {
     }
     tell({ type: 'backfilled', rings, seconds: Math.round((Date.now() - t0) / 100) / 10 });
   } catch (err) {
-    tell({ type: 'failed', message: (err as Error).message });
+    if (!stopped) tell({ type: 'failed', message: (err as Error).message });
     port.close();
     return;
   }
@@ -101,7 +105,7 @@ async function run(job: DemoFeedJob): Promise<void> {
       last = to;
       if (n) tell({ type: 'sent', rings: n });
     } catch (err) {
-      tell({ type: 'warn', message: (err as Error).message });
+      if (!stopped) tell({ type: 'warn', message: (err as Error).message });
     }
   }
   port.close();

@@ -43,14 +43,6 @@ export async function serve(config: Config, opts: ServeOptions): Promise<void> {
   runtime.onShutdown(() => app.close());
   const address = await app.listen({ host: config.host, port: config.port });
   runtime.logger.info({ address, startMs: Date.now() - started }, 'listening');
-  if (opts.worker) {
-    const worker = await startWorker({ pool: runtime.pool, logger: runtime.logger, config });
-    runtime.onShutdown(() => worker.stop());
-  }
-  if (opts.demo) {
-    const feed = await startDemoFeed({ pool: runtime.pool, logger: runtime.logger, baseUrl: address, ...config.demo });
-    runtime.onShutdown(() => feed.stop());
-  }
   if (opts.announce) {
     const lines = [
       `Cansight is running at ${address}  (API reference: ${address}/docs)`,
@@ -59,6 +51,14 @@ export async function serve(config: Config, opts: ServeOptions): Promise<void> {
     if (firstKey) lines.push(`admin key (shown once, store it now): ${firstKey}`);
     lines.push('Cansight advises; the turbine\'s own protection and the site\'s procedures govern. Stop with Ctrl-C.');
     process.stdout.write(lines.join('\n') + '\n');
+  }
+  if (opts.worker) {
+    const worker = await startWorker({ pool: runtime.pool, logger: runtime.logger, config });
+    runtime.onShutdown(() => worker.stop());
+  }
+  if (opts.demo) {
+    const feed = await startDemoFeed({ pool: runtime.pool, logger: runtime.logger, baseUrl: address, ...config.demo });
+    runtime.onShutdown(() => feed.stop());
   }
   await stopped;
 }

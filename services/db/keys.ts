@@ -44,7 +44,17 @@ function toRecord(r: Record<string, unknown>): KeyRecord {
   };
 }
 
-export function createKeysRepository(pool: pg.Pool) {
+/** How long a verified key is trusted without asking the database again, ms. */
+export const KEY_CACHE_MS = 5_000;
+/** Last use is written at most this often per key, ms. */
+const LAST_USED_EVERY_MS = 60_000;
+
+export function createKeysRepository(pool: pg.Pool, opts: { cacheMs?: number } = {}) {
+  const cacheMs = opts.cacheMs ?? KEY_CACHE_MS;
+  // hash → verified record and when it was read; a revoked key stops working within cacheMs
+  // in other processes, and at once in the process that revoked it.
+  const verified = new Map<string, { record: KeyRecord; readAt: number }>();
+  const lastUsedWritten = new Map<string, number>();
   return {
     /** Creates a key; returns its record and the key value, which is never stored. */
     async create(role: Role, unitIds: string[] | null, label: string | null = null, value = newKeyValue()): Promise<{ key: string; record: KeyRecord }> {
@@ -77,6 +87,7 @@ export function createKeysRepository(pool: pg.Pool) {
 
     /** Revokes by id or by prefix; returns the number of keys revoked. */
     async revoke(idOrPrefix: string): Promise<number> {
+      verified.clear();
       const isUuid = /^[0-9a-f-]{36}$/i.test(idOrPrefix);
       const { rowCount } = await pool.query(
         isUuid
@@ -87,17 +98,33 @@ export function createKeysRepository(pool: pg.Pool) {
       return rowCount ?? 0;
     },
 
-    /** The live key with this value, or null; records last use at most once a minute. */
+    /**
+     * The live key with this value, or null. Verified keys are kept for a few seconds so a busy
+     * client costs no query per request; last use is recorded at most once a minute, after the
+     * answer, without holding the request.
+     */
     async verify(value: string): Promise<KeyRecord | null> {
-      const { rows } = await pool.query(
-        `UPDATE api_keys SET last_used_at = now()
-           WHERE key_hash = $1 AND revoked_at IS NULL AND (last_used_at IS NULL OR last_used_at < now() - interval '1 minute')
-         RETURNING ${COLUMNS}`,
-        [hashKey(value)],
-      );
-      if (rows.length) return toRecord(rows[0]);
-      const found = await pool.query(`SELECT ${COLUMNS} FROM api_keys WHERE key_hash = $1 AND revoked_at IS NULL`, [hashKey(value)]);
-      return found.rows.length ? toRecord(found.rows[0]) : null;
+      const hash = hashKey(value);
+      const now = Date.now();
+      const hit = verified.get(hash);
+      let record: KeyRecord | null;
+      if (hit && now - hit.readAt < cacheMs) {
+        record = hit.record;
+      } else {
+        const found = await pool.query(`SELECT ${COLUMNS} FROM api_keys WHERE key_hash = $1 AND revoked_at IS NULL`, [hash]);
+        record = found.rows.length ? toRecord(found.rows[0]) : null;
+        if (record) {
+          if (verified.size > 10_000) verified.clear();
+          verified.set(hash, { record, readAt: now });
+        } else {
+          verified.delete(hash);
+        }
+      }
+      if (record && now - (lastUsedWritten.get(hash) ?? 0) >= LAST_USED_EVERY_MS) {
+        lastUsedWritten.set(hash, now);
+        pool.query(`UPDATE api_keys SET last_used_at = now() WHERE key_hash = $1`, [hash]).catch(() => lastUsedWritten.delete(hash));
+      }
+      return record;
     },
   };
 }
