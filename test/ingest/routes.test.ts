@@ -259,10 +259,11 @@ describe('a stream cut off mid-way', () => {
     const port = (t.app.server.address() as AddressInfo).port;
     const req = http.request({ host: '127.0.0.1', port, method: 'POST', path: '/v1/rings', headers: { ...bearer(t.keys.ingest), 'content-type': 'application/x-ndjson' } });
     req.on('error', () => undefined);
-    // 60 rings: several chunks (of 7) are already copied into the open transaction.
+    // 60 rings: several chunks (of 7) are already copied into the open transaction (a session
+    // with a transaction open, idle between chunks or busy copying one).
     req.write(ndjson(Array.from({ length: 60 }, (_, i) => ({ unitId: 'cut-1', ...ring(i) }))));
     const inTransaction = async () => {
-      const { rows } = await t.db.pool.query(`SELECT count(*)::int AS n FROM pg_stat_activity WHERE datname = current_database() AND state = 'idle in transaction'`);
+      const { rows } = await t.db.pool.query(`SELECT count(*)::int AS n FROM pg_stat_activity WHERE datname = current_database() AND pid <> pg_backend_pid() AND backend_type = 'client backend' AND xact_start IS NOT NULL`);
       return rows[0].n as number;
     };
     for (let i = 0; i < 1200 && (await inTransaction()) === 0; i++) await new Promise((r) => setTimeout(r, 25));
