@@ -1,0 +1,66 @@
+/**
+ * The detection scorecard's floors, on a smaller run than `npm run scorecard` but the same
+ * code: 20 simulated units (a third healthy, the rest one chamber or thermocouple fault each,
+ * geometry, swirl and dispatch drawn from the seed) sent through HTTP ingest, analysed by the
+ * worker, alerted by the alert rules, read back through GET /v1/alerts and scored against the
+ * simulator's ground truth. The worker fits its automatic baseline after 2 days of steady data
+ * here (3 days of clean reference), so the faults have 8 days to begin and develop.
+ * Floors: chamber faults attributed to the right chamber by the first chamber alert ≥ 95 %;
+ * thermocouple faults found as thermocouple faults and not blamed on a chamber ≥ 95 %; no
+ * alert of grade alarm or critical on a healthy unit.
+ */
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { loadConfig } from '../../services/db/config.ts';
+import { createLogger } from '../../services/db/logger.ts';
+import { DEFAULT_SCORECARD_END, formatScorecard, headline, scorecardFleet } from '../../services/sim/scorecard.ts';
+import { runScorecard, type ScorecardRun } from '../../services/sim/scorecard-run.ts';
+import { createTestDatabase, type TestDatabase } from '../helpers/db.ts';
+
+let db: TestDatabase;
+let run: ScorecardRun;
+const fleet = scorecardFleet({ seed: 7, units: 20, referenceDays: 3, days: 8, end: DEFAULT_SCORECARD_END });
+const config = loadConfig({ LOG_LEVEL: process.env.TEST_LOG_LEVEL ?? 'silent', HOST: '127.0.0.1', PORT: '0', CANSIGHT_RATE_LIMIT_PER_MIN: '10000000', CANSIGHT_BASELINE_AUTO_DAYS: '2' });
+
+beforeAll(async () => {
+  db = await createTestDatabase();
+  run = await runScorecard({ pool: db.pool, config, logger: createLogger(config.logLevel), fleet, say: process.env.SCORECARD_VERBOSE ? (l) => process.stderr.write(l + '\n') : undefined });
+  if (process.env.SCORECARD_VERBOSE) process.stderr.write(formatScorecard(run.figures) + '\n' + JSON.stringify(headline(run.figures)) + '\n');
+}, 600_000);
+
+afterAll(async () => {
+  await db?.drop();
+});
+
+describe('detection scorecard floors', () => {
+  it('scores every fault of the fleet', () => {
+    const faulty = fleet.units.length - fleet.healthy.length;
+    expect(run.figures.chamber.length + run.figures.thermocouple.length).toBe(faulty);
+    expect(run.figures.chamber.length).toBeGreaterThanOrEqual(4);
+    expect(run.figures.thermocouple.length).toBeGreaterThanOrEqual(4);
+    expect(run.rings).toBeGreaterThan(fleet.units.length * 11 * 1000);
+  });
+
+  it('attributes at least 95 % of chamber faults to the right chamber with the first chamber alert', () => {
+    const h = headline(run.figures);
+    const missed = run.figures.chamber.filter((c) => !c.top1);
+    expect(h.chamberTop1Pct, JSON.stringify(missed)).toBeGreaterThanOrEqual(95);
+  });
+
+  it('finds at least 95 % of thermocouple faults as thermocouple faults, not as chamber faults', () => {
+    const h = headline(run.figures);
+    const wrong = run.figures.thermocouple.filter((t) => !t.correct);
+    expect(h.tcAsTcPct, JSON.stringify(wrong)).toBeGreaterThanOrEqual(95);
+  });
+
+  it('raises no alert of grade alarm or critical on a healthy unit', () => {
+    const severe = run.figures.falseAlerts.filter((a) => a.grade === 'alarm' || a.grade === 'critical');
+    expect(severe).toEqual([]);
+  });
+
+  it('keeps the alarm rate per operator inside the EEMUA 191 benchmark', () => {
+    for (const r of run.figures.alarmRates) {
+      expect(r.per10Min, r.operator).toBeLessThanOrEqual(1);
+      expect(r.peak10Min, r.operator).toBeLessThanOrEqual(10);
+    }
+  });
+});
