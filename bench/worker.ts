@@ -7,7 +7,7 @@
  *       the last ring analysed; beside it the core's own rate (prepareUnit + analyseRing on the
  *       same rings, in this process) and their ratio;
  *   (b) alert latency: 200 units each sending one ring per second for 60 s over HTTP ingest
- *       (API, ingest and worker in one process, as `cansight start` runs them), with a cold
+ *       (API and ingest in this process, the worker as a `cansight worker` process), with a cold
  *       chamber injected at known instants on a quarter of them; for each, the time from the
  *       ingest 2xx of the first faulty ring at or after the on-delay to the alert being listed
  *       by GET /v1/alerts, p50 and p99.
@@ -19,6 +19,8 @@ import { mkdtemp, chmod, rm } from 'node:fs/promises';
 import os from 'node:os';
 import path from 'node:path';
 import { Worker as Thread } from 'node:worker_threads';
+import { spawn } from 'node:child_process';
+import { fileURLToPath } from 'node:url';
 import { createRequire } from 'node:module';
 import { analyseRing, correctedLoadFraction, prepareUnit } from '../services/core/index.ts';
 import { buildApp } from '../services/api/app.ts';
@@ -92,6 +94,12 @@ async function database(): Promise<{ adminUrl: string; stop: () => Promise<void>
   };
 }
 
+function databaseUrl(adminUrl: string, name: string): string {
+  const u = new URL(adminUrl);
+  u.pathname = '/' + name;
+  return u.toString();
+}
+
 async function freshDatabase(adminUrl: string, name: string): Promise<Pool> {
   const admin = createPool(adminUrl, { max: 1 });
   await admin.query(`DROP DATABASE IF EXISTS ${name} WITH (FORCE)`);
@@ -99,8 +107,9 @@ async function freshDatabase(adminUrl: string, name: string): Promise<Pool> {
   await admin.end();
   const u = new URL(adminUrl);
   u.pathname = '/' + name;
-  const pool = createPool(u.toString(), { max: 12, statementTimeoutMs: 600_000 });
+  const pool = createPool(u.toString(), { max: 24, statementTimeoutMs: 600_000 });
   await migrate(pool);
+  if (process.env.BENCH_ASYNC_COMMIT) await pool.query(`ALTER DATABASE ${name} SET synchronous_commit = off`);
   return pool;
 }
 
@@ -223,15 +232,15 @@ function ring(unitIdx, tsMs, faulty) {
 /** (b) Alert latency over HTTP ingest. */
 async function alertLatency(adminUrl: string): Promise<{ p50: number; p99: number; measured: number; faulty: number }> {
   const pool = await freshDatabase(adminUrl, 'bench_alerts');
+  const dbUrl = databaseUrl(adminUrl, 'bench_alerts');
   const config = loadConfig({
-    LOG_LEVEL: 'warn',
+    LOG_LEVEL: process.env.BENCH_LOG_LEVEL ?? 'warn',
     HOST: '127.0.0.1',
     PORT: '0',
     CANSIGHT_ALERT_ON_DELAY_S: String(ON_DELAY_S),
     CANSIGHT_RATE_LIMIT_PER_MIN: '10000000',
-    CANSIGHT_WORKER_CONCURRENCY: '4',
   });
-  const logger = createLogger('warn');
+  const logger = createLogger(config.logLevel);
   const units: string[] = [];
   const repo = createUnitsRepository(pool);
   for (let i = 0; i < UNITS; i++) {
@@ -250,7 +259,26 @@ async function alertLatency(adminUrl: string): Promise<{ p50: number; p99: numbe
   const { key } = await createKeysRepository(pool).create('admin', null, 'bench');
   const app = await buildApp({ config, pool, logger, parts: { api: true, ingest: true } });
   const address = await app.listen({ host: '127.0.0.1', port: 0 });
-  const worker = await startWorker({ pool, logger, config, workerId: 'bench-latency' });
+  // The worker in a process of its own (as `cansight worker` runs beside `cansight api`/`ingest`).
+  const workerProc = spawn(process.execPath, [fileURLToPath(new URL('../bin/cansight.mjs', import.meta.url)), 'worker'], {
+    env: {
+      ...process.env,
+      DATABASE_URL: dbUrl,
+      LOG_LEVEL: config.logLevel,
+      CANSIGHT_WORKER_ID: 'bench-latency',
+      CANSIGHT_ALERT_ON_DELAY_S: String(ON_DELAY_S),
+      ...(process.env.BENCH_CONCURRENCY ? { CANSIGHT_WORKER_CONCURRENCY: process.env.BENCH_CONCURRENCY } : {}),
+    },
+    stdio: ['ignore', process.env.BENCH_LOG_LEVEL ? 'inherit' : 'ignore', 'inherit'],
+  });
+  await new Promise((r) => setTimeout(r, 200));
+  // Wait until the worker holds every unit.
+  for (;;) {
+    const { rows } = await pool.query(`SELECT count(*)::int AS n FROM unit_claims WHERE worker_id = 'bench-latency' AND lease_until > now()`);
+    if (rows[0].n >= UNITS) break;
+    if (workerProc.exitCode !== null) throw new Error('the worker process ended early');
+    await new Promise((r) => setTimeout(r, 100));
+  }
 
   const seen = new Map<string, number>();
   let polling = true;
@@ -259,7 +287,7 @@ async function alertLatency(adminUrl: string): Promise<{ p50: number; p99: numbe
       const res = await app.inject({ method: 'GET', url: '/v1/alerts?state=active&limit=200', headers: { authorization: `Bearer ${key}` } });
       const now = Date.now();
       if (res.statusCode === 200) for (const a of res.json().alerts as { unitId: string }[]) if (!seen.has(a.unitId)) seen.set(a.unitId, now);
-      await new Promise((r) => setTimeout(r, 20));
+      await new Promise((r) => setTimeout(r, 100));
     }
   })();
 
@@ -284,7 +312,8 @@ async function alertLatency(adminUrl: string): Promise<{ p50: number; p99: numbe
   say(`alert latency: ${Object.keys(faults).length} faulty units, ${lat.filter(Number.isFinite).length} alerts seen, ${falseAlarms} units alerted without a fault`);
   lat.sort((a, b) => a - b);
   const q = (p: number) => lat[Math.min(lat.length - 1, Math.max(0, Math.ceil(p * lat.length) - 1))];
-  await worker.stop();
+  workerProc.kill('SIGTERM');
+  await new Promise((r) => workerProc.once('exit', r));
   await app.close();
   await pool.end();
   return { p50: q(0.5), p99: q(0.99), measured: lat.length, faulty: Object.keys(faults).length };

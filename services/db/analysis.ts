@@ -135,6 +135,53 @@ export async function readRingsAfter(client: pg.ClientBase, unitId: string, afte
   return decodeRings(body);
 }
 
+/**
+ * For several units at once: each unit's rings after its own watermark (all when null), oldest
+ * first, at most perUnitLimit each. One COPY for all of them.
+ */
+export async function readRingsAfterMany(client: pg.ClientBase, entries: { unitId: string; afterMs: number | null }[], perUnitLimit: number): Promise<Map<string, RingColumns>> {
+  const out = new Map<string, RingColumns>();
+  if (entries.length === 0) return out;
+  const ids = entries.map((e) => lit(e.unitId)).join(',');
+  const wms = entries.map((e) => (e.afterMs === null ? "'-infinity'" : `'${isoMicros(e.afterMs)}'`)).join(',');
+  const body = await copyOut(
+    client,
+    `SELECT u.unit_id, x.ts, x.load_mw, x.ambient_c, x.ambient_kpa, x.speed_pct, x.exhaust_c
+       FROM unnest(ARRAY[${ids}]::text[], ARRAY[${wms}]::timestamptz[]) AS u(unit_id, wm)
+       CROSS JOIN LATERAL (SELECT ${RING_READ_COLUMNS} FROM rings r WHERE r.unit_id = u.unit_id AND r.ts > u.wm ORDER BY r.ts LIMIT ${Math.max(0, Math.floor(perUnitLimit))}) x
+      ORDER BY u.unit_id, x.ts`,
+  );
+  const r = new CopyBinaryReader(body);
+  let cur: { id: string; ts: number[]; load: number[]; amb: number[]; kpa: number[]; speed: number[]; ex: Float64Array[] } | null = null;
+  const flush = () => {
+    if (!cur) return;
+    out.set(cur.id, {
+      count: cur.ts.length,
+      tsMs: Float64Array.from(cur.ts),
+      loadMw: Float64Array.from(cur.load),
+      ambientC: Float64Array.from(cur.amb),
+      ambientKPa: Float64Array.from(cur.kpa),
+      speedPct: Float64Array.from(cur.speed),
+      exhaustC: cur.ex,
+    });
+  };
+  while (r.nextRow() > 0) {
+    const id = r.text() as string;
+    if (!cur || cur.id !== id) {
+      flush();
+      cur = { id, ts: [], load: [], amb: [], kpa: [], speed: [], ex: [] };
+    }
+    cur.ts.push(r.timestamptz());
+    cur.load.push(r.float4());
+    cur.amb.push(r.float4());
+    cur.kpa.push(r.float4());
+    cur.speed.push(r.float4());
+    cur.ex.push(r.numberArray() ?? new Float64Array(0));
+  }
+  flush();
+  return out;
+}
+
 /** Rings of a unit with fromMs ≤ ts ≤ toMs, oldest first, at most limit. */
 export async function readRingsBetween(client: pg.ClientBase, unitId: string, fromMs: number, toMs: number, limit: number): Promise<RingColumns> {
   const body = await copyOut(
@@ -144,22 +191,22 @@ export async function readRingsBetween(client: pg.ClientBase, unitId: string, fr
   return decodeRings(body);
 }
 
-/** Encodes analysis rows for writeAnalysis. */
+/** Encodes analysis rows (of one unit, or several) for writeAnalysis. */
 export class AnalysisEncoder {
   readonly writer = new CopyBinaryWriter();
-  firstMs = Infinity;
-  lastMs = -Infinity;
+  /** Per unit: the first and last ring time written. */
+  readonly spans = new Map<string, [number, number]>();
 
-  constructor(readonly unitId: string) {}
+  constructor(readonly unitId: string = '') {}
 
   get count(): number {
     return this.writer.rows;
   }
 
-  add(a: AnalysisRow): void {
+  add(a: AnalysisRow, unitId: string = this.unitId): void {
     const w = this.writer;
     w.row(ANALYSIS_FIELD_COUNT);
-    w.text(this.unitId);
+    w.text(unitId);
     w.timestamptz(a.tsMs);
     w.int4(a.configVersion);
     w.int4(a.baselineVersion);
@@ -196,19 +243,30 @@ export class AnalysisEncoder {
     w.float4(a.runnerUpLikelihood);
     w.int2(a.worstGrade);
     w.jsonb(a.findingsJson);
-    if (a.tsMs < this.firstMs) this.firstMs = a.tsMs;
-    if (a.tsMs > this.lastMs) this.lastMs = a.tsMs;
+    const span = this.spans.get(unitId);
+    if (!span) this.spans.set(unitId, [a.tsMs, a.tsMs]);
+    else {
+      if (a.tsMs < span[0]) span[0] = a.tsMs;
+      if (a.tsMs > span[1]) span[1] = a.tsMs;
+    }
   }
 }
 
 /**
- * Writes the encoded rows, replacing any analysis of the same unit in [firstMs, lastMs]
- * (delete then COPY): writing the same span twice leaves one row per ring.
+ * Writes the encoded rows, replacing any analysis of each unit in the span it writes (delete
+ * then COPY): writing the same span twice leaves one row per ring.
  */
 export async function writeAnalysis(client: pg.ClientBase, pool: object, enc: AnalysisEncoder): Promise<void> {
   if (enc.count === 0) return;
-  await ensureAnalysisPartitions(client, pool, enc.firstMs, enc.lastMs);
-  await client.query('DELETE FROM ring_analysis WHERE unit_id = $1 AND ts >= $2 AND ts <= $3', [enc.unitId, isoMicros(enc.firstMs), isoMicros(enc.lastMs)]);
+  const spans = [...enc.spans.entries()];
+  const lo = Math.min(...spans.map(([, s]) => s[0]));
+  const hi = Math.max(...spans.map(([, s]) => s[1]));
+  await ensureAnalysisPartitions(client, pool, lo, hi);
+  await client.query(
+    `DELETE FROM ring_analysis a USING unnest($1::text[], $2::timestamptz[], $3::timestamptz[]) AS s(unit_id, lo, hi)
+      WHERE a.unit_id = s.unit_id AND a.ts >= s.lo AND a.ts <= s.hi`,
+    [spans.map(([u]) => u), spans.map(([, s]) => isoMicros(s[0])), spans.map(([, s]) => isoMicros(s[1]))],
+  );
   await copyIn(client, 'ring_analysis', ANALYSIS_COLUMNS, enc.writer.finish());
 }
 
@@ -244,6 +302,38 @@ export async function lockOwnedUnit(client: pg.ClientBase, unitId: string, worke
   };
 }
 
+/**
+ * lockOwnedUnit for several units in one statement (rows locked in unit order); a unit is
+ * missing from the result when this worker does not hold it, or workerId is null and it has
+ * no progress row (then no lease is checked).
+ */
+export async function lockUnits(client: pg.ClientBase, unitIds: string[], workerId: string | null): Promise<Map<string, UnitProgress>> {
+  const { rows } =
+    workerId === null
+      ? await client.query(
+          `SELECT p.unit_id, ${msOf('p.watermark_ts')} AS wm_ms, ${msOf('p.late_checked_from')} AS late_ms, p.rings_analysed, p.late_rings_analysed
+             FROM analysis_progress p WHERE p.unit_id = ANY($1::text[]) ORDER BY p.unit_id FOR UPDATE`,
+          [unitIds],
+        )
+      : await client.query(
+          `SELECT p.unit_id, ${msOf('p.watermark_ts')} AS wm_ms, ${msOf('p.late_checked_from')} AS late_ms, p.rings_analysed, p.late_rings_analysed
+             FROM unit_claims c JOIN analysis_progress p USING (unit_id)
+            WHERE c.unit_id = ANY($1::text[]) AND c.worker_id = $2 AND c.lease_until > now()
+            ORDER BY c.unit_id FOR UPDATE OF c`,
+          [unitIds, workerId],
+        );
+  const out = new Map<string, UnitProgress>();
+  for (const r of rows) {
+    out.set(r.unit_id, {
+      watermarkMs: r.wm_ms === null ? null : Number(r.wm_ms),
+      lateCheckedFromMs: Number(r.late_ms),
+      ringsAnalysed: Number(r.rings_analysed),
+      lateRingsAnalysed: Number(r.late_rings_analysed),
+    });
+  }
+  return out;
+}
+
 /** Inside the caller's transaction: locks the unit's progress row without a lease check (tools and tests). */
 export async function lockProgress(client: pg.ClientBase, unitId: string): Promise<UnitProgress | null> {
   const { rows } = await client.query(
@@ -274,6 +364,23 @@ export async function advanceProgress(client: pg.ClientBase, unitId: string, wat
             rings_analysed = rings_analysed + $3, late_rings_analysed = late_rings_analysed + $4, updated_at = now()
       WHERE unit_id = $1`,
     [unitId, watermarkMs === null ? null : isoMicros(watermarkMs), inOrder, late],
+  );
+}
+
+/** For several units at once: advances each watermark, adds its in-order rings, and logs its batch. */
+export async function recordInOrderBatches(client: pg.ClientBase, workerId: string, batches: { unitId: string; fromMs: number; toMs: number; rings: number }[]): Promise<void> {
+  if (batches.length === 0) return;
+  const ids = batches.map((b) => b.unitId);
+  const from = batches.map((b) => isoMicros(b.fromMs));
+  const to = batches.map((b) => isoMicros(b.toMs));
+  const n = batches.map((b) => b.rings);
+  await client.query(
+    `WITH b AS (SELECT * FROM unnest($1::text[], $2::timestamptz[], $3::timestamptz[], $4::int[]) AS b(unit_id, from_ts, to_ts, rings)),
+          p AS (UPDATE analysis_progress p
+                   SET watermark_ts = greatest(coalesce(p.watermark_ts, '-infinity'), b.to_ts), rings_analysed = p.rings_analysed + b.rings, updated_at = now()
+                  FROM b WHERE p.unit_id = b.unit_id)
+     INSERT INTO analysis_batches (unit_id, worker_id, kind, from_ts, to_ts, rings) SELECT unit_id, $5, 'in_order', from_ts, to_ts, rings FROM b`,
+    [ids, from, to, n, workerId],
   );
 }
 
@@ -489,6 +596,18 @@ export async function readRollupBuckets(q: Queryable, unitId: string, period: Ro
   return rows.map(rowFromDb);
 }
 
+/** Stored rollup rows of several units' buckets (any metric), each with its unit. */
+export async function readRollupBucketsMany(q: Queryable, keys: { unitId: string; period: RollupPeriod; bucketMs: number }[]): Promise<{ unitId: string; row: RollupRow }[]> {
+  if (keys.length === 0) return [];
+  const { rows } = await q.query(
+    `SELECT r.unit_id, r.period, r.metric, r.bucket, r.n, r.sum, r.sumsq, r.min, r.max
+       FROM unnest($1::text[], $2::text[], $3::timestamptz[]) AS k(unit_id, period, bucket)
+       JOIN analysis_rollups r ON r.unit_id = k.unit_id AND r.period = k.period AND r.bucket = k.bucket`,
+    [keys.map((k) => k.unitId), keys.map((k) => k.period), keys.map((k) => new Date(k.bucketMs))],
+  );
+  return rows.map((r) => ({ unitId: r.unit_id as string, row: rowFromDb(r) }));
+}
+
 /** Rollup rows of a unit for one period with fromMs ≤ bucket < toMs, optionally one metric, oldest first. */
 export async function readRollups(q: Queryable, unitId: string, period: RollupPeriod, fromMs: number, toMs: number, metric?: string): Promise<RollupRow[]> {
   const { rows } = await q.query(
@@ -503,9 +622,18 @@ const finiteOrNull = (v: number) => (Number.isFinite(v) ? v : null);
 
 /** Writes rollup rows whole (insert or replace). */
 export async function writeRollups(q: Queryable, unitId: string, rows: RollupRow[]): Promise<void> {
+  await writeRollupsMany(
+    q,
+    rows.map((row) => ({ unitId, row })),
+  );
+}
+
+/** Writes rollup rows of several units whole (insert or replace), in one statement. */
+export async function writeRollupsMany(q: Queryable, rows: { unitId: string; row: RollupRow }[]): Promise<void> {
   if (rows.length === 0) return;
   const payload = JSON.stringify(
-    rows.map((r) => ({
+    rows.map(({ unitId, row: r }) => ({
+      unit_id: unitId,
       period: r.period,
       metric: r.metric,
       bucket: new Date(r.bucketMs).toISOString(),
@@ -518,11 +646,11 @@ export async function writeRollups(q: Queryable, unitId: string, rows: RollupRow
   );
   await q.query(
     `INSERT INTO analysis_rollups (unit_id, period, metric, bucket, n, sum, sumsq, min, max)
-     SELECT $1, x.period, x.metric, x.bucket, x.n, x.sum, x.sumsq, x.min, x.max
-       FROM jsonb_to_recordset($2::jsonb) AS x(period text, metric text, bucket timestamptz, n integer[], sum double precision[], sumsq double precision[], min real[], max real[])
+     SELECT x.unit_id, x.period, x.metric, x.bucket, x.n, x.sum, x.sumsq, x.min, x.max
+       FROM jsonb_to_recordset($1::jsonb) AS x(unit_id text, period text, metric text, bucket timestamptz, n integer[], sum double precision[], sumsq double precision[], min real[], max real[])
      ON CONFLICT (unit_id, period, metric, bucket) DO UPDATE
        SET n = excluded.n, sum = excluded.sum, sumsq = excluded.sumsq, min = excluded.min, max = excluded.max`,
-    [unitId, payload],
+    [payload],
   );
 }
 

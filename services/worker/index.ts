@@ -20,7 +20,7 @@ import { fitDueRequests, fitFirstBaseline } from './baselines.ts';
 import { firstSteadyMs } from '../db/baselines.ts';
 import { runDrift, type DriftRunResult } from './drift.ts';
 import { startListener } from './listener.ts';
-import { analyseNextBatch, invalidateInputs, memoryOf, reanalyseSpan, spansOf, type PipelineContext } from './pipeline.ts';
+import { analyseGroup, invalidateInputs, memoryOf, reanalyseSpan, spansOf, type PipelineContext } from './pipeline.ts';
 
 export interface WorkerDeps {
   pool: Pool;
@@ -46,6 +46,8 @@ export interface Worker {
 /** How often a unit without a baseline and without a steady ring is looked at again. */
 const AUTO_FIT_CHECK_MS = 30_000;
 const RETRY_MS = 1_000;
+/** Most units analysed in one transaction. */
+const GROUP_UNITS = 32;
 
 export async function startWorker(deps: WorkerDeps): Promise<Worker> {
   const { pool, config } = deps;
@@ -80,51 +82,80 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
     pump();
   };
 
+  /** Units whose last group failed: analysed alone until they succeed, so one cannot hold back others. */
+  const solo = new Set<string>();
+  let groups = 0;
+
+  /** Starts groups of waiting units (up to GROUP_UNITS each) while fewer than `concurrency` run. */
   function pump(): void {
     if (stopped) return;
-    for (const id of dirty) {
-      if (running.size >= s.concurrency) break;
-      if (running.has(id)) continue;
-      dirty.delete(id);
-      running.set(
-        id,
-        runUnit(id).finally(() => {
-          running.delete(id);
-          pump();
-          checkSettled();
-        }),
-      );
+    while (groups < s.concurrency) {
+      let waiting = 0;
+      for (const id of dirty) if (!running.has(id)) waiting++;
+      // Share the waiting units among the free slots, so a backlog keeps every slot busy.
+      const size = Math.min(GROUP_UNITS, Math.max(1, Math.ceil(waiting / (s.concurrency - groups))));
+      const group: string[] = [];
+      for (const id of dirty) {
+        if (running.has(id)) continue;
+        if (solo.has(id)) {
+          if (group.length === 0) group.push(id);
+          break;
+        }
+        group.push(id);
+        if (group.length >= size) break;
+      }
+      if (group.length === 0) break;
+      for (const id of group) dirty.delete(id);
+      groups++;
+      const task = runGroup(group).finally(() => {
+        groups--;
+        for (const id of group) running.delete(id);
+        pump();
+        checkSettled();
+      });
+      for (const id of group) running.set(id, task);
     }
     checkSettled();
   }
 
-  async function runUnit(unitId: string): Promise<void> {
-    try {
-      const work = late.get(unitId);
-      if (work) {
-        late.delete(unitId);
-        for (const [a, b] of spansOf(work.times)) {
-          const n = await reanalyseSpan(pc, unitId, a, b, 'late');
-          if (n === null) {
-            owned.delete(unitId);
-            return;
-          }
-          log.info({ unitId, from: new Date(a).toISOString(), to: new Date(b).toISOString(), rings: n }, 'late rings analysed');
-        }
-        await setLateCheckedFrom(pool, [unitId], work.horizon);
-      }
-      const r = await analyseNextBatch(pc, unitId);
-      if (r.status === 'lost') {
+  async function lateRings(unitId: string): Promise<boolean> {
+    const work = late.get(unitId);
+    if (!work) return true;
+    late.delete(unitId);
+    for (const [a, b] of spansOf(work.times)) {
+      const n = await reanalyseSpan(pc, unitId, a, b, 'late');
+      if (n === null) {
         owned.delete(unitId);
-        log.info({ unitId }, 'unit no longer held');
-        return;
+        return false;
       }
-      if (r.rings > 0) log.debug({ unitId, rings: r.rings }, 'rings analysed');
-      if (r.status === 'more') dirty.add(unitId);
-      await firstBaselineWhenDue(unitId);
+      log.info({ unitId, from: new Date(a).toISOString(), to: new Date(b).toISOString(), rings: n }, 'late rings analysed');
+    }
+    await setLateCheckedFrom(pool, [unitId], work.horizon);
+    return true;
+  }
+
+  async function runGroup(unitIds: string[]): Promise<void> {
+    try {
+      const ids: string[] = [];
+      for (const id of unitIds) if (await lateRings(id)) ids.push(id);
+      const results = await analyseGroup(pc, ids);
+      for (const [unitId, r] of results) {
+        solo.delete(unitId);
+        if (r.status === 'lost') {
+          owned.delete(unitId);
+          log.info({ unitId }, 'unit no longer held');
+          continue;
+        }
+        if (r.rings > 0) log.debug({ unitId, rings: r.rings }, 'rings analysed');
+        if (r.status === 'more') dirty.add(unitId);
+        await firstBaselineWhenDue(unitId);
+      }
     } catch (err) {
-      log.error({ unitId, err: (err as Error).message }, 'analysis round failed; retrying');
-      setTimeout(() => mark([unitId]), RETRY_MS).unref();
+      for (const unitId of unitIds) {
+        log.error({ unitId, units: unitIds.length, err: (err as Error).message }, 'analysis round failed; retrying');
+        solo.add(unitId);
+      }
+      setTimeout(() => mark(unitIds), RETRY_MS).unref();
     }
   }
 

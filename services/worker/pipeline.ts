@@ -7,7 +7,7 @@
  * watermark, without analysis) are analysed by re-running their span with the memory of the
  * rings before it, and the hours and days they touch are recomputed from stored analysis.
  */
-import type { Finding, Thresholds } from '../core/findings.ts';
+import type { Thresholds } from '../core/findings.ts';
 import type { Config } from '../db/config.ts';
 import type { Logger } from '../db/logger.ts';
 import { withTransaction, type Pool } from '../db/pool.ts';
@@ -22,7 +22,13 @@ import {
   logBatch,
   readAnalysis,
   readLastAnalysis,
-  readRingsAfter,
+  readRingsAfterMany,
+  readRollupBucketsMany,
+  recordInOrderBatches,
+  writeRollupsMany,
+  lockUnits,
+  type RingColumns,
+  type RollupRow,
   readRingsBetween,
   readRollupBuckets,
   readRollups,
@@ -35,7 +41,7 @@ import { driftStateStamp, readDriftStates } from '../db/drift.ts';
 import { createUnitsRepository } from '../db/units.ts';
 import type { ChamberDriftInput } from '../core/findings.ts';
 import { applyAlertObservations, type AlertSettings } from './alerts.ts';
-import { recordStartsForBatch } from '../db/starts.ts';
+import { recordStartsForBatch, type BatchObservation } from '../db/starts.ts';
 import { bucketOf, DAY_MS, HOUR_MS, RollupAccumulator } from './rollups.ts';
 import { UnitAnalyser, type AnalyserInputs } from './unit-analyser.ts';
 
@@ -86,6 +92,8 @@ export function invalidateInputs(pc: PipelineContext, unitId: string): void {
 async function loadInputs(pc: PipelineContext, unitId: string, mem: UnitMemory): Promise<AnalyserInputs> {
   const now = Date.now();
   if (mem.inputs && now - mem.inputsLoadedAt < INPUTS_TTL_MS) return mem.inputs;
+  // Spread the re-reads of a fleet's units over time rather than all at once.
+  const jitter = Math.floor(Math.random() * (INPUTS_TTL_MS / 3));
   const [versions, baseline, stamp] = await Promise.all([
     createUnitsRepository(pc.pool).versions(unitId),
     latestBaseline(pc.pool, unitId),
@@ -109,7 +117,7 @@ async function loadInputs(pc: PipelineContext, unitId: string, mem: UnitMemory):
     settings: pc.config.worker,
   };
   mem.inputs = inputs;
-  mem.inputsLoadedAt = now;
+  mem.inputsLoadedAt = now - jitter;
   mem.baselineVersion = baseline?.version ?? null;
   mem.driftStamp = stamp;
   if (mem.analyser) mem.analyser.setInputs(inputs);
@@ -144,66 +152,112 @@ export type RoundStatus = 'lost' | 'idle' | 'done' | 'more';
  * analysed and more may follow; 'done': the backlog is analysed.
  */
 export async function analyseNextBatch(pc: PipelineContext, unitId: string): Promise<{ status: RoundStatus; rings: number }> {
-  const mem = memoryOf(pc, unitId);
+  return (await analyseGroup(pc, [unitId])).get(unitId) as { status: RoundStatus; rings: number };
+}
+
+/**
+ * analyseNextBatch for several units in one transaction (many units with a few new rings each,
+ * as in live operation, cost one round of statements instead of one each). Each unit gets at
+ * most max(500, batchRings / units) rings. Per unit, the start analysis and the alert rules run
+ * on its batch inside the same transaction.
+ */
+export async function analyseGroup(pc: PipelineContext, unitIds: string[]): Promise<Map<string, { status: RoundStatus; rings: number }>> {
+  const results = new Map<string, { status: RoundStatus; rings: number }>();
   const batch = pc.config.worker.batchRings;
-  let newWatermark: number | null = null;
+  const perUnit = Math.max(Math.min(500, batch), Math.floor(batch / Math.max(1, unitIds.length)));
+  const ids = [...new Set(unitIds)].sort();
+  const newWatermarks = new Map<string, number>();
   try {
-    const result = await withTransaction(pc.pool, async (client) => {
-      const progress = await lockUnit(pc, client, unitId);
-      if (!progress) return { status: 'lost' as const, rings: 0 };
-      const inputs = await loadInputs(pc, unitId, mem);
-      if (!mem.analyser || mem.watermarkMs !== progress.watermarkMs) {
-        mem.analyser = null;
-        mem.analyser = await primedAnalyser(client, unitId, inputs, progress.watermarkMs);
-        mem.watermarkMs = progress.watermarkMs;
-      }
-      const analyser = mem.analyser;
+    await withTransaction(pc.pool, async (client) => {
       const t0 = performance.now();
-      const rings = await readRingsAfter(client, unitId, progress.watermarkMs, batch);
-      if (rings.count === 0) return { status: 'idle' as const, rings: 0 };
-      const t1 = performance.now();
-      // From here the analyser's memory runs ahead of the database until COMMIT.
-      mem.watermarkMs = NaN;
-      const enc = new AnalysisEncoder(unitId);
-      const acc = new RollupAccumulator();
-      const observations: { ts: Date; raise: Finding[]; hold: Finding[] }[] = [];
-      for (let j = 0; j < rings.count; j++) {
-        const r = analyser.analyse(rings, j);
-        enc.add(r.row);
-        acc.add(r.row);
-        if (r.raise && r.hold) observations.push({ ts: new Date(rings.tsMs[j]), raise: r.raise, hold: r.hold });
+      const progress = await lockUnits(client, ids, pc.workerId);
+      for (const id of ids) if (!progress.has(id)) results.set(id, { status: 'lost', rings: 0 });
+      const held = ids.filter((id) => progress.has(id));
+      if (held.length === 0) return;
+      const inputs = new Map<string, AnalyserInputs>();
+      for (const id of held) {
+        const mem = memoryOf(pc, id);
+        const p = progress.get(id) as UnitProgress;
+        inputs.set(id, await loadInputs(pc, id, mem));
+        if (!mem.analyser || mem.watermarkMs !== p.watermarkMs) {
+          mem.analyser = null;
+          mem.analyser = await primedAnalyser(client, id, inputs.get(id) as AnalyserInputs, p.watermarkMs);
+          mem.watermarkMs = p.watermarkMs;
+        }
       }
+      const t1 = performance.now();
+      const ringsByUnit = await readRingsAfterMany(
+        client,
+        held.map((id) => ({ unitId: id, afterMs: (progress.get(id) as UnitProgress).watermarkMs })),
+        perUnit,
+      );
       const t2 = performance.now();
-      await writeAnalysis(client, pc.pool, enc);
+      const enc = new AnalysisEncoder();
+      const accs = new Map<string, RollupAccumulator>();
+      const observationsByUnit = new Map<string, BatchObservation[]>();
+      const logged: { unitId: string; fromMs: number; toMs: number; rings: number }[] = [];
+      let total = 0;
+      for (const id of held) {
+        const rings = ringsByUnit.get(id);
+        if (!rings || rings.count === 0) {
+          results.set(id, { status: 'idle', rings: 0 });
+          continue;
+        }
+        const mem = memoryOf(pc, id);
+        const analyser = mem.analyser as UnitAnalyser;
+        // From here the analyser's memory runs ahead of the database until COMMIT.
+        mem.watermarkMs = NaN;
+        const acc = new RollupAccumulator();
+        const observations: BatchObservation[] = [];
+        for (let j = 0; j < rings.count; j++) {
+          const r = analyser.analyse(rings, j);
+          enc.add(r.row, id);
+          acc.add(r.row);
+          if (r.raise && r.hold) observations.push({ ts: new Date(rings.tsMs[j]), raise: r.raise, hold: r.hold });
+        }
+        accs.set(id, acc);
+        observationsByUnit.set(id, observations);
+        const first = rings.tsMs[0];
+        const last = rings.tsMs[rings.count - 1];
+        logged.push({ unitId: id, fromMs: first, toMs: last, rings: rings.count });
+        newWatermarks.set(id, last);
+        results.set(id, { status: rings.count >= perUnit ? 'more' : 'done', rings: rings.count });
+        total += rings.count;
+      }
+      if (total === 0) return;
       const t3 = performance.now();
-      const stored = [
-        ...(await readRollupBuckets(client, unitId, 'hour', acc.buckets('hour'))),
-        ...(await readRollupBuckets(client, unitId, 'day', acc.buckets('day'))),
-      ];
-      await writeRollups(client, unitId, acc.mergedWith(stored));
+      await writeAnalysis(client, pc.pool, enc);
       const t4 = performance.now();
-      const first = rings.tsMs[0];
-      const last = rings.tsMs[rings.count - 1];
-      await advanceProgress(client, unitId, last, rings.count, 0);
-      await logBatch(client, { unitId, workerId: pc.workerId ?? NO_CLAIM, kind: 'in_order', fromMs: first, toMs: last, rings: rings.count });
-      await recordStartsForBatch(client, unitId, rings, inputs.versions, observations);
-      if (observations.length) await applyAlertObservations(client, unitId, observations, pc.alertSettings);
+      const keys: { unitId: string; period: 'hour' | 'day'; bucketMs: number }[] = [];
+      for (const [id, acc] of accs) for (const period of ['hour', 'day'] as const) for (const b of acc.buckets(period)) keys.push({ unitId: id, period, bucketMs: b });
+      const stored = await readRollupBucketsMany(client, keys);
+      const merged: { unitId: string; row: RollupRow }[] = [];
+      for (const [id, acc] of accs) for (const row of acc.mergedWith(stored.filter((x) => x.unitId === id).map((x) => x.row))) merged.push({ unitId: id, row });
+      await writeRollupsMany(client, merged);
+      await recordInOrderBatches(client, pc.workerId ?? NO_CLAIM, logged);
       const t5 = performance.now();
+      for (const { unitId: id } of logged) {
+        const observations = observationsByUnit.get(id) as BatchObservation[];
+        await recordStartsForBatch(client, id, ringsByUnit.get(id) as RingColumns, (inputs.get(id) as AnalyserInputs).versions, observations);
+        if (observations.length) await applyAlertObservations(client, id, observations, pc.alertSettings);
+      }
+      const t6 = performance.now();
       pc.logger.debug(
-        { unitId, rings: rings.count, readMs: r0(t1 - t0), analyseMs: r0(t2 - t1), writeMs: r0(t3 - t2), rollupMs: r0(t4 - t3), alertMs: r0(t5 - t4), observations: observations.length },
+        { units: logged.length, rings: total, lockMs: r0(t1 - t0), readMs: r0(t2 - t1), analyseMs: r0(t3 - t2), writeMs: r0(t4 - t3), rollupMs: r0(t5 - t4), alertMs: r0(t6 - t5) },
         'batch analysed',
       );
-      newWatermark = last;
-      return { status: rings.count >= batch ? ('more' as const) : ('done' as const), rings: rings.count };
     });
-    if (newWatermark !== null) mem.watermarkMs = newWatermark;
-    if (result.status === 'lost') pc.memory.delete(unitId);
-    return result;
   } catch (err) {
     // The transaction rolled back: the memory may be ahead of what is stored.
-    mem.analyser = null;
+    for (const id of ids) {
+      const mem = pc.memory.get(id);
+      if (mem) mem.analyser = null;
+    }
     throw err;
   }
+  for (const [id, wm] of newWatermarks) memoryOf(pc, id).watermarkMs = wm;
+  for (const [id, r] of results) if (r.status === 'lost') pc.memory.delete(id);
+  return results;
 }
 
 /** Groups ring times into spans: a gap longer than gapMs starts a new span. */
