@@ -51,32 +51,7 @@ CREATE TABLE ring_analysis (
 
 -- Monthly partitions of ring_analysis covering [from_ts, to_ts]; safe to call concurrently.
 CREATE FUNCTION ensure_analysis_partitions(from_ts timestamptz, to_ts timestamptz) RETURNS integer
-LANGUAGE plpgsql AS $$
-DECLARE
-  m timestamptz := date_trunc('month', from_ts AT TIME ZONE 'UTC') AT TIME ZONE 'UTC';
-  last_m timestamptz := date_trunc('month', to_ts AT TIME ZONE 'UTC') AT TIME ZONE 'UTC';
-  part text;
-  made integer := 0;
-BEGIN
-  IF from_ts > to_ts THEN
-    RAISE EXCEPTION 'ensure_analysis_partitions: from % is after to %', from_ts, to_ts;
-  END IF;
-  WHILE m <= last_m LOOP
-    part := 'ring_analysis_' || to_char(m AT TIME ZONE 'UTC', 'YYYY_MM');
-    IF to_regclass(part) IS NULL THEN
-      PERFORM pg_advisory_xact_lock(hashtext(part));
-      BEGIN
-        EXECUTE format('CREATE TABLE %I PARTITION OF ring_analysis FOR VALUES FROM (%L) TO (%L)',
-                       part, m, m + interval '1 month');
-        made := made + 1;
-      EXCEPTION WHEN duplicate_table OR unique_violation THEN
-        NULL;
-      END;
-    END IF;
-    m := m + interval '1 month';
-  END LOOP;
-  RETURN made;
-END $$;
+LANGUAGE sql AS $$ SELECT ensure_monthly_partitions('ring_analysis', from_ts, to_ts) $$;
 
 SELECT ensure_analysis_partitions(now() - interval '12 months', now() + interval '3 months');
 

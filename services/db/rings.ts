@@ -210,12 +210,6 @@ const STAGE = 'cansight_ring_stage';
 /** Months known to have a partition, per pool (one pool per database). Filled after commits. */
 const knownMonths = new WeakMap<pg.Pool, Set<number>>();
 
-function partitionName(month: number): string {
-  const y = Math.floor(month / 12);
-  const m = (month % 12) + 1;
-  return `rings_${String(y).padStart(4, '0')}_${String(m).padStart(2, '0')}`;
-}
-
 function monthStartIso(month: number): string {
   return new Date(Date.UTC(Math.floor(month / 12), month % 12, 1)).toISOString();
 }
@@ -235,8 +229,8 @@ export interface ChunkResult {
  * savepoint, so a ring written meanwhile by another request sends the chunk the slow way);
  * otherwise it is copied into a session-local staging table and moved with
  * INSERT … SELECT … ON CONFLICT DO NOTHING, which counts the duplicates.
- * A month without a partition gets one created and attached inside the transaction (ATTACH
- * takes a lock that does not stop other writers or readers of the ring table).
+ * A month without a partition gets one inside the transaction through ensure_ring_partitions
+ * (migration 0003), which attaches it with a lock that does not stop other writers or readers.
  */
 export class RingWrite {
   private finished = false;
@@ -284,27 +278,10 @@ export class RingWrite {
     if (!known) knownMonths.set(this.pool, (known = new Set()));
     for (const month of months) {
       if (known.has(month) || this.created.has(month)) continue;
-      const name = partitionName(month);
-      const { rows } = await this.client.query(`SELECT to_regclass($1) IS NOT NULL AS present`, [name]);
-      if (rows[0].present) {
-        known.add(month);
-        continue;
-      }
-      const from = monthStartIso(month);
-      const to = monthStartIso(month + 1);
-      await this.client.query('SAVEPOINT cansight_partition');
-      try {
-        await this.client.query(`CREATE TABLE ${name} (LIKE rings INCLUDING DEFAULTS INCLUDING CONSTRAINTS)`);
-        await this.client.query(`ALTER TABLE rings ATTACH PARTITION ${name} FOR VALUES FROM ('${from}') TO ('${to}')`);
-        await this.client.query('RELEASE SAVEPOINT cansight_partition');
-        this.created.add(month);
-      } catch (err) {
-        // Another writer made it meanwhile (and has committed, or we would still be waiting).
-        await this.client.query('ROLLBACK TO SAVEPOINT cansight_partition');
-        const again = await this.client.query(`SELECT to_regclass($1) IS NOT NULL AS present`, [name]);
-        if (!again.rows[0].present) throw err;
-        known.add(month);
-      }
+      // A partition made here is not committed yet: it is known to the process only after COMMIT.
+      const { rows } = await this.client.query('SELECT ensure_ring_partitions($1, $1) AS made', [monthStartIso(month)]);
+      if (Number(rows[0].made) > 0) this.created.add(month);
+      else known.add(month);
     }
   }
 
