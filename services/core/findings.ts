@@ -72,11 +72,26 @@ export interface Thresholds {
   chamberHotCriticalDegC: number;
   /** The residual must exceed this many σ (estimate uncertainty, baseline scale). */
   chamberMinZ: number;
-  /** Without a baseline, chamber levels are multiplied by this (the ring's built-in asymmetry is not removed). */
+  /**
+   * Without a baseline at this load, chamber levels are multiplied by this (the ring's built-in
+   * asymmetry is not removed). 2.5: a healthy chamber's fixed fuel-share fingerprint of a few
+   * per cent, seen through the plume fit, departs from the average chamber by up to about 40 °C
+   * (healthy base-load spreads of 15–45 °C are common practice), so at 1.5 (a warning at 30 °C)
+   * healthy units with one thermocouple per chamber raised chamber warnings whenever they ran at
+   * a load their baseline had no bin for. At 2.5 a warning needs 50 °C and an alarm 100 °C;
+   * a lost flame (order 100 °C and more) is still an alarm or critical at once.
+   */
   noBaselineChamberFactor: number;
   /** Swirl uncertainty for the runner-up chamber's likelihood, degrees. */
   swirlUncertaintyDeg: number;
-  /** Significant drift rate magnitudes: warning / alarm, °C per 30 days. */
+  /**
+   * Significant drift rate magnitudes: warning / alarm, °C per 30 days. A CUSUM signal without
+   * a significant rate of at least the warning level is a notice: the CUSUM on daily residuals
+   * standardised by a scale floored at about 1 °C signals on shifts of a degree or two (a season's
+   * ambient, a thermocouple's fault moving the chamber map beside it), which tell an engineer to
+   * look at the trend but give nothing to act on; on healthy units it raised several chamber
+   * warnings a month.
+   */
   driftWarningDegCPer30Days: number;
   driftAlarmDegCPer30Days: number;
   /** Coverage worse than these is an alarm rather than a warning. */
@@ -105,7 +120,7 @@ export const defaultThresholds: Thresholds = {
   chamberHotAlarmDegC: 35,
   chamberHotCriticalDegC: 60,
   chamberMinZ: 3,
-  noBaselineChamberFactor: 1.5,
+  noBaselineChamberFactor: 2.5,
   swirlUncertaintyDeg: 8,
   driftWarningDegCPer30Days: 5,
   driftAlarmDegCPer30Days: 15,
@@ -399,7 +414,8 @@ function driftFindings(input: FindingInput, t: Thresholds, version: number | nul
     const rateMag = rate && rate.significant ? Math.abs(rate.per30DaysDegC) : 0;
     let grade: Grade | null = null;
     if (rateMag >= t.driftAlarmDegCPer30Days) grade = 'alarm';
-    else if (rateMag >= t.driftWarningDegCPer30Days || cusumSide) grade = 'warning';
+    else if (rateMag >= t.driftWarningDegCPer30Days) grade = 'warning';
+    else if (cusumSide) grade = 'notice';
     if (!grade) continue;
     const cooling = rate && rate.significant && rateMag > 0 ? rate.per30DaysDegC < 0 : cusumSide === 'down';
     const ch = k + 1;

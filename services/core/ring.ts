@@ -278,14 +278,33 @@ export function solverFor(ctx: UnitContext, bin: number, usable: Uint8Array): Ch
  * Analyses one ring: validity (missing, out of range, isolated outlier), coverage, spread over
  * valid readings, chamber estimates with uncertainties, and the worst chamber with its
  * runner-up. readingsDegC[i] is thermocouple i+1 in °C (null/NaN when missing); loadFraction is
- * the corrected load. Writes into out (default: the context's own result object) and returns it.
- * Never throws on bad readings.
+ * the corrected load. windowCodes, when given, holds per thermocouple the verdict of the window
+ * tests over the recent rings (VALIDITY.frozen, .erratic, .drifting_alone, or valid): a reading
+ * the window tests condemned is excluded from the spread and the chamber map like any other
+ * invalid reading (a frozen or erratic sensor otherwise paints a false plume), and keeps that
+ * code unless it is also missing or out of range. Writes into out (default: the context's own
+ * result object) and returns it. Never throws on bad readings.
  */
-export function analyseRing(ctx: UnitContext, readingsDegC: ArrayLike<Reading>, loadFraction: number, out: RingAnalysis = ctx.result): RingAnalysis {
+export function analyseRing(
+  ctx: UnitContext,
+  readingsDegC: ArrayLike<Reading>,
+  loadFraction: number,
+  out: RingAnalysis = ctx.result,
+  windowCodes?: ArrayLike<number>,
+): RingAnalysis {
   const { m, n, values, scratch, usable } = ctx;
   const vo = ctx.options.validity;
   const codes = out.validity;
   classifyMissingAndRange(readingsDegC, m, vo.floorDegC, vo.ceilingDegC, codes, values);
+  if (windowCodes) {
+    for (let i = 0; i < m && i < windowCodes.length; i++) {
+      const w = windowCodes[i];
+      if (codes[i] === VALIDITY.valid && w !== VALIDITY.valid && w !== undefined) {
+        codes[i] = w;
+        values[i] = NaN;
+      }
+    }
+  }
   // Median of the valid readings; the MAD only when some reading is far enough out to be a candidate.
   let nv = 0;
   for (let i = 0; i < m; i++) if (codes[i] === VALIDITY.valid) scratch[nv++] = values[i];

@@ -223,6 +223,16 @@ export interface WindowValidityOptions {
   driftAloneDegC: number;
   /** …while each neighbour's stays below this fraction of it. */
   driftNeighbourFraction: number;
+  /**
+   * Drifting alone is judged only while the corrected load held within this span over the
+   * window (load fraction), when the caller gives the loads. A load change turns the swirl and
+   * moves every chamber's plume round the ring, so a thermocouple on a plume's flank sees its
+   * residual change by tens of degrees while a neighbour on the crest or in a trough barely
+   * moves: that is the gas, not the sensor. Engineering judgement: 0.03 (3 % of rating) moves a
+   * plume by about a degree on the swirl curves seen (tens of degrees over the load range),
+   * too little to shift a flank reading by the 15 °C the test needs.
+   */
+  driftMaxLoadSpan: number;
 }
 
 /** Defaults (engineering judgement; tune per fleet). */
@@ -234,6 +244,7 @@ export const defaultWindowValidityOptions: WindowValidityOptions = {
   erraticMinDegC: 3,
   driftAloneDegC: 15,
   driftNeighbourFraction: 0.33,
+  driftMaxLoadSpan: 0.03,
 };
 
 /** Window verdict for one thermocouple (numbered from 1). */
@@ -251,7 +262,10 @@ export interface WindowVerdict {
  * Window tests over rings in time order (each an array of M readings; out-of-range readings are
  * treated as missing): frozen (no change while the ring mean moves), erratic (residual noise far
  * above both neighbours'), drifting alone (its residual x − ring median changes over the window,
- * its neighbours' do not). timesS, when given, is the time of each ring (else the ring index).
+ * its neighbours' do not, and the load held still). timesS, when given, is the time of each ring
+ * (else the ring index); loadFractions, when given, the corrected load of each ring (without
+ * them the load is taken to have held). The rings should be rings in service: a start or a stop
+ * moves every reading by hundreds of degrees for reasons that are not the sensors'.
  */
 export function windowValidity(
   rings: ReadonlyArray<ArrayLike<Reading>>,
@@ -259,6 +273,7 @@ export function windowValidity(
   range: Pick<ValidityOptions, 'floorDegC' | 'ceilingDegC'> = defaultValidityOptions,
   opts: WindowValidityOptions = defaultWindowValidityOptions,
   timesS?: ArrayLike<number>,
+  loadFractions?: ArrayLike<number>,
 ): WindowVerdict[] {
   const t = rings.length;
   const resid = new Float64Array(t * m).fill(NaN);
@@ -322,6 +337,17 @@ export function windowValidity(
       change[i] = fit.slope * (xs[xs.length - 1] - xs[0]);
     } else change[i] = NaN;
   }
+  let loadLo = Infinity;
+  let loadHi = -Infinity;
+  if (loadFractions) {
+    for (let r = 0; r < t; r++) {
+      const L = loadFractions[r];
+      if (!Number.isFinite(L) || !Number.isFinite(ringMean[r])) continue;
+      if (L < loadLo) loadLo = L;
+      if (L > loadHi) loadHi = L;
+    }
+  }
+  const loadHeld = !loadFractions || !(loadHi - loadLo > opts.driftMaxLoadSpan);
   const out: WindowVerdict[] = [];
   for (let i = 0; i < m; i++) {
     const [l, r] = ringNeighbours(i, m);
@@ -331,6 +357,7 @@ export function windowValidity(
       if (rangeDeg[i] <= opts.frozenMaxRangeDegC && ringRange[i] >= opts.frozenMinRingMoveDegC) reason = 'frozen';
       else if (stepRms[i] > opts.erraticMinDegC && stepRms[i] > opts.erraticRatio * neighbourStep) reason = 'erratic';
       else if (
+        loadHeld &&
         Math.abs(change[i]) > opts.driftAloneDegC &&
         Math.abs(finiteOr(change[l], 0)) < opts.driftNeighbourFraction * Math.abs(change[i]) &&
         Math.abs(finiteOr(change[r], 0)) < opts.driftNeighbourFraction * Math.abs(change[i])

@@ -46,12 +46,15 @@ export class UnitAnalyser {
   // Steady-state window: times (s) and corrected loads.
   private stT: number[] = [];
   private stL: number[] = [];
-  // Window tests: times (ms) and readings.
+  // Window tests: times (ms), readings and corrected loads of the rings in service.
   private wT: number[] = [];
   private wR: Float64Array[] = [];
+  private wL: number[] = [];
   private lastSlot = NaN;
   private verdictsDue = false;
   private verdicts: WindowVerdict[] = [];
+  /** The verdicts as a validity code per thermocouple, for the ring analysis to exclude them. */
+  private readonly verdictCodes = new Uint8Array(MAX_M);
   private verdictM = 0;
   // Recent validity codes.
   private codes: Uint8Array[] = [];
@@ -117,16 +120,24 @@ export class UnitAnalyser {
     }
   }
 
-  /** Window-test readings: add, drop older than the window; a new slot makes the verdicts due. */
-  private pushReadings(tsMs: number, readings: Float64Array): void {
-    this.wT.push(tsMs);
-    this.wR.push(readings);
+  /**
+   * Window-test readings: add a ring in service (starts, stops and running below the findings'
+   * load move every reading for reasons that are not the sensors'), drop older than the window;
+   * a new slot makes the verdicts due.
+   */
+  private pushReadings(tsMs: number, readings: Float64Array, load: number, inService: boolean): void {
+    if (inService) {
+      this.wT.push(tsMs);
+      this.wR.push(readings);
+      this.wL.push(load);
+    }
     let k = 0;
     const from = tsMs - this.windowMs;
     while (k < this.wT.length && this.wT[k] < from) k++;
     if (k > 0) {
       this.wT.splice(0, k);
       this.wR.splice(0, k);
+      this.wL.splice(0, k);
     }
     const slot = Math.floor(tsMs / this.slotMs);
     if (slot !== this.lastSlot) {
@@ -143,12 +154,17 @@ export class UnitAnalyser {
     if (!this.verdictsDue && m === this.verdictM) return;
     this.verdictsDue = false;
     this.verdictM = m;
-    const all = this.wR.filter((r) => r.length === m);
+    const all: number[] = [];
+    for (let i = 0; i < this.wR.length; i++) if (this.wR[i].length === m) all.push(i);
     // At most WINDOW_TEST_RINGS rings, evenly spread over the window (seconds-apart transient
     // rings would otherwise make the tests cost far more than the ring analysis).
     const step = Math.max(1, Math.ceil(all.length / WINDOW_TEST_RINGS));
-    const rings = step === 1 ? all : all.filter((_, i) => (all.length - 1 - i) % step === 0);
-    this.verdicts = windowValidity(rings, m).filter((v) => v.reason !== 'valid');
+    const pick = step === 1 ? all : all.filter((_, i) => (all.length - 1 - i) % step === 0);
+    const rings = pick.map((i) => this.wR[i]);
+    const loads = pick.map((i) => this.wL[i]);
+    this.verdicts = windowValidity(rings, m, undefined, undefined, undefined, loads).filter((v) => v.reason !== 'valid');
+    this.verdictCodes.fill(VALIDITY.valid);
+    for (const v of this.verdicts) if (v.thermocouple <= MAX_M) this.verdictCodes[v.thermocouple - 1] = VALIDITY[v.reason];
   }
 
   private inService(speedPct: number, load: number): boolean {
@@ -186,12 +202,14 @@ export class UnitAnalyser {
       const { ctx } = this.context(t);
       const load = correctedLoadFraction(rings.loadMw[j], rings.ambientC[j], rings.ambientKPa[j], ctx.config);
       this.pushLoad(t / 1000, load);
-      this.pushReadings(t, rings.exhaustC[j]);
-      if (this.inService(rings.speedPct[j], load)) this.refreshVerdicts(ctx.m);
+      const inService = this.inService(rings.speedPct[j], load);
+      this.pushReadings(t, rings.exhaustC[j], load, inService);
+      if (inService) this.refreshVerdicts(ctx.m);
       this.lastTsMs = t;
     }
     for (let j = 0; j < recent.count; j++) this.pushCodes(Uint8Array.from(recent.validity[j]));
-    this.prevSteadySpread = prevSteadySpread;
+    // A spread jump compares consecutive steady rings: none when the last analysed ring was not steady.
+    this.prevSteadySpread = recent.count > 0 && recent.steady[recent.count - 1] ? prevSteadySpread : null;
   }
 
   /** Analyses the next ring (time order). */
@@ -204,8 +222,11 @@ export class UnitAnalyser {
     const readings = rings.exhaustC[j];
     this.pushLoad(tsMs / 1000, load);
     const st = steadyState(speed, this.stT, this.stL, tsMs / 1000, this.steadyOptions);
-    const a = analyseRing(ctx, readings, load);
-    this.pushReadings(tsMs, readings);
+    const inService = this.inService(speed, load);
+    this.pushReadings(tsMs, readings, load, inService);
+    if (inService) this.refreshVerdicts(ctx.m);
+    // Thermocouples the window tests condemned are left out of this ring's spread and chamber map.
+    const a = analyseRing(ctx, readings, load, undefined, this.verdictM === ctx.m ? this.verdictCodes.subarray(0, ctx.m) : undefined);
     const validity = a.validity.slice();
     this.pushCodes(validity);
 
@@ -228,8 +249,7 @@ export class UnitAnalyser {
 
     let raise: Finding[] | null = null;
     let hold: Finding[] | null = null;
-    if (this.inService(speed, load)) {
-      this.refreshVerdicts(ctx.m);
+    if (inService) {
       const history = {
         previousSteadySpreadDegC: this.prevSteadySpread,
         recentOutlierCounts: this.outliers.subarray(0, ctx.m),
@@ -240,7 +260,11 @@ export class UnitAnalyser {
       raise = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, drift, thresholds: this.inputs.raise });
       hold = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, drift, thresholds: this.inputs.hold });
     }
+    // A spread jump is a change between consecutive steady rings: a ring that is not steady (a
+    // start, a stop, a load change) ends the comparison, so the first steady ring after it is not
+    // compared with the spread before it, at another load or before a shutdown.
     if (st.steady && Number.isFinite(a.spread.spreadDegC)) this.prevSteadySpread = a.spread.spreadDegC;
+    else if (!st.steady) this.prevSteadySpread = null;
     this.lastTsMs = tsMs;
 
     const sp = a.spread;

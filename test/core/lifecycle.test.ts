@@ -105,8 +105,9 @@ describe('findings', () => {
   const config = demoConfig();
   const ctx = prepareUnit(config);
   it('a deep cold plume is a critical chamber_cold with runner-up, evidence and advice', () => {
+    // No baseline here, so the critical level is chamberColdCriticalDegC × noBaselineChamberFactor (200 °C).
     const dev = new Array(10).fill(0);
-    dev[3] = -130;
+    dev[3] = -230;
     const a = analyseRing(ctx, ringFromChambers(config, dev, 0.8, 550, ctx.kernel), 0.8);
     const f = evaluateFindings({ analysis: a, steady: true });
     const c = f.find((x) => x.kind === 'chamber_cold');
@@ -115,7 +116,7 @@ describe('findings', () => {
     expect(c!.grade).toBe('critical');
     expect([3, 5]).toContain(c!.runnerUpChamber);
     expect(c!.advice).toContain('chamber 4');
-    expect(c!.evidence.residualDegC as number).toBeLessThan(-100);
+    expect(c!.evidence.residualDegC as number).toBeLessThan(-200);
     expect(f.filter((x) => x.kind === 'chamber_cold')).toHaveLength(1);
     expect(f.find((x) => x.kind === 'spread_high')?.chamber).toBe(4);
   });
