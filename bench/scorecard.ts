@@ -22,7 +22,7 @@ import { startEmbeddedPostgres } from '../services/db/embedded.ts';
 import { createLogger } from '../services/db/logger.ts';
 import { migrate } from '../services/db/migrate.ts';
 import { createPool } from '../services/db/pool.ts';
-import { DEFAULT_SCORECARD_END, formatScorecard, headline, scorecardFleet } from '../services/sim/scorecard.ts';
+import { DEFAULT_SCORECARD_END, formatScorecard, floorsMet, headline, SCORECARD_FLOORS, scorecardFleet } from '../services/sim/scorecard.ts';
 import { runScorecard } from '../services/sim/scorecard-run.ts';
 
 const UNITS = Number(process.env.SCORECARD_UNITS ?? 20);
@@ -65,7 +65,9 @@ async function main(): Promise<void> {
     const run = await runScorecard({ pool, config, logger: createLogger(config.logLevel), fleet, steadyIntervalS: 60, say });
     process.stdout.write(formatScorecard(run.figures) + '\n');
     process.stdout.write(`\n${run.rings} rings through ingest and the worker in ${Math.round(run.seconds)} s\n`);
-    process.stdout.write(JSON.stringify({ bench: 'scorecard', seed: SEED, ...headline(run.figures), rings: run.rings, seconds: Math.round(run.seconds) }) + '\n');
+    const met = floorsMet(run.figures);
+    process.stdout.write(`floors (${JSON.stringify(SCORECARD_FLOORS)}): ${Object.entries(met).map(([k, v]) => `${k} ${v ? 'met' : 'NOT met'}`).join(', ')}\n`);
+    process.stdout.write(JSON.stringify({ bench: 'scorecard', seed: SEED, ...headline(run.figures), floorsMet: met, rings: run.rings, seconds: Math.round(run.seconds) }) + '\n');
   } finally {
     await pool.end();
     await db.stop();

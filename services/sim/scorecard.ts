@@ -443,7 +443,31 @@ function median(xs: number[]): number | null {
   return s.length % 2 ? s[h] : (s[h - 1] + s[h]) / 2;
 }
 
-/** The headline figures (what the floors are asserted on and the JSON line carries). */
+/** The floors the detection is held to: attribution shares in %, alarm rates per operator. */
+export const SCORECARD_FLOORS = {
+  chamberTop1Pct: 95,
+  tcAsTcPct: 95,
+  /** Alarm- or critical-grade alerts on healthy units. */
+  falseAlarmGrade: 0,
+  /** EEMUA 191: about one alarm per 10 minutes per operator is manageable… */
+  per10Min: 1,
+  /** …and more than 10 in 10 minutes is a flood. */
+  peak10Min: 10,
+} as const;
+
+/** Which floors a run meets. */
+export function floorsMet(f: ScorecardFigures) {
+  const h = headline(f);
+  return {
+    chamberTop1: h.chamberTop1Pct !== null && h.chamberTop1Pct >= SCORECARD_FLOORS.chamberTop1Pct,
+    tcAsTc: h.tcAsTcPct !== null && h.tcAsTcPct >= SCORECARD_FLOORS.tcAsTcPct,
+    noAlarmOnHealthy: h.falseAlarmGrade <= SCORECARD_FLOORS.falseAlarmGrade,
+    eemuaAverage: f.alarmRates.every((r) => r.per10Min <= SCORECARD_FLOORS.per10Min),
+    eemuaFlood: f.alarmRates.every((r) => r.peak10Min <= SCORECARD_FLOORS.peak10Min),
+  };
+}
+
+/** The headline figures (what the floors are judged on and the JSON line carries). */
 export function headline(f: ScorecardFigures) {
   const top1 = f.chamber.filter((c) => c.top1).length;
   const top2 = f.chamber.filter((c) => c.top2).length;
