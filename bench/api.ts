@@ -11,7 +11,7 @@ import { chmod, mkdtemp, rm } from 'node:fs/promises';
 import os from 'node:os';
 import path from 'node:path';
 import autocannon from 'autocannon';
-import { buildApp } from '../services/api/app.ts';
+import { Worker } from 'node:worker_threads';
 import { loadConfig } from '../services/db/config.ts';
 import { startEmbeddedPostgres, type EmbeddedServer } from '../services/db/embedded.ts';
 import { createKeysRepository } from '../services/db/keys.ts';
@@ -102,9 +102,15 @@ async function main(): Promise<void> {
     await pool.query('ANALYZE');
     log(`loaded ${UNITS} units, ${rows.length.toLocaleString('en')} rollup rows in ${((performance.now() - t0) / 1000).toFixed(1)} s`);
 
-    const cfg = loadConfig({ ...process.env, LOG_LEVEL: 'silent', CANSIGHT_RATE_LIMIT_PER_MIN: '10000000' });
-    const app = await buildApp({ config: cfg, pool, logger: createLogger('silent'), parts: { api: true, ingest: false } });
-    const base = await app.listen({ host: '127.0.0.1', port: 0 });
+    // The server runs on its own thread with the product's pool size (CANSIGHT_POOL_MAX).
+    const serverThread = new Worker(new URL('../services/cli/thread-entry.mjs', import.meta.url), {
+      workerData: { module: new URL('./api-server.ts', import.meta.url).href, databaseUrl: url },
+    });
+    const base = await new Promise<string>((resolve, reject) => {
+      serverThread.once('message', (m: { base: string }) => resolve(m.base));
+      serverThread.once('error', reject);
+    });
+    const serverStopped = new Promise<void>((resolve) => serverThread.once('exit', () => resolve()));
     const key = (await createKeysRepository(pool).create('viewer', null, 'bench')).key;
 
     // Warm up (compiles serializers, fills the pool).
@@ -138,7 +144,8 @@ async function main(): Promise<void> {
     const trendJson = await time(`/v1/units/${trendUnit}/chambers/4/trend?from=${from}&to=${to}`);
     const trendSvg = await time(`/v1/units/${trendUnit}/chambers/4/trend.svg?from=${from}&to=${to}`);
     log(`a year of chamber trend      JSON median ${trendJson.median} ms (max ${trendJson.max})  SVG median ${trendSvg.median} ms (max ${trendSvg.max})`);
-    await app.close();
+    serverThread.postMessage('close');
+    await serverStopped;
 
     const goals = { p99UnderMs: 50, yearTrendUnderMs: 200 };
     const met = fleet.p99 < goals.p99UnderMs && status.p99 < goals.p99UnderMs && trendJson.median < goals.yearTrendUnderMs && trendSvg.median < goals.yearTrendUnderMs;

@@ -487,12 +487,13 @@ export async function getAlert(db: Queryable, id: string): Promise<AlertJson | u
  * ones are left out unless asked for: a shelf hides an alert from people for its time.
  */
 export async function listActiveAlerts(db: Queryable, unitId: string, opts: { includeShelved?: boolean; now?: Date } = {}): Promise<AlertJson[]> {
-  const { rows } = await db.query(
-    `SELECT ${ALERT_COLUMNS} FROM alerts
+  const { rows } = await db.query({
+    name: 'active_alerts_of_unit',
+    text: `SELECT ${ALERT_COLUMNS} FROM alerts
       WHERE unit_id = $1 AND active AND ($2 OR shelved_until IS NULL OR shelved_until <= $3)
       ORDER BY array_position($4::text[], grade) DESC, raised_at DESC, id DESC`,
-    [unitId, opts.includeShelved ?? false, opts.now ?? new Date(), GRADES],
-  );
+    values: [unitId, opts.includeShelved ?? false, opts.now ?? new Date(), GRADES],
+  });
   return rows.map((r) => toAlertJson(alertFromDb(r)));
 }
 

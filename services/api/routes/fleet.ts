@@ -86,14 +86,15 @@ export async function fleetRoutes(base: FastifyInstance): Promise<void> {
   // decides whether the records must be read again (they are, at the latest, every
   // FLEET_CACHE_MS); within one second of the clock and one fingerprint every caller gets the
   // same serialized body. Freshness comes from the clock of the second the body was made in.
-  interface Entry { version: string; atMs: number; records: FleetRecord[]; second: number; body: string | null }
+  // Within the second a body was made in, it is served as it is, without asking the database.
+  interface Entry { version: string; atMs: number; records: FleetRecord[]; second: number; body: Buffer | null }
   const cache = new Map<string, Entry>();
-  async function body(scope: string[] | null, now: number): Promise<string> {
+  async function body(scope: string[] | null, now: number): Promise<Buffer> {
     const key = scope === null ? '*' : [...scope].sort().join(',');
     const second = Math.floor(now / 1000);
     let e = cache.get(key);
+    if (e && e.body !== null && e.second === second) return e.body;
     const version = await reads.fleetVersion();
-    if (e && e.body !== null && e.second === second && e.version === version) return e.body;
     if (!e || e.version !== version || now - e.atMs >= FLEET_CACHE_MS) {
       const records = await reads.fleet(scope, now);
       if (cache.size > 200) cache.clear();
@@ -102,7 +103,7 @@ export async function fleetRoutes(base: FastifyInstance): Promise<void> {
     }
     const at = second * 1000;
     e.second = second;
-    e.body = JSON.stringify({ asOf: new Date(at).toISOString(), units: fleetRows(e.records, at, silentS) });
+    e.body = Buffer.from(JSON.stringify({ asOf: new Date(at).toISOString(), units: fleetRows(e.records, at, silentS) }));
     return e.body;
   }
 
@@ -123,7 +124,7 @@ export async function fleetRoutes(base: FastifyInstance): Promise<void> {
     config: { access: 'read' },
   }, async (request, reply) => {
     const now = Date.now();
-    const rows = (JSON.parse(await body(unitScope(request), now)) as { units: FleetRow[] }).units;
+    const rows = (JSON.parse((await body(unitScope(request), now)).toString()) as { units: FleetRow[] }).units;
     return reply.header('content-type', 'image/svg+xml; charset=utf-8').send(fleetSvg(rows, now));
   });
 }
