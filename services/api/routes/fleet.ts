@@ -86,15 +86,14 @@ export async function fleetRoutes(base: FastifyInstance): Promise<void> {
   // decides whether the records must be read again (they are, at the latest, every
   // FLEET_CACHE_MS); within one second of the clock and one fingerprint every caller gets the
   // same serialized body. Freshness comes from the clock of the second the body was made in.
-  // Within the second a body was made in, it is served as it is, without asking the database.
   interface Entry { version: string; atMs: number; records: FleetRecord[]; second: number; body: Buffer | null }
   const cache = new Map<string, Entry>();
   async function body(scope: string[] | null, now: number): Promise<Buffer> {
     const key = scope === null ? '*' : [...scope].sort().join(',');
     const second = Math.floor(now / 1000);
     let e = cache.get(key);
-    if (e && e.body !== null && e.second === second) return e.body;
     const version = await reads.fleetVersion();
+    if (e && e.body !== null && e.second === second && e.version === version) return e.body;
     if (!e || e.version !== version || now - e.atMs >= FLEET_CACHE_MS) {
       const records = await reads.fleet(scope, now);
       if (cache.size > 200) cache.clear();
