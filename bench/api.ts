@@ -7,13 +7,10 @@
  * temporary directory. The last line printed is one JSON object {"bench":"api",…}.
  * Goals: p99 under 50 ms for both routes; a year of trend under 200 ms.
  */
-import { chmod, mkdtemp, rm } from 'node:fs/promises';
-import os from 'node:os';
-import path from 'node:path';
 import autocannon from 'autocannon';
 import { Worker } from 'node:worker_threads';
 import { loadConfig } from '../services/db/config.ts';
-import { startEmbeddedPostgres, type EmbeddedServer } from '../services/db/embedded.ts';
+import { startThrowawayPostgres } from '../services/db/embedded.ts';
 import { createKeysRepository } from '../services/db/keys.ts';
 import { createLogger } from '../services/db/logger.ts';
 import { migrate } from '../services/db/migrate.ts';
@@ -56,15 +53,8 @@ async function load(url: string, key: string, paths: () => string): Promise<{ p5
 
 async function main(): Promise<void> {
   const logger = createLogger(process.env.LOG_LEVEL ?? 'warn', { component: 'bench' });
-  let url = process.env.DATABASE_URL;
-  let server: EmbeddedServer | undefined;
-  let dir: string | undefined;
-  if (!url) {
-    dir = await mkdtemp(path.join(os.tmpdir(), 'cansight-bench-api-'));
-    await chmod(dir, 0o777);
-    server = await startEmbeddedPostgres({ dataDir: path.join(dir, 'data'), preferredPort: 0, logger });
-    url = server.url;
-  }
+  const server = process.env.DATABASE_URL ? undefined : await startThrowawayPostgres('cansight-bench-api', logger);
+  const url = process.env.DATABASE_URL ?? server!.url;
   const pool = createPool(url, { max: 24 });
   try {
     await migrate(pool, logger);
@@ -163,7 +153,6 @@ async function main(): Promise<void> {
   } finally {
     await pool.end();
     if (server) await server.stop();
-    if (dir) await rm(dir, { recursive: true, force: true });
   }
 }
 

@@ -10,14 +10,11 @@
  *
  *   npm run bench:ingest            BENCH_RINGS (default 200000), BENCH_CLIENTS (default 4)
  */
-import { mkdtemp, chmod, rm } from 'node:fs/promises';
-import os from 'node:os';
-import path from 'node:path';
 import { Worker } from 'node:worker_threads';
 import { createRequire } from 'node:module';
 import { buildApp } from '../services/api/app.ts';
 import { loadConfig } from '../services/db/config.ts';
-import { startEmbeddedPostgres, type EmbeddedServer } from '../services/db/embedded.ts';
+import { startThrowawayPostgres } from '../services/db/embedded.ts';
 import { createKeysRepository } from '../services/db/keys.ts';
 import { createLogger } from '../services/db/logger.ts';
 import { migrate } from '../services/db/migrate.ts';
@@ -92,15 +89,8 @@ function runClients(url: string, key: string, jobs: Body[][]): Promise<{ ms: num
 
 async function main(): Promise<void> {
   const logger = createLogger(process.env.LOG_LEVEL ?? 'warn', { component: 'bench' });
-  let url = process.env.DATABASE_URL;
-  let server: EmbeddedServer | undefined;
-  let dir: string | undefined;
-  if (!url) {
-    dir = await mkdtemp(path.join(os.tmpdir(), 'cansight-bench-'));
-    await chmod(dir, 0o777);
-    server = await startEmbeddedPostgres({ dataDir: path.join(dir, 'data'), preferredPort: 0, logger });
-    url = server.url;
-  }
+  const server = process.env.DATABASE_URL ? undefined : await startThrowawayPostgres('cansight-bench', logger);
+  const url = process.env.DATABASE_URL ?? server!.url;
   const pool = createPool(url, { max: CLIENTS * 2 + 4 });
   try {
     await migrate(pool, logger);
@@ -185,7 +175,6 @@ async function main(): Promise<void> {
   } finally {
     await pool.end();
     if (server) await server.stop();
-    if (dir) await rm(dir, { recursive: true, force: true });
   }
 }
 

@@ -14,11 +14,8 @@
  *   npm run scorecard     SCORECARD_UNITS (20), SCORECARD_DAYS (30), SCORECARD_REFERENCE_DAYS (9),
  *                         SCORECARD_SEED (1), SCORECARD_END (2026-11-01T00:00:00Z)
  */
-import { chmod, mkdtemp, rm } from 'node:fs/promises';
-import os from 'node:os';
-import path from 'node:path';
 import { loadConfig } from '../services/db/config.ts';
-import { startEmbeddedPostgres } from '../services/db/embedded.ts';
+import { startThrowawayPostgres } from '../services/db/embedded.ts';
 import { createLogger } from '../services/db/logger.ts';
 import { migrate } from '../services/db/migrate.ts';
 import { createPool } from '../services/db/pool.ts';
@@ -42,16 +39,8 @@ async function database(): Promise<{ url: string; stop: () => Promise<void> }> {
     u.pathname = '/cansight_scorecard';
     return { url: u.toString(), stop: async () => undefined };
   }
-  const dir = await mkdtemp(path.join(os.tmpdir(), 'cansight-scorecard-'));
-  await chmod(dir, 0o777);
-  const server = await startEmbeddedPostgres({ dataDir: path.join(dir, 'data'), preferredPort: 0, logger: createLogger('warn') });
-  return {
-    url: server.url,
-    stop: async () => {
-      await server.stop();
-      await rm(dir, { recursive: true, force: true });
-    },
-  };
+  const server = await startThrowawayPostgres('cansight-scorecard', createLogger('warn'));
+  return { url: server.url, stop: () => server.stop() };
 }
 
 async function main(): Promise<void> {

@@ -15,8 +15,8 @@
  *
  *   npm run bench:worker     BENCH_DAYS (default 30), BENCH_UNITS (default 200), BENCH_SECONDS (default 60)
  */
-import { mkdtemp, chmod, rm } from 'node:fs/promises';
 import os from 'node:os';
+import { readFileSync } from 'node:fs';
 import path from 'node:path';
 import { Worker as Thread } from 'node:worker_threads';
 import { spawn } from 'node:child_process';
@@ -25,7 +25,7 @@ import { createRequire } from 'node:module';
 import { analyseRing, correctedLoadFraction, prepareUnit } from '../services/core/index.ts';
 import { buildApp } from '../services/api/app.ts';
 import { loadConfig } from '../services/db/config.ts';
-import { startEmbeddedPostgres, type EmbeddedServer } from '../services/db/embedded.ts';
+import { startThrowawayPostgres } from '../services/db/embedded.ts';
 import { createKeysRepository } from '../services/db/keys.ts';
 import { createLogger } from '../services/db/logger.ts';
 import { migrate } from '../services/db/migrate.ts';
@@ -76,22 +76,13 @@ function postgresCpuS(): number {
 
 async function database(): Promise<{ adminUrl: string; stop: () => Promise<void> }> {
   if (process.env.DATABASE_URL) return { adminUrl: process.env.DATABASE_URL, stop: async () => undefined };
-  const dir = await mkdtemp(path.join(os.tmpdir(), 'cansight-bench-worker-'));
-  await chmod(dir, 0o777);
-  const server: EmbeddedServer = await startEmbeddedPostgres({ dataDir: path.join(dir, 'data'), preferredPort: 0, logger: createLogger('warn') });
+  const server = await startThrowawayPostgres('cansight-bench-worker', createLogger('warn'));
   try {
-    const fs = createRequire(import.meta.url)('node:fs') as typeof import('node:fs');
-    postmasterPid = Number(fs.readFileSync(path.join(dir, 'data', 'postmaster.pid'), 'utf8').split('\n')[0]);
+    postmasterPid = Number(readFileSync(path.join(server.dataDir, 'postmaster.pid'), 'utf8').split('\n')[0]);
   } catch {
     postmasterPid = null;
   }
-  return {
-    adminUrl: server.url,
-    stop: async () => {
-      await server.stop();
-      await rm(dir, { recursive: true, force: true });
-    },
-  };
+  return { adminUrl: server.url, stop: () => server.stop() };
 }
 
 function databaseUrl(adminUrl: string, name: string): string {

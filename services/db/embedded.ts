@@ -5,11 +5,12 @@
  * As root, PostgreSQL runs as the `postgres` OS user, so the data directory is made writable
  * for it.
  */
-import { chmod, chown, mkdir, readFile, stat, writeFile } from 'node:fs/promises';
+import { chmod, chown, mkdir, mkdtemp, readFile, rm, stat, writeFile } from 'node:fs/promises';
 import { existsSync } from 'node:fs';
 import { createServer } from 'node:net';
 import { randomBytes } from 'node:crypto';
 import { execFileSync } from 'node:child_process';
+import os from 'node:os';
 import path from 'node:path';
 import type { Logger } from './logger.ts';
 
@@ -148,6 +149,25 @@ export async function startEmbeddedPostgres(opts: { dataDir: string; preferredPo
       stopped = true;
       await pg.stop();
       log.info('embedded PostgreSQL stopped');
+    },
+  };
+}
+
+/**
+ * A PostgreSQL in a fresh temporary directory on a free port, removed again by stop(): for
+ * tests and benchmarks. The directory is made writable for the postgres OS user (as root).
+ */
+export async function startThrowawayPostgres(prefix: string, logger: Logger): Promise<EmbeddedServer & { dataDir: string }> {
+  const dir = await mkdtemp(path.join(os.tmpdir(), `${prefix}-`));
+  await chmod(dir, 0o777);
+  const dataDir = path.join(dir, 'data');
+  const server = await startEmbeddedPostgres({ dataDir, preferredPort: 0, logger });
+  return {
+    ...server,
+    dataDir,
+    async stop() {
+      await server.stop();
+      await rm(dir, { recursive: true, force: true });
     },
   };
 }

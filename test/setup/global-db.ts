@@ -5,13 +5,10 @@
  * 3. otherwise an embedded PostgreSQL in a fresh temporary directory on a free port.
  * A template database is migrated once; each test file clones it (test/helpers/db.ts).
  */
-import { mkdtemp, chmod, rm } from 'node:fs/promises';
-import os from 'node:os';
-import path from 'node:path';
 import pg from 'pg';
 import type { TestProject } from 'vitest/node';
 import { createLogger } from '../../services/db/logger.ts';
-import { startEmbeddedPostgres, type EmbeddedServer } from '../../services/db/embedded.ts';
+import { startThrowawayPostgres } from '../../services/db/embedded.ts';
 import { createPool } from '../../services/db/pool.ts';
 import { migrate } from '../../services/db/migrate.ts';
 
@@ -49,15 +46,9 @@ export default async function setup(project: TestProject): Promise<() => Promise
       adminUrl = container.url;
       stop = container.stop;
     } else {
-      const dir = await mkdtemp(path.join(os.tmpdir(), 'cansight-test-pg-'));
-      await chmod(dir, 0o777);
-      let server: EmbeddedServer;
-      server = await startEmbeddedPostgres({ dataDir: path.join(dir, 'data'), preferredPort: 0, logger });
+      const server = await startThrowawayPostgres('cansight-test-pg', logger);
       adminUrl = server.url;
-      stop = async () => {
-        await server.stop();
-        await rm(dir, { recursive: true, force: true });
-      };
+      stop = () => server.stop();
     }
   }
   const admin = new pg.Client({ connectionString: adminUrl });
