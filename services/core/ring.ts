@@ -240,13 +240,17 @@ export function loadOfBin(ctx: UnitContext, bin: number): number {
 }
 
 /** The chamber solver for (bin, usable mask): from the recent slots, the cache, or built anew. */
-export function solverFor(ctx: UnitContext, bin: number, usable: Uint8Array): ChamberSolver {
-  let lo = 0;
-  let hi = 0;
-  for (let i = 0; i < ctx.m; i++) {
-    if (!usable[i]) continue;
-    if (i < 32) lo = (lo | (1 << i)) >>> 0;
-    else hi = (hi | (1 << (i - 32))) >>> 0;
+export function solverFor(ctx: UnitContext, bin: number, usable: Uint8Array, maskLo = -1, maskHi = -1): ChamberSolver {
+  let lo = maskLo;
+  let hi = maskHi;
+  if (lo < 0 || hi < 0) {
+    lo = 0;
+    hi = 0;
+    for (let i = 0; i < ctx.m; i++) {
+      if (!usable[i]) continue;
+      if (i < 32) lo = (lo | (1 << i)) >>> 0;
+      else hi = (hi | (1 << (i - 32))) >>> 0;
+    }
   }
   const base = bin * RECENT_PER_BIN;
   for (let s = 0; s < RECENT_PER_BIN; s++) {
@@ -317,10 +321,17 @@ export function analyseRing(
   }
   const spread = spreadInto(values, codes, m, scratch, out.spread, outliers === 0 ? med : NaN);
   const centre = spread.robustCentreDegC;
+  // The usable-thermocouple mask, as bits, is the solver cache's key (built in the same pass).
+  let maskLo = 0;
+  let maskHi = 0;
   for (let i = 0; i < m; i++) {
     const ok = codes[i] === VALIDITY.valid;
     usable[i] = ok ? 1 : 0;
     out.deviationDegC[i] = ok ? values[i] - centre : NaN;
+    if (ok) {
+      if (i < 32) maskLo = (maskLo | (1 << i)) >>> 0;
+      else maskHi = (maskHi | (1 << (i - 32))) >>> 0;
+    }
   }
   coverageInto(codes, m, ctx.options.coverage, out.coverage);
   out.loadFraction = loadFraction;
@@ -330,7 +341,7 @@ export function analyseRing(
     clearChambers(out, n);
     return out;
   }
-  const solver = solverFor(ctx, bin, usable);
+  const solver = solverFor(ctx, bin, usable, maskLo, maskHi);
   estimateChambers(solver, values, centre, ctx.options.residualFloorDegC, ctx.scratch, ctx.fit, out);
   let worst = -1;
   let worstAbs = -1;

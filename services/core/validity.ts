@@ -190,7 +190,7 @@ export function longestInvalidRun(codes: ArrayLike<number>, m: number): number {
 export function coverageInto(codes: ArrayLike<number>, m: number, opts: CoverageOptions, out: Coverage): Coverage {
   let nv = 0;
   for (let i = 0; i < m; i++) if (codes[i] === VALIDITY.valid) nv++;
-  const run = longestInvalidRun(codes, m);
+  const run = nv === m ? 0 : longestInvalidRun(codes, m);
   out.validCount = nv;
   out.total = m;
   out.fraction = m > 0 ? nv / m : 0;
