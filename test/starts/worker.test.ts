@@ -120,6 +120,17 @@ describe('start routes', () => {
     expect(body.starts.every((s: { spreadEndOfWarmupC: number | null }) => s.spreadEndOfWarmupC !== null)).toBe(true);
   });
 
+  it('carries the start counters in the unit status and in its fleet row', async () => {
+    const [c] = await createStartsRepository(t.db.pool).counters([unit.config.id]);
+    expect(c.firedStarts).toBe(truth.starts.length);
+    const status = (await t.app.inject({ url: `/v1/units/${unit.config.id}/status`, headers: bearer(t.keys.viewer) })).json();
+    expect(status.starts).toEqual({ firedStarts: c.firedStarts, failedStarts: c.failedStarts, trips: c.trips, firedHours: c.firedHours, lastStartAt: c.lastStartAt, lastStartOutcome: c.lastStartOutcome });
+    const fleet = (await t.app.inject({ url: '/v1/fleet', headers: bearer(t.keys.viewer) })).json();
+    const row = fleet.units.find((u: { unitId: string }) => u.unitId === unit.config.id);
+    expect(row.starts).toEqual(status.starts);
+    expect(row.starts.failedStarts).toBeGreaterThanOrEqual(1);
+  });
+
   it('serves one start with its phase timeline, crossfire time, lighting and findings; 404 for an unknown one', async () => {
     const list = (await t.app.inject({ url: `/v1/units/${unit.config.id}/starts?from=${new Date(scenario.from).toISOString()}&to=${new Date(scenario.to).toISOString()}`, headers: bearer(t.keys.viewer) })).json();
     const late = list.starts.find((s: { findingKinds: string[]; outcome: string }) => s.outcome !== 'aborted' && s.findingKinds.includes('chamber_unlit'));

@@ -9,6 +9,8 @@ import { Type, type Static } from 'typebox';
 import { unitScope } from '../auth.ts';
 import { fleetSvg, rankFleet, type Freshness } from '../svg/fleet.ts';
 import type { FleetRecord } from '../../db/reads.ts';
+import { createStartsRepository, type StartCountersRecord } from '../../db/starts.ts';
+import { StartCounters } from './starts.ts';
 import { readErrors, readsOf } from './read-common.ts';
 
 const Grade = Type.Union([Type.Literal('notice'), Type.Literal('warning'), Type.Literal('alarm'), Type.Literal('critical')]);
@@ -33,6 +35,7 @@ export const FleetRow = Type.Object({
   unacknowledged: Type.Integer(),
   shelvedAlerts: Type.Integer(),
   coverage: Nullable(Type.Object({ valid: Type.Integer(), total: Type.Integer() }, { description: 'valid thermocouples of the latest analysed ring' })),
+  starts: StartCounters,
 });
 export type FleetRow = Static<typeof FleetRow>;
 
@@ -49,9 +52,12 @@ export function freshnessOf(lastRingTs: string | null, nowMs: number, silentS: n
   return { freshness: ageS <= live ? 'live' : ageS <= silent ? 'late' : 'silent', ageS: Math.round(ageS) };
 }
 
-export function fleetRows(records: FleetRecord[], nowMs: number, silentS: number): FleetRow[] {
+const NO_STARTS = { firedStarts: 0, failedStarts: 0, trips: 0, firedHours: 0, lastStartAt: null, lastStartOutcome: null };
+
+export function fleetRows(records: FleetRecord[], nowMs: number, silentS: number, starts: ReadonlyMap<string, StartCountersRecord> = new Map()): FleetRow[] {
   return rankFleet(
     records.map((r) => {
+      const c = starts.get(r.unitId);
       const f = freshnessOf(r.lastRingTs, nowMs, silentS);
       return {
         unitId: r.unitId,
@@ -70,6 +76,7 @@ export function fleetRows(records: FleetRecord[], nowMs: number, silentS: number
         unacknowledged: r.unacknowledged,
         shelvedAlerts: r.shelvedAlerts,
         coverage: r.validCount !== null && r.thermocoupleCount !== null ? { valid: r.validCount, total: r.thermocoupleCount } : null,
+        starts: c ? { firedStarts: c.firedStarts, failedStarts: c.failedStarts, trips: c.trips, firedHours: c.firedHours, lastStartAt: c.lastStartAt, lastStartOutcome: c.lastStartOutcome } : NO_STARTS,
       };
     }),
   );
@@ -86,7 +93,8 @@ export async function fleetRoutes(base: FastifyInstance): Promise<void> {
   // decides whether the records must be read again (they are, at the latest, every
   // FLEET_CACHE_MS); within one second of the clock and one fingerprint every caller gets the
   // same serialized body. Freshness comes from the clock of the second the body was made in.
-  interface Entry { version: string; atMs: number; records: FleetRecord[]; second: number; body: Buffer | null }
+  const startsRepo = createStartsRepository(app.pool);
+  interface Entry { version: string; atMs: number; records: FleetRecord[]; starts: Map<string, StartCountersRecord>; second: number; body: Buffer | null }
   const cache = new Map<string, Entry>();
   async function body(scope: string[] | null, now: number): Promise<Buffer> {
     const key = scope === null ? '*' : [...scope].sort().join(',');
@@ -95,14 +103,14 @@ export async function fleetRoutes(base: FastifyInstance): Promise<void> {
     const version = await reads.fleetVersion();
     if (e && e.body !== null && e.second === second && e.version === version) return e.body;
     if (!e || e.version !== version || now - e.atMs >= FLEET_CACHE_MS) {
-      const records = await reads.fleet(scope, now);
+      const [records, counters] = await Promise.all([reads.fleet(scope, now), startsRepo.counters(scope)]);
       if (cache.size > 200) cache.clear();
-      e = { version, atMs: now, records, second, body: null };
+      e = { version, atMs: now, records, starts: new Map(counters.map((c) => [c.unitId, c])), second, body: null };
       cache.set(key, e);
     }
     const at = second * 1000;
     e.second = second;
-    e.body = Buffer.from(JSON.stringify({ asOf: new Date(at).toISOString(), units: fleetRows(e.records, at, silentS) }));
+    e.body = Buffer.from(JSON.stringify({ asOf: new Date(at).toISOString(), units: fleetRows(e.records, at, silentS, e.starts) }));
     return e.body;
   }
 

@@ -38,7 +38,8 @@ const PhaseRow = Type.Object({
   speedPct: Nullable(Type.Number({ description: 'shaft speed at the start of the phase, %' })),
 });
 
-const Counters = Type.Object({
+/** A unit's start counters, as the starts list, the unit status and the fleet rows carry them. */
+export const StartCounters = Type.Object({
   firedStarts: Type.Integer({ description: 'starts in which a flame was established' }),
   failedStarts: Type.Integer({ description: 'failed to fire, flame lost in warm-up, or aborted' }),
   trips: Type.Integer({ description: 'fired shutdowns at speed (not counting starts aborted before full speed)' }),
@@ -113,7 +114,7 @@ const StartListReply = Type.Object({
   unitId: Type.String(),
   from: Time,
   to: Time,
-  counters: Counters,
+  counters: StartCounters,
   starts: Type.Array(StartSummary),
 });
 

@@ -16,6 +16,8 @@ import { listActiveAlerts } from '../../db/alerts.ts';
 import { notFound } from '../errors.ts';
 import { ErrorReply, UnitParams } from '../schemas.ts';
 import { baselineRoutes } from './baselines.ts';
+import { createStartsRepository } from '../../db/starts.ts';
+import { StartCounters } from './starts.ts';
 
 const Nullable = <T extends TSchema>(t: T) => Type.Union([t, Type.Null()]);
 const DegC = (description: string) => Nullable(Type.Number({ description: `${description}, °C` }));
@@ -67,6 +69,7 @@ export const StatusReply = Type.Object({
     workerId: Nullable(Type.String()),
     leaseUntil: Nullable(Type.String({ format: 'date-time' })),
   }),
+  starts: StartCounters,
   caution: Type.String(),
 });
 
@@ -76,13 +79,14 @@ const num = (v: number | null | undefined) => (v === null || v === undefined || 
 
 export async function statusRoutes(base: FastifyInstance): Promise<void> {
   const app = base.withTypeProvider<TypeBoxTypeProvider>();
+  const startsRepo = createStartsRepository(app.pool);
   app.get('/v1/units/:unitId/status', {
     schema: { tags: ['analysis'], summary: 'Latest analysis of a unit, its active alerts and how far analysis has come', params: UnitParams, response: { 200: StatusReply, ...errors } },
     config: { access: 'read' },
   }, async (request) => {
     const unitId = request.params.unitId;
     if (!(await app.repos.units.exists(unitId))) throw notFound(`No unit ${unitId}.`);
-    const [a, p, alerts] = await Promise.all([latestAnalysis(app.pool, unitId), analysisProgress(app.pool, unitId), listActiveAlerts(app.pool, unitId)]);
+    const [a, p, alerts, [starts]] = await Promise.all([latestAnalysis(app.pool, unitId), analysisProgress(app.pool, unitId), listActiveAlerts(app.pool, unitId), startsRepo.counters([unitId])]);
     const validity = a?.validity ?? [];
     return {
       unitId,
@@ -125,6 +129,9 @@ export async function statusRoutes(base: FastifyInstance): Promise<void> {
         workerId: p.workerId,
         leaseUntil: iso(p.leaseUntil),
       },
+      starts: starts
+        ? { firedStarts: starts.firedStarts, failedStarts: starts.failedStarts, trips: starts.trips, firedHours: starts.firedHours, lastStartAt: starts.lastStartAt, lastStartOutcome: starts.lastStartOutcome }
+        : { firedStarts: 0, failedStarts: 0, trips: 0, firedHours: 0, lastStartAt: null, lastStartOutcome: null },
       caution: ADVISORY_CAUTION,
     };
   });
