@@ -4,20 +4,10 @@
  * computes hottest − coldest over the same arrays. Last line: one JSON object.
  */
 import { analyseRing, prepareUnit, ringFromChambers, type UnitConfig } from '../services/core/index.ts';
+import { mulberry32 } from '../test/core/helpers.ts';
 
 const RINGS = Number(process.env.BENCH_RINGS ?? 1_000_000);
 const POOL = 4096;
-
-function mulberry32(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
 
 const config: UnitConfig = {
   ratedPowerMw: 24,

@@ -9,7 +9,7 @@ import { loadConfig } from '../../services/db/config.ts';
 import { createRingAnalysis, type RingAnalysis } from '../../services/core/ring.ts';
 import type { Finding, FindingKind, Grade } from '../../services/core/findings.ts';
 import type { UnitConfig } from '../../services/core/types.ts';
-import { applyAlertObservations, loadAlertSettings, type AlertObservation, type AlertSettings } from '../../services/worker/alerts.ts';
+import { applyAlertObservations, conditionKey, loadAlertSettings, newAlert, type AlertObservation, type AlertSettings, type AlertSubject } from '../../services/worker/alerts.ts';
 import { createWebhook, recordChange, type AlertRow } from '../../services/db/alerts.ts';
 
 export const T0 = Date.parse('2026-03-01T10:00:00Z');
@@ -113,41 +113,14 @@ export async function seedAlert(pool: Pool, p: { unitId: string; kind?: FindingK
   const kind = p.kind ?? 'chamber_cold';
   const chamber = p.chamber === undefined ? (kind.startsWith('chamber_') ? 4 : null) : p.chamber;
   const thermocouple = p.thermocouple === undefined ? (kind === 'thermocouple_fault' ? 7 : null) : p.thermocouple;
-  const key = chamber !== null ? `${kind}:ch${chamber}` : thermocouple !== null ? `${kind}:tc${thermocouple}` : kind;
   const raisedAt = p.raisedAt ?? new Date();
-  const a: AlertRow = {
-    id: p.id ?? '',
-    unitId: p.unitId,
-    kind,
-    conditionKey: key,
-    grade: p.grade ?? 'warning',
-    chamber,
-    thermocouple,
-    active: true,
-    acknowledged: false,
-    ackedAt: null,
-    ackedBy: null,
-    ackComment: null,
-    shelvedUntil: null,
-    shelvedAt: null,
-    shelvedBy: null,
-    shelveReason: null,
-    raisedAt,
-    lastChangedAt: raisedAt,
-    clearedAt: null,
-    closedAt: null,
-    message: `${kind} seeded`,
-    advice: 'look at it',
-    evidence: { seeded: true },
-    likelihood: null,
-    runnerUpChamber: null,
-    runnerUpLikelihood: null,
-    baselineVersion: null,
-    lastSeenAt: raisedAt,
-    absentSince: null,
-    pendingGrade: null,
-    pendingGradeSince: null,
+  const grade = p.grade ?? 'warning';
+  const subject: AlertSubject = {
+    kind, grade, chamber, thermocouple, likelihood: null, runnerUpChamber: null, runnerUpLikelihood: null,
+    evidence: { seeded: true }, baselineVersion: null, message: `${kind} seeded`, advice: 'look at it',
   };
+  const a = newAlert(p.unitId, conditionKey(kind, chamber, thermocouple), subject, grade, raisedAt);
+  if (p.id) a.id = p.id;
   await withTransaction(pool, async (c) => {
     await recordChange(c, a, { action: 'raised', at: raisedAt }, true);
   });
