@@ -386,18 +386,8 @@ export class RingWrite {
 }
 
 /** A stored ring as read back: readings in °C, NaN where missing. */
-export interface StoredRing {
-  unitId: string;
+export interface StoredRing extends RingRow {
   ts: Date;
-  tsMs: number;
-  loadMw: number;
-  ambientC: number;
-  ambientKPa: number;
-  speedPct: number;
-  cdtC: number | null;
-  cdpKPa: number | null;
-  fuelFlowKgS: number | null;
-  flameDetected: boolean | null;
   exhaustC: Float64Array;
   receivedAt: Date;
 }

@@ -60,3 +60,29 @@ export function tempIn(unit: 'C' | 'F', degC: number | null | undefined): number
 export function svgOpen(width: number, height: number, title: string): string {
   return `<svg xmlns="http://www.w3.org/2000/svg" width="${width}" height="${height}" viewBox="0 0 ${width} ${height}" font-family="DejaVu Sans, Arial, sans-serif" font-size="12" role="img" aria-label="${esc(title)}"><title>${esc(title)}</title><rect width="${width}" height="${height}" fill="#ffffff"/>`;
 }
+
+/** A round step (1, 2 or 5 × 10ⁿ) that cuts `span` into about `target` parts. */
+export function niceStep(span: number, target: number): number {
+  const raw = Math.max(span, 1e-9) / target;
+  const mag = 10 ** Math.floor(Math.log10(raw));
+  for (const m of [1, 2, 5, 10]) if (raw <= m * mag) return m * mag;
+  return 10 * mag;
+}
+
+const DAY_MS = 86_400_000;
+
+/**
+ * The time axis of a plot area: a faint vertical line and a date (or date and time, for two
+ * days or less) at round steps between fromMs and toMs.
+ */
+export function timeAxis(fromMs: number, toMs: number, x: (tMs: number) => number, top: number, height: number): string {
+  const out: string[] = [];
+  const days = Math.max(1, toMs - fromMs) / DAY_MS;
+  const tickDays = days <= 2 ? 0.25 : niceStep(days, 8);
+  for (let t = Math.ceil(fromMs / (tickDays * DAY_MS)) * tickDays * DAY_MS; t <= toMs; t += tickDays * DAY_MS) {
+    out.push(`<line x1="${c(x(t))}" x2="${c(x(t))}" y1="${top}" y2="${top + height}" stroke="${PALETTE.faint}" stroke-width="0.7"/>`);
+    const d = new Date(t).toISOString();
+    out.push(`<text x="${c(x(t))}" y="${top + height + 14}" text-anchor="middle" font-size="10">${tickDays < 1 ? d.slice(5, 16).replace('T', ' ') : d.slice(0, 10)}</text>`);
+  }
+  return out.join('');
+}

@@ -3,7 +3,7 @@
  * limit as a stepped dashed line, buckets above their limit marked with a filled square (so it
  * reads without colour), and alert marks along the bottom by grade.
  */
-import { PALETTE, c, diffIn, esc, num, svgOpen } from './draw.ts';
+import { PALETTE, c, diffIn, esc, num, svgOpen, niceStep, timeAxis } from './draw.ts';
 import { gradeMark, type Grade } from './fleet.ts';
 
 export interface SpreadPoint {
@@ -30,14 +30,7 @@ const L = 64;
 const R = 20;
 const T = 52;
 const B = 64;
-const DAY_MS = 86_400_000;
 
-function niceStep(span: number, target: number): number {
-  const raw = span / target;
-  const mag = 10 ** Math.floor(Math.log10(raw));
-  for (const m of [1, 2, 5, 10]) if (raw <= m * mag) return m * mag;
-  return 10 * mag;
-}
 
 export function spreadSvg(p: SpreadPlotInput): string {
   const u = p.temperatureUnit;
@@ -59,13 +52,7 @@ export function spreadSvg(p: SpreadPlotInput): string {
     out.push(`<text x="${L - 6}" y="${c(y(v) + 4)}" text-anchor="end" font-size="10">${num(v, 0)}</text>`);
   }
   out.push(`<text x="14" y="${c(T + ph / 2)}" transform="rotate(-90 14 ${c(T + ph / 2)})" text-anchor="middle">exhaust spread °${u}</text>`);
-  const days = span / DAY_MS;
-  const tickDays = days <= 2 ? 0.25 : niceStep(days, 8);
-  for (let t = Math.ceil(p.fromMs / (tickDays * DAY_MS)) * tickDays * DAY_MS; t <= p.toMs; t += tickDays * DAY_MS) {
-    out.push(`<line x1="${c(x(t))}" x2="${c(x(t))}" y1="${T}" y2="${T + ph}" stroke="${PALETTE.faint}" stroke-width="0.7"/>`);
-    const d = new Date(t).toISOString();
-    out.push(`<text x="${c(x(t))}" y="${T + ph + 14}" text-anchor="middle" font-size="10">${tickDays < 1 ? d.slice(5, 16).replace('T', ' ') : d.slice(0, 10)}</text>`);
-  }
+  out.push(timeAxis(p.fromMs, p.toMs, x, T, ph));
   out.push(`<rect x="${L}" y="${T}" width="${pw}" height="${ph}" fill="none" stroke="${PALETTE.ink}" stroke-width="0.8"/>`);
   if (p.points.length === 0) out.push(`<text x="${L + pw / 2}" y="${T + ph / 2}" text-anchor="middle" class="empty">no analysed rings in this window</text>`);
   // Limit: stepped line through each bucket's limit.

@@ -5,7 +5,7 @@
  * alternating bands with their names; a chamber reported unlit is drawn thick, dashed and in
  * the cold colour, so the picture reads in grey too.
  */
-import { PALETTE, c, diffIn, esc, num, svgOpen } from './draw.ts';
+import { PALETTE, c, diffIn, esc, niceStep, num, svgOpen } from './draw.ts';
 
 export interface StartPlotInput {
   title: string;
@@ -48,12 +48,6 @@ const PHASE_LABEL: Record<string, string> = {
   loading: 'loading',
 };
 
-function niceStep(span: number, target: number): number {
-  const raw = Math.max(span, 1e-9) / target;
-  const mag = 10 ** Math.floor(Math.log10(raw));
-  for (const m of [1, 2, 5, 10]) if (raw <= m * mag) return m * mag;
-  return 10 * mag;
-}
 
 export function startSvg(p: StartPlotInput): string {
   const u = p.temperatureUnit;

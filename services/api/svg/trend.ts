@@ -3,7 +3,7 @@
  * as bucket means with their min–max whiskers, the baseline's normal band around zero, the
  * fitted drift line, and alert marks along the bottom by grade (shape and colour).
  */
-import { PALETTE, c, diffIn, esc, num, svgOpen } from './draw.ts';
+import { PALETTE, c, diffIn, esc, num, svgOpen, niceStep, timeAxis } from './draw.ts';
 
 export interface TrendPoint {
   /** Bucket start, ms since epoch. */
@@ -39,12 +39,6 @@ const T = 52;
 const B = 70;
 const DAY_MS = 86_400_000;
 
-function niceStep(span: number, target: number): number {
-  const raw = span / target;
-  const mag = 10 ** Math.floor(Math.log10(raw));
-  for (const m of [1, 2, 5, 10]) if (raw <= m * mag) return m * mag;
-  return 10 * mag;
-}
 
 const GRADE_SHAPE: Record<string, (x: number, y: number) => string> = {
   notice: (x, y) => `<circle cx="${c(x)}" cy="${c(y)}" r="4" fill="${PALETTE.notice}" stroke="${PALETTE.ink}" stroke-width="0.6"/>`,
@@ -80,13 +74,7 @@ export function trendSvg(p: TrendPlotInput): string {
     out.push(`<text x="${L - 6}" y="${c(y(v) + 4)}" text-anchor="end" font-size="10">${num(v, step < 1 ? 1 : 0)}</text>`);
   }
   out.push(`<text x="14" y="${c(T + ph / 2)}" transform="rotate(-90 14 ${c(T + ph / 2)})" text-anchor="middle">${esc(p.quantity ?? 'residual')} °${u}</text>`);
-  const days = span / DAY_MS;
-  const tickDays = days <= 2 ? 0.25 : niceStep(days, 8);
-  for (let t = Math.ceil(p.fromMs / (tickDays * DAY_MS)) * tickDays * DAY_MS; t <= p.toMs; t += tickDays * DAY_MS) {
-    out.push(`<line x1="${c(x(t))}" x2="${c(x(t))}" y1="${T}" y2="${T + ph}" stroke="${PALETTE.faint}" stroke-width="0.7"/>`);
-    const d = new Date(t).toISOString();
-    out.push(`<text x="${c(x(t))}" y="${T + ph + 14}" text-anchor="middle" font-size="10">${tickDays < 1 ? d.slice(5, 16).replace('T', ' ') : d.slice(0, 10)}</text>`);
-  }
+  out.push(timeAxis(p.fromMs, p.toMs, x, T, ph));
   out.push(`<rect x="${L}" y="${T}" width="${pw}" height="${ph}" fill="none" stroke="${PALETTE.ink}" stroke-width="0.8"/>`);
   // Baseline band.
   if (p.bandC !== null) {
