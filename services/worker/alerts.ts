@@ -35,7 +35,7 @@
  * - unit_silent alerts are owned by the silent-unit check (alert-jobs.ts), not by these rules.
  */
 import { gradeRank, GRADES, type Finding, type Grade, type Thresholds } from '../core/findings.ts';
-import { ALERT_KINDS, type AlertKind, type Config } from '../db/config.ts';
+import { ALERT_KINDS, type AlertConfig, type AlertKind, type Config } from '../db/config.ts';
 import {
   closeAlert,
   isShelved,
@@ -55,29 +55,17 @@ import {
 
 export type { AlertChange } from '../db/alerts.ts';
 
-export interface AlertSettings {
+/**
+ * The alert rules' settings: the configuration's (services/db/config.ts AlertConfig), with the
+ * on- and off-delay resolved for every kind, and the webhook settings.
+ */
+export type AlertSettings = Omit<AlertConfig, 'onDelayS' | 'offDelayS' | 'onDelayByKindS' | 'offDelayByKindS'> & {
   /** Per kind: seconds at the raise level before an alert is raised. */
   onDelayS: Record<AlertKind, number>;
   /** Per kind: seconds absent from the hold level before an alert returns to normal. */
   offDelayS: Record<AlertKind, number>;
-  /** Seconds a new grade must hold before an open alert changes grade. */
-  gradeDelayS: number;
-  /** An observation gap longer than this (seconds) starts an on-delay again. */
-  maxGapS: number;
-  /** Deadband on temperature levels, °C. */
-  deadbandDegC: number;
-  /** Deadband on the chamber z-level. */
-  deadbandZ: number;
-  /** Deadband on rates and fractions, as a fraction of the level. */
-  deadbandRatio: number;
-  /** Longest shelf a person may set, seconds. */
-  maxShelveS: number;
-  /** A unit silent this long gets a unit_silent alert, seconds; 0: off. */
-  unitSilentS: number;
-  /** Period of the shelf-expiry and silent-unit checks, seconds. */
-  checkIntervalS: number;
   webhooks: Config['webhooks'];
-}
+};
 
 /**
  * Per-kind delays that differ from the general ones. A spread jump is a change between two
@@ -101,17 +89,11 @@ export function loadAlertSettings(config: Config): AlertSettings {
     onDelayS[k] = a.onDelayByKindS[k] ?? KIND_DEFAULTS[k]?.onDelayS ?? a.onDelayS;
     offDelayS[k] = a.offDelayByKindS[k] ?? KIND_DEFAULTS[k]?.offDelayS ?? a.offDelayS;
   }
+  const { onDelayByKindS: _on, offDelayByKindS: _off, ...rest } = a;
   return {
+    ...rest,
     onDelayS,
     offDelayS,
-    gradeDelayS: a.gradeDelayS,
-    maxGapS: a.maxGapS,
-    deadbandDegC: a.deadbandDegC,
-    deadbandZ: a.deadbandZ,
-    deadbandRatio: a.deadbandRatio,
-    maxShelveS: a.maxShelveS,
-    unitSilentS: a.unitSilentS,
-    checkIntervalS: a.checkIntervalS,
     webhooks: { ...config.webhooks },
   };
 }
