@@ -166,6 +166,17 @@ interface FittedCurve {
   curve: SwirlPoint[];
 }
 
+/** v ↦ Σ coefⱼ·basisⱼ(v): the fitted curve of a linear least-squares fit on a basis. */
+function basisCombination(basis: (v: number, out: Float64Array) => void, coef: ArrayLike<number>): (v: number) => number {
+  const b = new Float64Array(coef.length);
+  return (v: number) => {
+    basis(v, b);
+    let s = 0;
+    for (let j = 0; j < coef.length; j++) s += b[j] * coef[j];
+    return s;
+  };
+}
+
 /**
  * Least-squares piecewise-linear fit with hat basis functions at the knots (clamped outside).
  * A tiny ridge keeps knots without nearby data determined (they follow their neighbours).
@@ -200,13 +211,7 @@ export function fitPiecewiseLinear(x: readonly number[], y: readonly number[], k
     }
   };
   const coef = leastSquares(x, y, p, basis, 1e-6);
-  const b = new Float64Array(p);
-  const evaluate = (v: number) => {
-    basis(v, b);
-    let s = 0;
-    for (let j = 0; j < p; j++) s += b[j] * coef[j];
-    return s;
-  };
+  const evaluate = basisCombination(basis, coef);
   return { evaluate, curve: knots.map((k, j) => [k, coef[j]] as SwirlPoint) };
 }
 
@@ -223,13 +228,7 @@ export function fitPolynomial(x: readonly number[], y: readonly number[], degree
     }
   };
   const coef = leastSquares(x, y, p, basis, 0);
-  const b = new Float64Array(p);
-  const evaluate = (v: number) => {
-    basis(v, b);
-    let s = 0;
-    for (let j = 0; j < p; j++) s += b[j] * coef[j];
-    return s;
-  };
+  const evaluate = basisCombination(basis, coef);
   const lo = Math.min(...x);
   const hi = Math.max(...x);
   const samplesAt = hi === lo ? [lo] : Array.from({ length: 5 }, (_, i) => lo + ((hi - lo) * i) / 4);
