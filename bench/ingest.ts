@@ -5,13 +5,18 @@
  *   (b) the JSON batch endpoint over HTTP, concurrent clients;
  *   (c) the NDJSON stream endpoint over HTTP, concurrent clients;
  * and each HTTP path's ratio to raw COPY. The HTTP clients run in a worker thread with
- * undici, their bodies made before the clock starts. Uses DATABASE_URL if set, else an
- * embedded PostgreSQL in a temporary directory. The last line printed is one JSON object.
+ * undici, their bodies made before the clock starts. Beside the wall clock, each path's CPU
+ * time per ring is printed: this process's main thread (the encoder in (a), the server in
+ * (b) and (c)), the rest of the process (the client thread) and PostgreSQL (embedded server
+ * only), which shows where the time went even on a busy machine. Uses DATABASE_URL if set,
+ * else an embedded PostgreSQL in a temporary directory. The last line printed is one JSON
+ * object.
  *
  *   npm run bench:ingest            BENCH_RINGS (default 200000), BENCH_CLIENTS (default 4)
  */
 import { Worker } from 'node:worker_threads';
 import { createRequire } from 'node:module';
+import { cpuSample, cpuSince, describeCpu, postmasterPid, type CpuSpent } from './cpu.ts';
 import { buildApp } from '../services/api/app.ts';
 import { loadConfig } from '../services/db/config.ts';
 import { startThrowawayPostgres } from '../services/db/embedded.ts';
@@ -55,13 +60,17 @@ const unitConfig: UnitConfig = {
   temperatureUnit: 'C',
 };
 
-/** The HTTP load, run in a worker thread so the server's event loop has its own core. */
+/**
+ * The HTTP load, run in a worker thread so the server's event loop has its own core. The thread
+ * loads undici and receives its bodies first, says it is ready, and starts on "go": the clock
+ * and the CPU figures cover the requests only.
+ */
 const CLIENT_SOURCE = `
 const { workerData, parentPort } = require('node:worker_threads');
 const { createRequire } = require('node:module');
 const { request } = createRequire(workerData.from)('undici');
-(async () => {
-  const { url, key, jobs } = workerData;
+const { url, key, jobs } = workerData;
+async function run() {
   const started = performance.now();
   const results = await Promise.all(jobs.map(async (bodies) => {
     let accepted = 0;
@@ -73,16 +82,28 @@ const { request } = createRequire(workerData.from)('undici');
     }
     return accepted;
   }));
-  parentPort.postMessage({ ms: performance.now() - started, accepted: results.reduce((a, b) => a + b, 0) });
-})().catch((err) => parentPort.postMessage({ error: String(err && err.stack || err) }));
+  return { ms: performance.now() - started, accepted: results.reduce((a, b) => a + b, 0) };
+}
+parentPort.once('message', () => run().then((m) => parentPort.postMessage(m), (err) => parentPort.postMessage({ error: String(err && err.stack || err) })));
+parentPort.postMessage({ ready: true });
 `;
 
 interface Body { path: string; type: string; chunks: Uint8Array[] }
 
-function runClients(url: string, key: string, jobs: Body[][]): Promise<{ ms: number; accepted: number }> {
+/** Runs the clients; onStart is called just before they start (to take the CPU figures). */
+function runClients(url: string, key: string, jobs: Body[][], onStart: () => void): Promise<{ ms: number; accepted: number }> {
   return new Promise((resolve, reject) => {
     const w = new Worker(CLIENT_SOURCE, { eval: true, workerData: { url, key, jobs, from: createRequire(import.meta.url).resolve('undici') } });
-    w.once('message', (m) => (m.error ? reject(new Error(m.error)) : resolve(m)));
+    w.on('message', (m) => {
+      if (m.ready) {
+        onStart();
+        w.postMessage('go');
+      } else {
+        if (m.error) reject(new Error(m.error));
+        else resolve(m);
+        void w.terminate();
+      }
+    });
     w.once('error', reject);
   });
 }
@@ -101,12 +122,14 @@ async function main(): Promise<void> {
     const jsonIds = ids('j');
     const ndIds = ids('n');
     for (const id of [...copyIds, ...jsonIds, ...ndIds]) await units.create({ id, name: id, site: 'Bench' }, unitConfig, 'bench');
+    const pm = postmasterPid(server?.dataDir);
     const per = Math.ceil(N / CLIENTS);
     log(`ingest benchmark: ${N} rings of ${TC} thermocouples per path, ${CLIENTS} concurrent clients, batches of ${BATCH}`);
 
     // (a) raw COPY.
     const rows = copyIds.map((id) => Array.from({ length: per }, (_, i) => ringRow(id, i)));
-    let t0 = performance.now();
+    let cpu0 = cpuSample(pm);
+    const t0 = performance.now();
     await Promise.all(rows.map(async (list) => {
       const enc = new RingCopyEncoder();
       for (let i = 0; i < list.length; i += BATCH) {
@@ -117,7 +140,9 @@ async function main(): Promise<void> {
     }));
     const copyS = (performance.now() - t0) / 1000;
     const copyRingsPerS = (per * CLIENTS) / copyS;
+    const copyCpu = cpuSince(cpu0, pm);
     log(`(a) raw COPY        ${(per * CLIENTS).toLocaleString('en')} rings in ${copyS.toFixed(2)} s  ${Math.round(copyRingsPerS).toLocaleString('en')} rings/s`);
+    log(`    ${describeCpu(copyCpu, per * CLIENTS, 'encoder', 'other')}`);
     rows.length = 0;
 
     const config = loadConfig({ ...process.env, LOG_LEVEL: 'silent', CANSIGHT_RATE_LIMIT_PER_MIN: '10000000', CANSIGHT_POOL_MAX: String(CLIENTS * 2 + 4) });
@@ -137,9 +162,11 @@ async function main(): Promise<void> {
       }
       return bodies;
     });
-    const json = await runClients(base, key, jsonJobs);
+    const json = await runClients(base, key, jsonJobs, () => (cpu0 = cpuSample(pm)));
+    const jsonCpu = cpuSince(cpu0, pm);
     const jsonRingsPerS = json.accepted / (json.ms / 1000);
     log(`(b) JSON batch      ${json.accepted.toLocaleString('en')} rings in ${(json.ms / 1000).toFixed(2)} s  ${Math.round(jsonRingsPerS).toLocaleString('en')} rings/s`);
+    log(`    ${describeCpu(jsonCpu, json.accepted, 'server', 'client')}`);
 
     // (c) NDJSON streams: one request per client, the body sent in 64 KiB pieces.
     const ndJobs: Body[][] = ndIds.map((id) => {
@@ -159,9 +186,11 @@ async function main(): Promise<void> {
       if (buf.length) chunks.push(Buffer.from(buf.join('')));
       return [{ path: '/v1/rings', type: 'application/x-ndjson', chunks }];
     });
-    const nd = await runClients(base, key, ndJobs);
+    const nd = await runClients(base, key, ndJobs, () => (cpu0 = cpuSample(pm)));
+    const ndCpu = cpuSince(cpu0, pm);
     const ndjsonRingsPerS = nd.accepted / (nd.ms / 1000);
     log(`(c) NDJSON stream   ${nd.accepted.toLocaleString('en')} rings in ${(nd.ms / 1000).toFixed(2)} s  ${Math.round(ndjsonRingsPerS).toLocaleString('en')} rings/s`);
+    log(`    ${describeCpu(ndCpu, nd.accepted, 'server', 'client')}`);
     await app.close();
 
     const stored = await countRings(pool);
@@ -171,7 +200,11 @@ async function main(): Promise<void> {
     log(`ratio to raw COPY: JSON ${jsonRatio.toFixed(2)}, NDJSON ${ndjsonRatio.toFixed(2)} (goal ≥ 0.5)`);
     const r = (x: number) => Math.round(x);
     const r2 = (x: number) => Math.round(x * 100) / 100;
-    log(JSON.stringify({ bench: 'ingest', copyRingsPerS: r(copyRingsPerS), jsonRingsPerS: r(jsonRingsPerS), ndjsonRingsPerS: r(ndjsonRingsPerS), jsonRatio: r2(jsonRatio), ndjsonRatio: r2(ndjsonRatio) }));
+    const us = (c: CpuSpent, n: number) => ({ main: r2((c.mainS * 1e6) / n), other: r2((c.otherS * 1e6) / n), postgres: Number.isFinite(c.postgresS) ? r2((c.postgresS * 1e6) / n) : null });
+    log(JSON.stringify({
+      bench: 'ingest', copyRingsPerS: r(copyRingsPerS), jsonRingsPerS: r(jsonRingsPerS), ndjsonRingsPerS: r(ndjsonRingsPerS), jsonRatio: r2(jsonRatio), ndjsonRatio: r2(ndjsonRatio),
+      cpuUsPerRing: { copy: us(copyCpu, per * CLIENTS), json: us(jsonCpu, json.accepted), ndjson: us(ndCpu, nd.accepted) },
+    }));
   } finally {
     await pool.end();
     if (server) await server.stop();
