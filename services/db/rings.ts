@@ -50,6 +50,7 @@ export interface UnitSpan {
  */
 export class RingCopyEncoder {
   private buf: Buffer;
+  private view: DataView;
   private pos = 0;
   count = 0;
   /** Per unit in this chunk: earliest and latest ts, and whether ts only ever increased. */
@@ -59,9 +60,13 @@ export class RingCopyEncoder {
   private lastSpan: UnitSpan | null = null;
   private monthFrom = 0;
   private monthTo = -1;
+  /** The unit id of the last row and its UTF-8 bytes (rows of one unit usually come together). */
+  private lastId = '';
+  private lastIdBytes: Buffer = Buffer.alloc(0);
 
   constructor(initialBytes = 1 << 20) {
-    this.buf = Buffer.allocUnsafe(initialBytes);
+    this.buf = Buffer.allocUnsafe(Math.max(64, initialBytes));
+    this.view = new DataView(this.buf.buffer, this.buf.byteOffset, this.buf.byteLength);
     this.reset();
   }
 
@@ -73,8 +78,8 @@ export class RingCopyEncoder {
     this.lastSpan = null;
     this.monthTo = -1;
     SIGNATURE.copy(this.buf, 0);
-    this.buf.writeInt32BE(0, 11); // flags
-    this.buf.writeInt32BE(0, 15); // header extension length
+    this.view.setInt32(11, 0); // flags
+    this.view.setInt32(15, 0); // header extension length
     this.pos = 19;
   }
 
@@ -89,19 +94,7 @@ export class RingCopyEncoder {
     const next = Buffer.allocUnsafe(size);
     this.buf.copy(next, 0, 0, this.pos);
     this.buf = next;
-  }
-
-  private float4(v: number): void {
-    this.buf.writeInt32BE(4, this.pos);
-    this.buf.writeFloatBE(v, this.pos + 4);
-    this.pos += 8;
-  }
-
-  private nullable4(v: number | null): void {
-    if (v === null) {
-      this.buf.writeInt32BE(-1, this.pos);
-      this.pos += 4;
-    } else this.float4(v);
+    this.view = new DataView(next.buffer, next.byteOffset, next.byteLength);
   }
 
   private track(unitId: string, tsMs: number): void {
@@ -130,71 +123,92 @@ export class RingCopyEncoder {
 
   add(r: RingRow): void {
     this.track(r.unitId, r.tsMs);
+    if (r.unitId !== this.lastId) {
+      this.lastId = r.unitId;
+      this.lastIdBytes = Buffer.from(r.unitId, 'utf8');
+    }
+    const id = this.lastIdBytes;
     const n = r.exhaustC.length;
-    const idBytes = Buffer.byteLength(r.unitId, 'utf8');
-    this.room(2 + 4 + idBytes + 12 + 8 * 7 + 5 + 4 + 20 + 8 * n);
-    const b = this.buf;
-    b.writeInt16BE(FIELD_COUNT, this.pos);
-    b.writeInt32BE(idBytes, this.pos + 2);
-    this.pos += 6;
-    this.pos += b.write(r.unitId, this.pos, 'utf8');
+    this.room(2 + 4 + id.length + 12 + 8 * 7 + 5 + 4 + 20 + 8 * n);
+    const d = this.view;
+    let p = this.pos;
+    d.setInt16(p, FIELD_COUNT);
+    d.setInt32(p + 2, id.length);
+    p += 6;
+    for (let i = 0; i < id.length; i++) this.buf[p + i] = id[i];
+    p += id.length;
     // timestamptz: int64 microseconds since 2000-01-01 UTC, written as two 32-bit halves.
     const us = (r.tsMs - PG_EPOCH_MS) * 1000;
     const hi = Math.floor(us / TWO_32);
-    b.writeInt32BE(8, this.pos);
-    b.writeInt32BE(hi, this.pos + 4);
-    b.writeUInt32BE(us - hi * TWO_32, this.pos + 8);
-    this.pos += 12;
-    this.float4(r.loadMw);
-    this.float4(r.ambientC);
-    this.float4(r.ambientKPa);
-    this.float4(r.speedPct);
-    this.nullable4(r.cdtC);
-    this.nullable4(r.cdpKPa);
-    this.nullable4(r.fuelFlowKgS);
+    d.setInt32(p, 8);
+    d.setInt32(p + 4, hi);
+    d.setUint32(p + 8, us - hi * TWO_32);
+    p += 12;
+    d.setInt32(p, 4);
+    d.setFloat32(p + 4, r.loadMw);
+    d.setInt32(p + 8, 4);
+    d.setFloat32(p + 12, r.ambientC);
+    d.setInt32(p + 16, 4);
+    d.setFloat32(p + 20, r.ambientKPa);
+    d.setInt32(p + 24, 4);
+    d.setFloat32(p + 28, r.speedPct);
+    p += 32;
+    p = nullableFloat4(d, p, r.cdtC);
+    p = nullableFloat4(d, p, r.cdpKPa);
+    p = nullableFloat4(d, p, r.fuelFlowKgS);
     if (r.flameDetected === null) {
-      b.writeInt32BE(-1, this.pos);
-      this.pos += 4;
+      d.setInt32(p, -1);
+      p += 4;
     } else {
-      b.writeInt32BE(1, this.pos);
-      b[this.pos + 4] = r.flameDetected ? 1 : 0;
-      this.pos += 5;
+      d.setInt32(p, 1);
+      d.setUint8(p + 4, r.flameDetected ? 1 : 0);
+      p += 5;
     }
     // real[]: ndim, has-null flag, element type, then (size, lower bound) and the elements.
-    const lenAt = this.pos;
-    this.pos += 4;
-    const start = this.pos;
+    const lenAt = p;
+    const start = p + 4;
+    d.setInt32(start, 1);
+    d.setInt32(start + 8, FLOAT4_OID);
+    d.setInt32(start + 12, n);
+    d.setInt32(start + 16, 1);
+    p = start + 20;
     let hasNull = 0;
-    b.writeInt32BE(1, this.pos);
-    const nullFlagAt = this.pos + 4;
-    b.writeInt32BE(FLOAT4_OID, this.pos + 8);
-    b.writeInt32BE(n, this.pos + 12);
-    b.writeInt32BE(1, this.pos + 16);
-    this.pos += 20;
     const ex = r.exhaustC;
     for (let i = 0; i < n; i++) {
       const v = ex[i];
       if (v === v && v !== null && v !== undefined) {
-        b.writeInt32BE(4, this.pos);
-        b.writeFloatBE(v, this.pos + 4);
-        this.pos += 8;
+        d.setInt32(p, 4);
+        d.setFloat32(p + 4, v);
+        p += 8;
       } else {
-        b.writeInt32BE(-1, this.pos);
-        this.pos += 4;
+        d.setInt32(p, -1);
+        p += 4;
         hasNull = 1;
       }
     }
-    b.writeInt32BE(hasNull, nullFlagAt);
-    b.writeInt32BE(this.pos - start, lenAt);
+    d.setInt32(start + 4, hasNull);
+    d.setInt32(lenAt, p - start);
+    this.pos = p;
     this.count++;
   }
 
   /** The finished COPY body (a view of the internal buffer, valid until the next reset or add). */
   finish(): Buffer {
     this.room(2);
-    this.buf.writeInt16BE(-1, this.pos);
+    this.view.setInt16(this.pos, -1);
     return this.buf.subarray(0, this.pos + 2);
   }
+}
+
+/** A float4 field, or NULL; returns the position after it. */
+function nullableFloat4(d: DataView, p: number, v: number | null): number {
+  if (v === null) {
+    d.setInt32(p, -1);
+    return p + 4;
+  }
+  d.setInt32(p, 4);
+  d.setFloat32(p + 4, v);
+  return p + 8;
 }
 
 /** Sends one binary COPY body to `COPY target (columns) FROM STDIN`. */
