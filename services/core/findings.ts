@@ -154,7 +154,8 @@ export interface FindingInput {
   steady: boolean;
   history?: FindingHistory;
   baseline?: UnitBaseline | null;
-  drift?: { chambers?: readonly (ChamberDriftInput | null | undefined)[] };
+  /** Drift state per chamber and per thermocouple (index 0 = number 1). */
+  drift?: { chambers?: readonly (ChamberDriftInput | null | undefined)[]; thermocouples?: readonly (ChamberDriftInput | null | undefined)[] };
   thresholds?: Partial<Thresholds>;
 }
 

@@ -101,17 +101,21 @@ async function loadInputs(pc: PipelineContext, unitId: string, mem: UnitMemory):
   ]);
   if (versions.length === 0) throw new Error(`unit ${unitId} has no configuration`);
   let driftChambers: (ChamberDriftInput | null)[] = mem.inputs?.driftChambers ?? [];
+  let driftThermocouples: (ChamberDriftInput | null)[] = mem.inputs?.driftThermocouples ?? [];
   if (stamp !== mem.driftStamp || (baseline?.version ?? null) !== mem.baselineVersion) {
-    const states = baseline ? (await readDriftStates(pc.pool, unitId)).filter((s) => s.subject === 'chamber' && s.baselineVersion === baseline.version) : [];
+    const states = baseline ? (await readDriftStates(pc.pool, unitId)).filter((s) => s.baselineVersion === baseline.version) : [];
     driftChambers = [];
-    for (const s of states) driftChambers[s.idx - 1] = { cusum: s.cusum, rate: s.rate };
+    driftThermocouples = [];
+    for (const s of states) (s.subject === 'chamber' ? driftChambers : driftThermocouples)[s.idx - 1] = { cusum: s.cusum, rate: s.rate };
     for (let k = 0; k < driftChambers.length; k++) driftChambers[k] ??= null;
+    for (let i = 0; i < driftThermocouples.length; i++) driftThermocouples[i] ??= null;
   }
   const inputs: AnalyserInputs = {
     unitId,
     versions,
     baseline: baseline ? baseline.baseline : null,
     driftChambers,
+    driftThermocouples,
     raise: pc.raise,
     hold: pc.hold,
     settings: pc.config.worker,

@@ -22,6 +22,8 @@ export interface AnalyserInputs {
   baseline: UnitBaseline | null;
   /** Latest drift state per chamber (index 0 = chamber 1). */
   driftChambers: (ChamberDriftInput | null)[];
+  /** Latest drift state per thermocouple (index 0 = thermocouple 1). */
+  driftThermocouples: (ChamberDriftInput | null)[];
   raise: Thresholds;
   hold: Thresholds;
   settings: WorkerConfig;
@@ -256,7 +258,7 @@ export class UnitAnalyser {
         recentMissingCounts: this.missing.subarray(0, ctx.m),
         windowVerdicts: this.verdicts,
       };
-      const drift = { chambers: this.inputs.driftChambers };
+      const drift = { chambers: this.inputs.driftChambers, thermocouples: this.inputs.driftThermocouples };
       raise = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, drift, thresholds: this.inputs.raise });
       hold = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, drift, thresholds: this.inputs.hold });
     }
