@@ -31,7 +31,8 @@ import { ErrorReply } from '../api/schemas.ts';
 import type { Config } from '../db/config.ts';
 import { IngestRun, type IngestTally } from './run.ts';
 import { ingestCsv, ingestNdjson, type StreamIngestOptions } from './streams.ts';
-import { isRejection, thermocoupleCounter, validateRing } from './validate.ts';
+import { RingBatchBytes, RingBytesReader, scanRingBatch } from './ring-bytes.ts';
+import { isRejection, thermocoupleCounter, validateRing, type ValidationContext } from './validate.ts';
 import { IngestReply, RingBatchBody, UnitRingsParams } from './schemas.ts';
 
 const UNIT_ID_RE = /^[a-z0-9-]{1,40}$/;
@@ -102,26 +103,59 @@ export async function ingestRoutes(app: FastifyInstance): Promise<void> {
   // Streamed types: the handler reads the raw request stream itself, a chunk at a time.
   app.addContentTypeParser(STREAM_TYPES, (_request, payload, done) => done(null, payload));
 
+  // JSON: a body of the form { "rings": [ {…}, … ] } whose rings hold only ring fields and
+  // scalar values is checked and cut into rings here, and each ring is then read from its bytes
+  // (RingBatchBytes); any other body goes to Fastify's own JSON parser, with its answers.
+  const defaultJson = app.getDefaultJsonParser(app.initialConfig.onProtoPoisoning ?? 'error', app.initialConfig.onConstructorPoisoning ?? 'error');
+  app.addContentTypeParser('application/json', { parseAs: 'buffer', bodyLimit: config.ingest.bodyLimitBytes }, (request, body, done) => {
+    const buf = body as Buffer;
+    const scanned = scanRingBatch(buf);
+    if (scanned !== null) done(null, scanned);
+    else defaultJson(request, buf.toString('utf8'), done);
+  });
+
   async function batch(unitId: string, body: unknown, request: FastifyRequest): Promise<IngestTally> {
-    if (typeof body !== 'object' || body === null || Array.isArray(body)) throw badRequest('The body must be a JSON object: { "rings": [ ... ] }.');
-    const extra = Object.keys(body).filter((k) => k !== 'rings');
-    if (extra.length) throw badRequest(`The body has an unknown field "${extra[0]}"; it holds only "rings".`);
-    const rings = (body as { rings?: unknown }).rings;
-    if (!Array.isArray(rings)) throw badRequest('The body must have "rings": a list of rings.');
-    if (rings.length > config.ingest.maxBatchRings) {
-      throw tooLarge(`The batch holds ${rings.length} rings; at most ${config.ingest.maxBatchRings} go in one request. Split it, or stream with application/x-ndjson.`);
+    let rings: unknown[] | null = null;
+    let count: number;
+    if (body instanceof RingBatchBytes) count = body.length;
+    else {
+      if (typeof body !== 'object' || body === null || Array.isArray(body)) throw badRequest('The body must be a JSON object: { "rings": [ ... ] }.');
+      const extra = Object.keys(body).filter((k) => k !== 'rings');
+      if (extra.length) throw badRequest(`The body has an unknown field "${extra[0]}"; it holds only "rings".`);
+      const list = (body as { rings?: unknown }).rings;
+      if (!Array.isArray(list)) throw badRequest('The body must have "rings": a list of rings.');
+      rings = list;
+      count = list.length;
+    }
+    if (count > config.ingest.maxBatchRings) {
+      throw tooLarge(`The batch holds ${count} rings; at most ${config.ingest.maxBatchRings} go in one request. Split it, or stream with application/x-ndjson.`);
     }
     const versions = await app.repos.units.versions(unitId);
     if (versions.length === 0) throw notFound(`No unit ${unitId} is registered.`);
-    const ctx = {
+    const ctx: ValidationContext = {
       nowMs: Date.now(),
       futureToleranceS: config.ingest.futureToleranceS,
       bounds: config.ingest.bounds,
       thermocoupleCount: thermocoupleCounter(versions),
     };
     const tally = await withRun(config, app, async (run) => {
-      for (let i = 0; i < rings.length; i++) {
-        const v = validateRing(rings[i], unitId, ctx);
+      if (rings !== null) {
+        for (let i = 0; i < rings.length; i++) {
+          const v = validateRing(rings[i], unitId, ctx);
+          if (isRejection(v)) run.reject(i, v.field, v.reason);
+          else if (run.add(v)) await run.flush();
+        }
+        return;
+      }
+      // Each ring from its bytes; one the reader does not take is parsed and validated alone.
+      const { body: buf, starts, ends } = body as RingBatchBytes;
+      const reader = new RingBytesReader();
+      for (let i = 0; i < starts.length; i++) {
+        if (reader.read(buf, starts[i], ends[i]) && (!reader.namesUnit || reader.unitId() === unitId) && reader.check(unitId, ctx)) {
+          if (run.add(reader.row)) await run.flush();
+          continue;
+        }
+        const v = validateRing(JSON.parse(buf.toString('utf8', starts[i], ends[i])), unitId, ctx);
         if (isRejection(v)) run.reject(i, v.field, v.reason);
         else if (run.add(v)) await run.flush();
       }

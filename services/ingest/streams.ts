@@ -7,20 +7,34 @@
  */
 import { badRequest, tooLarge, unprocessable } from '../api/errors.ts';
 import type { IngestBounds } from '../db/config.ts';
+import { RingBytesReader } from './ring-bytes.ts';
 import { IngestRun } from './run.ts';
 import { isRejection, thermocoupleCounter, validateRing, type ValidationContext } from './validate.ts';
 
 const UNIT_ID_RE = /^[a-z0-9-]{1,40}$/;
 const NEWLINE = 0x0a;
 
+/** The lines completed by one chunk, as byte spans (CR and a leading BOM already cut off). */
+export interface LineSpans {
+  /** The line begun in an earlier chunk and ended in this one, or null. */
+  joined: Buffer | null;
+  /** Lines wholly inside the chunk: line i is chunk[starts[i], ends[i]). */
+  starts: number[];
+  ends: number[];
+  /** joined (if any) plus the lines inside the chunk. */
+  count: number;
+}
+
 /**
- * Cuts a byte stream into lines (LF or CRLF), decoding each complete line as UTF-8 so a
- * character split between two chunks is never broken. Refuses a line longer than `limit` bytes.
+ * Cuts a byte stream into lines (LF or CRLF). A line is handed out whole, as a byte span or as
+ * UTF-8 text decoded from its complete bytes, so a character split between two chunks is never
+ * broken. Refuses a line longer than `limit` bytes.
  */
 export class LineSplitter {
   private carry: Buffer | null = null;
   private first = true;
-  /** Number of the last line returned, from 1. */
+  private readonly spansOut: LineSpans = { joined: null, starts: [], ends: [], count: 0 };
+  /** Number of the last line handed out, from 1. */
   lineNo = 0;
 
   constructor(private readonly limit: number) {}
@@ -29,38 +43,49 @@ export class LineSplitter {
     throw tooLarge(`Line ${this.lineNo + 1} is longer than ${this.limit} bytes, the most one line may hold; nothing was stored.`);
   }
 
-  private text(buf: Buffer, start: number, end: number): string {
+  /** Records the line buf[start, end) without its CR, and without a BOM on the first line. */
+  private span(buf: Buffer, start: number, end: number): void {
     if (end > start && buf[end - 1] === 0x0d) end--;
     if (this.first) {
       this.first = false;
       if (end - start >= 3 && buf[start] === 0xef && buf[start + 1] === 0xbb && buf[start + 2] === 0xbf) start += 3;
     }
-    return buf.toString('utf8', start, end);
+    this.lineNo++;
+    this.spansOut.starts.push(start);
+    this.spansOut.ends.push(end);
   }
 
-  /** The complete lines in this chunk (with any carried part of the previous one). */
-  push(chunk: Buffer): string[] {
-    const lines: string[] = [];
+  /**
+   * The lines this chunk completes, as spans (the object is reused by the next call). A line
+   * begun earlier is copied together into `joined`; the others are views of the chunk.
+   */
+  spans(chunk: Buffer): LineSpans {
+    const out = this.spansOut;
+    out.joined = null;
+    out.starts.length = 0;
+    out.ends.length = 0;
+    out.count = 0;
     let start = 0;
     let nl = chunk.indexOf(NEWLINE, 0);
     if (this.carry !== null) {
       if (nl === -1) {
         if (this.carry.length + chunk.length > this.limit) this.tooLong();
         this.carry = Buffer.concat([this.carry, chunk]);
-        return lines;
+        return out;
       }
       if (this.carry.length + nl > this.limit) this.tooLong();
       const joined = Buffer.concat([this.carry, chunk.subarray(0, nl)]);
       this.carry = null;
-      this.lineNo++;
-      lines.push(this.text(joined, 0, joined.length));
+      this.span(joined, 0, joined.length);
+      out.joined = joined.subarray(out.starts[0], out.ends[0]);
+      out.starts.length = 0;
+      out.ends.length = 0;
       start = nl + 1;
       nl = chunk.indexOf(NEWLINE, start);
     }
     while (nl !== -1) {
       if (nl - start > this.limit) this.tooLong();
-      this.lineNo++;
-      lines.push(this.text(chunk, start, nl));
+      this.span(chunk, start, nl);
       start = nl + 1;
       nl = chunk.indexOf(NEWLINE, start);
     }
@@ -68,16 +93,35 @@ export class LineSplitter {
       if (chunk.length - start > this.limit) this.tooLong();
       this.carry = Buffer.from(chunk.subarray(start));
     }
+    out.count = out.starts.length + (out.joined === null ? 0 : 1);
+    return out;
+  }
+
+  /** The complete lines in this chunk (with any carried part of the previous one), as text. */
+  push(chunk: Buffer): string[] {
+    const sp = this.spans(chunk);
+    const lines: string[] = [];
+    if (sp.joined !== null) lines.push(sp.joined.toString('utf8'));
+    for (let i = 0; i < sp.starts.length; i++) lines.push(chunk.toString('utf8', sp.starts[i], sp.ends[i]));
     return lines;
+  }
+
+  /** The last line when the stream does not end with a newline, as a span, or null. */
+  endSpan(): Buffer | null {
+    if (this.carry === null) return null;
+    const c = this.carry;
+    this.carry = null;
+    const out = this.spansOut;
+    out.starts.length = 0;
+    out.ends.length = 0;
+    this.span(c, 0, c.length);
+    return c.subarray(out.starts[0], out.ends[0]);
   }
 
   /** The last line when the stream does not end with a newline. */
   end(): string[] {
-    if (this.carry === null) return [];
-    const c = this.carry;
-    this.carry = null;
-    this.lineNo++;
-    return [this.text(c, 0, c.length)];
+    const last = this.endSpan();
+    return last === null ? [] : [last.toString('utf8')];
   }
 }
 
@@ -201,14 +245,57 @@ export async function ingestNdjson(source: AsyncIterable<Buffer | string>, o: St
     else if (run.add(v)) await run.flush();
   };
 
+  // The common form of a line is read straight from its bytes once its unit has been seen (and
+  // checked) by the general way; any other line, and any ring the reader does not take, goes
+  // through handle(), which gives the exact reason for a rejection.
+  const reader = new RingBytesReader();
+  const fast = (buf: Buffer, start: number, end: number): boolean => {
+    if (!reader.read(buf, start, end)) return false;
+    let unitId: string;
+    if (o.overrideUnitId !== undefined) unitId = o.overrideUnitId;
+    else {
+      const named = reader.unitId();
+      if (named === null) {
+        if (o.defaultUnitId === undefined) return false;
+        unitId = o.defaultUnitId;
+      } else {
+        if (o.defaultUnitId !== undefined && named !== o.defaultUnitId) return false;
+        unitId = named;
+      }
+    }
+    const ctx = contexts.get(unitId);
+    if (ctx === undefined || !reader.check(unitId, ctx)) return false;
+    records++;
+    parsed++;
+    return true;
+  };
+
   for await (const chunk of chunks(source)) {
     bytes += chunk.length;
-    const lines = splitter.push(chunk);
-    let lineNo = splitter.lineNo - lines.length;
-    for (const line of lines) await handle(line, ++lineNo);
+    const sp = splitter.spans(chunk);
+    let lineNo = splitter.lineNo - sp.count;
+    if (sp.joined !== null) {
+      const j = sp.joined;
+      lineNo++;
+      if (fast(j, 0, j.length)) {
+        if (run.add(reader.row)) await run.flush();
+      } else await handle(j.toString('utf8'), lineNo);
+    }
+    const { starts, ends } = sp; // valid until the next spans() call
+    for (let i = 0; i < starts.length; i++) {
+      lineNo++;
+      if (fast(chunk, starts[i], ends[i])) {
+        if (run.add(reader.row)) await run.flush();
+      } else await handle(chunk.toString('utf8', starts[i], ends[i]), lineNo);
+    }
     o.onBytes?.(bytes);
   }
-  for (const line of splitter.end()) await handle(line, splitter.lineNo);
+  const last = splitter.endSpan();
+  if (last !== null) {
+    if (fast(last, 0, last.length)) {
+      if (run.add(reader.row)) await run.flush();
+    } else await handle(last.toString('utf8'), splitter.lineNo);
+  }
   if (records > 0 && parsed === 0) {
     throw badRequest('No line of the body is JSON; send one JSON object per line (application/x-ndjson). Nothing was stored.');
   }

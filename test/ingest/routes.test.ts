@@ -15,7 +15,7 @@ beforeAll(async () => {
   t = await createTestApp({
     env: { CANSIGHT_MAX_BATCH_RINGS: '50', CANSIGHT_BODY_LIMIT_BYTES: '65536', CANSIGHT_LINE_LIMIT_BYTES: '4096', CANSIGHT_INGEST_CHUNK_RINGS: '7' },
   });
-  for (const id of ['u1', 'u2', 'u3', 'u4', 'u5', 'u6', 'cut-1']) await registerUnit(t, id);
+  for (const id of ['u1', 'u2', 'u3', 'u4', 'u5', 'u6', 'u7', 'cut-1']) await registerUnit(t, id);
 });
 afterAll(async () => t?.close());
 
@@ -62,6 +62,27 @@ describe('JSON batch', () => {
     expect(Array.from(c.exhaustC)).toEqual((ring(102).exhaustC as number[]).map((v) => Math.fround(v)));
   });
 
+  it('a ring in a less common form is judged on its own: same rings stored, same indices reported', async () => {
+    const f = (r: Record<string, unknown>) => ({ ...r, exhaustC: null, exhaustF: (r.exhaustC as number[]).map((c) => (c * 9) / 5 + 32) });
+    const parts = [
+      JSON.stringify(ring(5000)),
+      JSON.stringify(ring(5001)).replace(/Z"/, '\\u005a"'), // an escape in the time
+      JSON.stringify(f(ring(5002))),
+      JSON.stringify({ unitId: 'u2', ...ring(5003) }),
+      JSON.stringify(ring(5004)).replace('}', ',"loadMw":"high"}'), // a key twice: the last one counts
+      JSON.stringify(ring(5000)),
+    ];
+    const res = await t.app.inject({ method: 'POST', url: '/v1/units/u7/rings', headers: { ...bearer(t.keys.ingest), 'content-type': 'application/json' }, payload: `{"rings":[${parts.join(',')}]}` });
+    expect(res.json()).toMatchObject({ accepted: 3, duplicates: 1, rejectedCount: 2 });
+    expect(res.json().rejected.map((r: { index: number; field: string }) => [r.index, r.field])).toEqual([[3, 'unitId'], [4, 'loadMw']]);
+    const stored = await readRings(t.db.pool, 'u7', tsAt(5000), tsAt(5010), 10);
+    expect(stored.map((r) => (r.tsMs - BASE_MS) / 1000)).toEqual([5000, 5001, 5002]);
+    for (const r of stored) {
+      const sent = ring((r.tsMs - BASE_MS) / 1000).exhaustC as number[];
+      sent.forEach((c, k) => expect(r.exhaustC[k]).toBeCloseTo(c, 3));
+    }
+  });
+
   it('counts a ring sent twice in one batch once, and the second as a duplicate', async () => {
     const res = await postBatch(t, 'u4', [ring(1), ring(2), ring(1)]);
     expect(res.json()).toMatchObject({ accepted: 2, duplicates: 1 });
@@ -104,6 +125,10 @@ describe('whole-request answers', () => {
     expect(notList.json().message).toMatch(/"rings": a list/);
     const badId = await postBatch(t, 'Not_A_Unit', [ring(0)]);
     expect(badId.statusCode).toBe(400);
+    for (const payload of ['{"rings":[{"__proto__":{"x":1}}]}', '{"rings":[],"__proto__":{"x":1}}', '{"rings":[{"constructor":{"prototype":{"x":1}}}]}', '']) {
+      const res = await t.app.inject({ method: 'POST', url: '/v1/units/u1/rings', headers: { ...bearer(t.keys.ingest), 'content-type': 'application/json' }, payload });
+      expect(res.statusCode, payload).toBe(400);
+    }
   });
 
   it('401 without a key, 403 for a role that may not ingest, and 200 for admin', async () => {
