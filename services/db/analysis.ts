@@ -67,6 +67,8 @@ const ANALYSIS_COLUMNS =
   'validity, tc_deviation, tc_residual, swirl_deg, chamber_deviation, chamber_uncertainty, chamber_residual, ring_level, fit_sd, ' +
   'worst_chamber, worst_likelihood, runner_up_chamber, runner_up_likelihood, worst_grade, findings';
 const ANALYSIS_FIELD_COUNT = 35;
+/** ms between 1970-01-01 and PostgreSQL's epoch 2000-01-01 (UTC). */
+const PG_EPOCH_MS = 946_684_800_000;
 
 const lit = (s: string) => "'" + s.replace(/'/g, "''") + "'";
 const tsLit = (ms: number) => `'${isoMicros(ms)}'::timestamptz`;
@@ -191,64 +193,199 @@ export async function readRingsBetween(client: pg.ClientBase, unitId: string, fr
   return decodeRings(body);
 }
 
-/** Encodes analysis rows (of one unit, or several) for writeAnalysis. */
+/** Encodes analysis rows (of one unit, or several) for writeAnalysis: a binary COPY body built in place. */
 export class AnalysisEncoder {
-  readonly writer = new CopyBinaryWriter();
+  private buf = Buffer.alloc(1 << 20);
+  private d = new DataView(this.buf.buffer, this.buf.byteOffset, this.buf.byteLength);
+  private p = 19;
+  private rows = 0;
+  private unitBytes: Buffer = Buffer.alloc(0);
+  private unitOf = '';
   /** Per unit: the first and last ring time written. */
   readonly spans = new Map<string, [number, number]>();
 
-  constructor(readonly unitId: string = '') {}
+  constructor(readonly unitId: string = '') {
+    Buffer.from('PGCOPY\n\xff\r\n\0', 'latin1').copy(this.buf, 0);
+  }
 
   get count(): number {
-    return this.writer.rows;
+    return this.rows;
+  }
+
+  private room(n: number): void {
+    if (this.p + n <= this.buf.length) return;
+    let size = this.buf.length * 2;
+    while (size < this.p + n) size *= 2;
+    const next = Buffer.alloc(size);
+    this.buf.copy(next, 0, 0, this.p);
+    this.buf = next;
+    this.d = new DataView(next.buffer, next.byteOffset, next.byteLength);
+  }
+
+  private f4(v: number): void {
+    const d = this.d;
+    if (v === v && v !== Infinity && v !== -Infinity) {
+      d.setInt32(this.p, 4);
+      d.setFloat32(this.p + 4, v);
+      this.p += 8;
+    } else {
+      d.setInt32(this.p, -1);
+      this.p += 4;
+    }
+  }
+
+  private i2(v: number | null): void {
+    if (v === null) {
+      this.d.setInt32(this.p, -1);
+      this.p += 4;
+      return;
+    }
+    this.d.setInt32(this.p, 2);
+    this.d.setInt16(this.p + 4, v);
+    this.p += 6;
+  }
+
+  private i4(v: number | null): void {
+    if (v === null) {
+      this.d.setInt32(this.p, -1);
+      this.p += 4;
+      return;
+    }
+    this.d.setInt32(this.p, 4);
+    this.d.setInt32(this.p + 4, v);
+    this.p += 8;
+  }
+
+  private bool(v: boolean): void {
+    this.d.setInt32(this.p, 1);
+    this.buf[this.p + 4] = v ? 1 : 0;
+    this.p += 5;
+  }
+
+  /** real[] (non-finite elements NULL), or NULL. */
+  private f4Array(values: ArrayLike<number> | null): void {
+    const d = this.d;
+    if (values === null) {
+      d.setInt32(this.p, -1);
+      this.p += 4;
+      return;
+    }
+    const lenAt = this.p;
+    const n = values.length;
+    d.setInt32(lenAt + 4, 1);
+    d.setInt32(lenAt + 12, 700);
+    d.setInt32(lenAt + 16, n);
+    d.setInt32(lenAt + 20, 1);
+    let p = lenAt + 24;
+    let hasNull = 0;
+    for (let i = 0; i < n; i++) {
+      const v = values[i];
+      if (v === v && v !== Infinity && v !== -Infinity) {
+        d.setInt32(p, 4);
+        d.setFloat32(p + 4, v);
+        p += 8;
+      } else {
+        d.setInt32(p, -1);
+        p += 4;
+        hasNull = 1;
+      }
+    }
+    d.setInt32(lenAt + 8, hasNull);
+    d.setInt32(lenAt, p - lenAt - 4);
+    this.p = p;
+  }
+
+  private i2Array(values: ArrayLike<number>): void {
+    const d = this.d;
+    const lenAt = this.p;
+    const n = values.length;
+    d.setInt32(lenAt + 4, 1);
+    d.setInt32(lenAt + 8, 0);
+    d.setInt32(lenAt + 12, 21);
+    d.setInt32(lenAt + 16, n);
+    d.setInt32(lenAt + 20, 1);
+    let p = lenAt + 24;
+    for (let i = 0; i < n; i++) {
+      d.setInt32(p, 2);
+      d.setInt16(p + 4, values[i]);
+      p += 6;
+    }
+    d.setInt32(lenAt, p - lenAt - 4);
+    this.p = p;
   }
 
   add(a: AnalysisRow, unitId: string = this.unitId): void {
-    const w = this.writer;
-    w.row(ANALYSIS_FIELD_COUNT);
-    w.text(unitId);
-    w.timestamptz(a.tsMs);
-    w.int4(a.configVersion);
-    w.int4(a.baselineVersion);
-    w.float4(a.loadFraction);
-    w.bool(a.steady);
-    w.float4(a.spread);
-    w.float4(a.spreadExcl1);
-    w.float4(a.spreadExcl2);
-    w.float4(a.spreadLimit);
-    w.bool(a.limitFromBaseline);
-    w.float4(a.ringMean);
-    w.float4(a.robustCentre);
-    w.float4(a.stdDev);
-    w.int2(a.hottestTc);
-    w.int2(a.coldestTc);
-    w.int2(a.secondColdestTc);
-    w.bool(a.coldestAdjacent);
-    w.int2(a.validCount);
-    w.bool(a.coverageDegraded);
-    w.int2Array(a.validity);
-    w.float4Array(a.tcDeviation);
-    if (a.tcResidual) w.float4Array(a.tcResidual);
-    else w.null();
-    w.float4(a.swirlDeg);
-    w.float4Array(a.chamberDeviation);
-    w.float4Array(a.chamberUncertainty);
-    if (a.chamberResidual) w.float4Array(a.chamberResidual);
-    else w.null();
-    w.float4(a.ringLevel);
-    w.float4(a.fitSd);
-    w.int2(a.worstChamber);
-    w.float4(a.worstLikelihood);
-    w.int2(a.runnerUpChamber);
-    w.float4(a.runnerUpLikelihood);
-    w.int2(a.worstGrade);
-    w.jsonb(a.findingsJson);
+    if (unitId !== this.unitOf) {
+      this.unitOf = unitId;
+      this.unitBytes = Buffer.from(unitId, 'utf8');
+    }
+    const arrays = a.validity.length + a.tcDeviation.length + (a.tcResidual?.length ?? 0) + a.chamberDeviation.length + a.chamberUncertainty.length + (a.chamberResidual?.length ?? 0);
+    const json = a.findingsJson;
+    this.room(2 + 35 * 8 + this.unitBytes.length + 6 * 24 + 8 * arrays + (json === null ? 0 : 3 * json.length + 1) + 2);
+    const d = this.d;
+    d.setInt16(this.p, ANALYSIS_FIELD_COUNT);
+    this.p += 2;
+    d.setInt32(this.p, this.unitBytes.length);
+    this.unitBytes.copy(this.buf, this.p + 4);
+    this.p += 4 + this.unitBytes.length;
+    d.setInt32(this.p, 8);
+    d.setBigInt64(this.p + 4, BigInt(Math.round((a.tsMs - PG_EPOCH_MS) * 1000)));
+    this.p += 12;
+    this.i4(a.configVersion);
+    this.i4(a.baselineVersion);
+    this.f4(a.loadFraction);
+    this.bool(a.steady);
+    this.f4(a.spread);
+    this.f4(a.spreadExcl1);
+    this.f4(a.spreadExcl2);
+    this.f4(a.spreadLimit);
+    this.bool(a.limitFromBaseline);
+    this.f4(a.ringMean);
+    this.f4(a.robustCentre);
+    this.f4(a.stdDev);
+    this.i2(a.hottestTc);
+    this.i2(a.coldestTc);
+    this.i2(a.secondColdestTc);
+    this.bool(a.coldestAdjacent);
+    this.i2(a.validCount);
+    this.bool(a.coverageDegraded);
+    this.i2Array(a.validity);
+    this.f4Array(a.tcDeviation);
+    this.f4Array(a.tcResidual);
+    this.f4(a.swirlDeg);
+    this.f4Array(a.chamberDeviation);
+    this.f4Array(a.chamberUncertainty);
+    this.f4Array(a.chamberResidual);
+    this.f4(a.ringLevel);
+    this.f4(a.fitSd);
+    this.i2(a.worstChamber);
+    this.f4(a.worstLikelihood);
+    this.i2(a.runnerUpChamber);
+    this.f4(a.runnerUpLikelihood);
+    this.i2(a.worstGrade);
+    if (json === null) {
+      d.setInt32(this.p, -1);
+      this.p += 4;
+    } else {
+      const n = this.buf.write(json, this.p + 5, 'utf8');
+      d.setInt32(this.p, n + 1);
+      this.buf[this.p + 4] = 1;
+      this.p += 5 + n;
+    }
+    this.rows++;
     const span = this.spans.get(unitId);
     if (!span) this.spans.set(unitId, [a.tsMs, a.tsMs]);
     else {
       if (a.tsMs < span[0]) span[0] = a.tsMs;
       if (a.tsMs > span[1]) span[1] = a.tsMs;
     }
+  }
+
+  /** The finished body (a view of the internal buffer). */
+  finish(): Buffer {
+    this.room(2);
+    this.d.setInt16(this.p, -1);
+    return this.buf.subarray(0, this.p + 2);
   }
 }
 
@@ -262,12 +399,11 @@ export async function writeAnalysis(client: pg.ClientBase, pool: object, enc: An
   const lo = Math.min(...spans.map(([, s]) => s[0]));
   const hi = Math.max(...spans.map(([, s]) => s[1]));
   await ensureAnalysisPartitions(client, pool, lo, hi);
-  await client.query(
-    `DELETE FROM ring_analysis a USING unnest($1::text[], $2::timestamptz[], $3::timestamptz[]) AS s(unit_id, lo, hi)
-      WHERE a.unit_id = s.unit_id AND a.ts >= s.lo AND a.ts <= s.hi`,
-    [spans.map(([u]) => u), spans.map(([, s]) => isoMicros(s[0])), spans.map(([, s]) => isoMicros(s[1]))],
-  );
-  await copyIn(client, 'ring_analysis', ANALYSIS_COLUMNS, enc.writer.finish());
+  // The spans as constants, so the planner keeps only the partitions they reach (a join with
+  // an array of spans would visit every month's partition).
+  const where = spans.map(([u, [a, b]]) => `(unit_id = ${lit(u)} AND ts >= ${tsLit(a)} AND ts <= ${tsLit(b)})`).join(' OR ');
+  await client.query(`DELETE FROM ring_analysis WHERE ${where}`);
+  await copyIn(client, 'ring_analysis', ANALYSIS_COLUMNS, enc.finish());
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -305,9 +441,11 @@ export async function lockOwnedUnit(client: pg.ClientBase, unitId: string, worke
 /**
  * lockOwnedUnit for several units in one statement (rows locked in unit order); a unit is
  * missing from the result when this worker does not hold it, or workerId is null and it has
- * no progress row (then no lease is checked).
+ * no progress row (then no lease is checked). With leaseS, a lease of a unit locked that has
+ * less than half of leaseS left is extended to leaseS from now (a unit being analysed keeps its
+ * lease even when the renewal skips its locked row).
  */
-export async function lockUnits(client: pg.ClientBase, unitIds: string[], workerId: string | null): Promise<Map<string, UnitProgress>> {
+export async function lockUnits(client: pg.ClientBase, unitIds: string[], workerId: string | null, leaseS = 0): Promise<Map<string, UnitProgress>> {
   const { rows } =
     workerId === null
       ? await client.query(
@@ -316,11 +454,14 @@ export async function lockUnits(client: pg.ClientBase, unitIds: string[], worker
           [unitIds],
         )
       : await client.query(
-          `SELECT p.unit_id, ${msOf('p.watermark_ts')} AS wm_ms, ${msOf('p.late_checked_from')} AS late_ms, p.rings_analysed, p.late_rings_analysed
-             FROM unit_claims c JOIN analysis_progress p USING (unit_id)
-            WHERE c.unit_id = ANY($1::text[]) AND c.worker_id = $2 AND c.lease_until > now()
-            ORDER BY c.unit_id FOR UPDATE OF c`,
-          [unitIds, workerId],
+          `WITH l AS (SELECT c.unit_id FROM unit_claims c JOIN analysis_progress p USING (unit_id)
+                       WHERE c.unit_id = ANY($1::text[]) AND c.worker_id = $2 AND c.lease_until > now()
+                       ORDER BY c.unit_id FOR UPDATE OF c),
+                e AS (UPDATE unit_claims c SET lease_until = greatest(c.lease_until, now() + make_interval(secs => $3))
+                        FROM l WHERE c.unit_id = l.unit_id AND $3 > 0 AND c.lease_until < now() + make_interval(secs => $3 / 2.0) RETURNING c.unit_id)
+           SELECT p.unit_id, ${msOf('p.watermark_ts')} AS wm_ms, ${msOf('p.late_checked_from')} AS late_ms, p.rings_analysed, p.late_rings_analysed
+             FROM l JOIN analysis_progress p USING (unit_id) ORDER BY p.unit_id`,
+          [unitIds, workerId, leaseS],
         );
   const out = new Map<string, UnitProgress>();
   for (const r of rows) {
@@ -654,6 +795,75 @@ export async function writeRollupsMany(q: Queryable, rows: { unitId: string; row
   );
 }
 
+/**
+ * Inserts rollup rows that are not stored yet with one binary COPY (no JSON, no conflict
+ * check; a row that exists after all fails the COPY and with it the transaction).
+ */
+export async function insertRollupsMany(client: pg.ClientBase, rows: { unitId: string; row: RollupRow }[]): Promise<void> {
+  if (rows.length === 0) return;
+  await copyIn(client, 'analysis_rollups', 'unit_id, period, metric, bucket, n, sum, sumsq, min, max', encodeRollups(rows));
+}
+
+const INT4_OID = 23;
+const FLOAT4_OID = 700;
+const FLOAT8_OID = 701;
+
+/** Binary COPY body of rollup rows (text ×3, timestamptz, int4[], float8[] ×2, float4[] ×2; non-finite elements NULL). */
+function encodeRollups(rows: { unitId: string; row: RollupRow }[]): Buffer {
+  let size = 21;
+  for (const { unitId, row } of rows) size += 2 + 4 * 9 + Buffer.byteLength(unitId) + row.period.length + Buffer.byteLength(row.metric) + 8 + 5 * 20 + row.n.length * (8 + 12 + 12 + 8 + 8);
+  const buf = Buffer.alloc(size);
+  const d = new DataView(buf.buffer, buf.byteOffset, buf.byteLength);
+  buf.write('PGCOPY\n\xff\r\n\0', 0, 'latin1');
+  let p = 19;
+  const text = (s: string) => {
+    const n = buf.write(s, p + 4, 'utf8');
+    d.setInt32(p, n);
+    p += 4 + n;
+  };
+  const array = (values: number[], oid: number, width: 4 | 8, int: boolean) => {
+    const lenAt = p;
+    d.setInt32(p + 4, 1);
+    d.setInt32(p + 12, oid);
+    d.setInt32(p + 16, values.length);
+    d.setInt32(p + 20, 1);
+    p += 24;
+    let hasNull = 0;
+    for (const v of values) {
+      if (!Number.isFinite(v)) {
+        d.setInt32(p, -1);
+        p += 4;
+        hasNull = 1;
+        continue;
+      }
+      d.setInt32(p, width);
+      if (int) d.setInt32(p + 4, v);
+      else if (width === 4) d.setFloat32(p + 4, v);
+      else d.setFloat64(p + 4, v);
+      p += 4 + width;
+    }
+    d.setInt32(lenAt + 8, hasNull);
+    d.setInt32(lenAt, p - lenAt - 4);
+  };
+  for (const { unitId, row } of rows) {
+    d.setInt16(p, 9);
+    p += 2;
+    text(unitId);
+    text(row.period);
+    text(row.metric);
+    d.setInt32(p, 8);
+    d.setBigInt64(p + 4, BigInt(Math.round(row.bucketMs - PG_EPOCH_MS)) * 1000n);
+    p += 12;
+    array(row.n, INT4_OID, 4, true);
+    array(row.sum, FLOAT8_OID, 8, false);
+    array(row.sumsq, FLOAT8_OID, 8, false);
+    array(row.min, FLOAT4_OID, 4, false);
+    array(row.max, FLOAT4_OID, 4, false);
+  }
+  d.setInt16(p, -1);
+  return buf.subarray(0, p + 2);
+}
+
 /** Removes the rollup rows of these buckets (before they are recomputed). */
 export async function deleteRollupBuckets(q: Queryable, unitId: string, period: RollupPeriod, bucketsMs: number[]): Promise<void> {
   if (bucketsMs.length === 0) return;
@@ -777,6 +987,12 @@ export async function analysisProgress(q: Queryable, unitId: string): Promise<An
     workerId: r.worker_id ?? null,
     leaseUntil: leaseOk ? r.lease_until : null,
   };
+}
+
+/** Rings analysed over all units by the worker's counters (in order and late): cheap to poll. */
+export async function ringsAnalysedTotal(q: Queryable): Promise<number> {
+  const { rows } = await q.query(`SELECT coalesce(sum(rings_analysed + late_rings_analysed), 0)::bigint AS n FROM analysis_progress`);
+  return Number(rows[0].n);
 }
 
 /** Total rings stored and analysed, and committed in-order batch rings, over all units (for tests and benchmarks). */

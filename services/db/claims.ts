@@ -20,13 +20,19 @@ export async function heartbeat(q: Queryable, workerId: string, host: string, pi
 
 /** Removes the worker and frees its units at once (a clean stop). */
 export async function retireWorker(q: Queryable, workerId: string): Promise<void> {
-  await q.query(`UPDATE unit_claims SET worker_id = NULL, lease_until = '-infinity' WHERE worker_id = $1`, [workerId]);
+  await q.query(
+    `WITH l AS (SELECT unit_id FROM unit_claims WHERE worker_id = $1 ORDER BY unit_id FOR UPDATE)
+     UPDATE unit_claims c SET worker_id = NULL, lease_until = '-infinity' FROM l WHERE c.unit_id = l.unit_id`,
+    [workerId],
+  );
   await q.query(`DELETE FROM workers WHERE worker_id = $1`, [workerId]);
 }
 
 /** Every unit gets a claim row (new units appear as unclaimed). Returns all unit ids. */
 export async function ensureClaimRows(q: Queryable): Promise<string[]> {
-  await q.query(`INSERT INTO unit_claims (unit_id) SELECT id FROM units ON CONFLICT (unit_id) DO NOTHING`);
+  // Only units without a row: a conflict check on an existing row would wait for a round that
+  // is extending its lease.
+  await q.query(`INSERT INTO unit_claims (unit_id) SELECT id FROM units u WHERE NOT EXISTS (SELECT 1 FROM unit_claims c WHERE c.unit_id = u.id) ON CONFLICT (unit_id) DO NOTHING`);
   const { rows } = await q.query(`SELECT id FROM units ORDER BY id`);
   return rows.map((r) => r.id as string);
 }
@@ -37,11 +43,19 @@ export async function liveWorkerCount(q: Queryable, staleS: number): Promise<num
   return Math.max(1, rows[0].n as number);
 }
 
-/** Extends this worker's live leases; returns the units it still holds. */
+/**
+ * Extends this worker's live leases; returns the units it still holds. Claim rows locked this
+ * instant are skipped, not waited for: they are locked by this worker's own analysis rounds,
+ * which extend the lease themselves (lockUnits), so renewing never stalls a round nor joins a
+ * lock cycle with one. Such a unit counts as held when its lease is still live.
+ */
 export async function renewLeases(q: Queryable, workerId: string, leaseS: number): Promise<string[]> {
   const { rows } = await q.query(
-    `UPDATE unit_claims SET lease_until = now() + make_interval(secs => $2)
-      WHERE worker_id = $1 AND lease_until > now() RETURNING unit_id`,
+    `WITH l AS (SELECT unit_id FROM unit_claims WHERE worker_id = $1 AND lease_until > now() FOR UPDATE SKIP LOCKED),
+          u AS (UPDATE unit_claims c SET lease_until = now() + make_interval(secs => $2) FROM l WHERE c.unit_id = l.unit_id RETURNING c.unit_id)
+     SELECT unit_id FROM u
+     UNION
+     SELECT unit_id FROM unit_claims WHERE worker_id = $1 AND lease_until > now()`,
     [workerId, leaseS],
   );
   return rows.map((r) => r.unit_id as string).sort();
@@ -71,7 +85,12 @@ export async function claimUnits(q: Queryable, workerId: string, max: number, le
 /** Gives units back (only those this worker still holds). */
 export async function releaseUnits(q: Queryable, workerId: string, unitIds: string[]): Promise<void> {
   if (unitIds.length === 0) return;
-  await q.query(`UPDATE unit_claims SET worker_id = NULL, lease_until = '-infinity' WHERE worker_id = $1 AND unit_id = ANY($2::text[])`, [workerId, unitIds]);
+  // Rows locked in unit order, as analysis rounds lock them: no lock cycle with a round.
+  await q.query(
+    `WITH l AS (SELECT unit_id FROM unit_claims WHERE worker_id = $1 AND unit_id = ANY($2::text[]) ORDER BY unit_id FOR UPDATE)
+     UPDATE unit_claims c SET worker_id = NULL, lease_until = '-infinity' FROM l WHERE c.unit_id = l.unit_id`,
+    [workerId, unitIds],
+  );
 }
 
 export interface ClaimRecord {

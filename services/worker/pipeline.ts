@@ -26,6 +26,7 @@ import {
   readRollupBucketsMany,
   recordInOrderBatches,
   writeRollupsMany,
+  insertRollupsMany,
   lockUnits,
   type RingColumns,
   type RollupRow,
@@ -42,7 +43,7 @@ import { createUnitsRepository } from '../db/units.ts';
 import type { ChamberDriftInput } from '../core/findings.ts';
 import { applyAlertObservations, type AlertSettings } from './alerts.ts';
 import { recordStartsForBatch, type BatchObservation } from '../db/starts.ts';
-import { bucketOf, DAY_MS, HOUR_MS, RollupAccumulator } from './rollups.ts';
+import { bucketOf, DAY_MS, daysFromHours, HOUR_MS, RollupAccumulator } from './rollups.ts';
 import { UnitAnalyser, type AnalyserInputs } from './unit-analyser.ts';
 
 export interface PipelineContext {
@@ -174,7 +175,7 @@ export async function analyseGroup(pc: PipelineContext, unitIds: string[]): Prom
   try {
     await withTransaction(pc.pool, async (client) => {
       const t0 = performance.now();
-      const progress = await lockUnits(client, ids, pc.workerId);
+      const progress = await lockUnits(client, ids, pc.workerId, pc.config.worker.leaseS);
       for (const id of ids) if (!progress.has(id)) results.set(id, { status: 'lost', rings: 0 });
       const held = ids.filter((id) => progress.has(id));
       if (held.length === 0) return;
@@ -232,12 +233,7 @@ export async function analyseGroup(pc: PipelineContext, unitIds: string[]): Prom
       const t3 = performance.now();
       await writeAnalysis(client, pc.pool, enc);
       const t4 = performance.now();
-      const keys: { unitId: string; period: 'hour' | 'day'; bucketMs: number }[] = [];
-      for (const [id, acc] of accs) for (const period of ['hour', 'day'] as const) for (const b of acc.buckets(period)) keys.push({ unitId: id, period, bucketMs: b });
-      const stored = await readRollupBucketsMany(client, keys);
-      const merged: { unitId: string; row: RollupRow }[] = [];
-      for (const [id, acc] of accs) for (const row of acc.mergedWith(stored.filter((x) => x.unitId === id).map((x) => x.row))) merged.push({ unitId: id, row });
-      await writeRollupsMany(client, merged);
+      await writeRollupsOf(client, accs);
       await recordInOrderBatches(client, pc.workerId ?? NO_CLAIM, logged);
       const t5 = performance.now();
       for (const { unitId: id } of logged) {
@@ -262,6 +258,36 @@ export async function analyseGroup(pc: PipelineContext, unitIds: string[]): Prom
   for (const [id, wm] of newWatermarks) memoryOf(pc, id).watermarkMs = wm;
   for (const [id, r] of results) if (r.status === 'lost') pc.memory.delete(id);
   return results;
+}
+
+const rollupKey = (unitId: string, r: { period: string; metric: string; bucketMs: number }) => `${unitId}|${r.period}|${r.metric}|${r.bucketMs}`;
+
+/**
+ * Merges each unit's batch rollups into the stored rows of the hours and days they touch:
+ * rows already stored are replaced (one upsert), new rows are inserted with one binary COPY.
+ */
+async function writeRollupsOf(client: Parameters<typeof lockOwnedUnit>[0], accs: Map<string, RollupAccumulator>): Promise<void> {
+  const keys: { unitId: string; period: 'hour' | 'day'; bucketMs: number }[] = [];
+  for (const [id, acc] of accs) {
+    for (const b of acc.hourBuckets()) keys.push({ unitId: id, period: 'hour', bucketMs: b });
+    for (const b of acc.dayBuckets()) keys.push({ unitId: id, period: 'day', bucketMs: b });
+  }
+  const stored = await readRollupBucketsMany(client, keys);
+  const byUnit = new Map<string, RollupRow[]>();
+  const exists = new Set<string>();
+  for (const { unitId, row } of stored) {
+    let list = byUnit.get(unitId);
+    if (!list) byUnit.set(unitId, (list = []));
+    list.push(row);
+    exists.add(rollupKey(unitId, row));
+  }
+  const fresh: { unitId: string; row: RollupRow }[] = [];
+  const replaced: { unitId: string; row: RollupRow }[] = [];
+  for (const [id, acc] of accs) {
+    for (const row of acc.mergedWith(byUnit.get(id) ?? [])) (exists.has(rollupKey(id, row)) ? replaced : fresh).push({ unitId: id, row });
+  }
+  await writeRollupsMany(client, replaced);
+  await insertRollupsMany(client, fresh);
 }
 
 /** Groups ring times into spans: a gap longer than gapMs starts a new span. */
@@ -324,13 +350,12 @@ export async function recomputeRollups(client: Parameters<typeof lockOwnedUnit>[
   const hourBuckets: number[] = [];
   for (let h = h0; h < h1; h += HOUR_MS) hourBuckets.push(h);
   await deleteRollupBuckets(client, unitId, 'hour', hourBuckets);
-  await writeRollups(client, unitId, hours.all().filter((r) => r.period === 'hour'));
+  await insertRollupsMany(client, hours.hourRows().map((row) => ({ unitId, row })));
   const d0 = bucketOf('day', fromMs);
   const d1 = bucketOf('day', toMs) + DAY_MS;
-  const days = new RollupAccumulator();
-  for (const r of await readRollups(client, unitId, 'hour', d0, d1)) days.addRollup(r, 'day');
+  const days = daysFromHours(await readRollups(client, unitId, 'hour', d0, d1));
   const dayBuckets: number[] = [];
   for (let d = d0; d < d1; d += DAY_MS) dayBuckets.push(d);
   await deleteRollupBuckets(client, unitId, 'day', dayBuckets);
-  await writeRollups(client, unitId, days.all());
+  await insertRollupsMany(client, days.map((row) => ({ unitId, row })));
 }

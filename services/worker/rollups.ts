@@ -45,17 +45,6 @@ function grow(r: RollupRow, len: number): void {
   }
 }
 
-function addValue(r: RollupRow, i: number, v: number): void {
-  if (!Number.isFinite(v)) return;
-  const x = Math.fround(v);
-  if (r.n.length <= i) grow(r, i + 1);
-  r.n[i]++;
-  r.sum[i] += x;
-  r.sumsq[i] += x * x;
-  if (!(r.min[i] <= x)) r.min[i] = x;
-  if (!(r.max[i] >= x)) r.max[i] = x;
-}
-
 /** Merges b into a (same period, metric and bucket); returns a. */
 export function mergeRollupInto(a: RollupRow, b: RollupRow): RollupRow {
   grow(a, b.n.length);
@@ -72,71 +61,155 @@ export function mergeRollupInto(a: RollupRow, b: RollupRow): RollupRow {
 
 const keyOf = (period: RollupPeriod, metric: string, bucketMs: number) => `${period}|${metric}|${bucketMs}`;
 
-/** Rollups being built for one unit. */
-export class RollupAccumulator {
-  private readonly rows = new Map<string, RollupRow>();
-  private readonly current: Record<RollupPeriod, { bucket: number; byMetric: Map<string, RollupRow> }> = {
-    hour: { bucket: NaN, byMetric: new Map() },
-    day: { bucket: NaN, byMetric: new Map() },
-  };
+const METRICS = Object.keys(ROLLUP_METRICS) as RollupMetric[];
+const M = Object.fromEntries(METRICS.map((m, i) => [m, i])) as Record<RollupMetric, number>;
 
-  private row(period: RollupPeriod, metric: RollupMetric, bucketMs: number): RollupRow {
-    const cur = this.current[period];
-    if (cur.bucket !== bucketMs) {
-      cur.bucket = bucketMs;
-      cur.byMetric = new Map();
+/** One metric of one hour while it is being built: typed arrays, grown as needed. */
+class Slot {
+  len = 0;
+  n = new Float64Array(0);
+  sum = new Float64Array(0);
+  sumsq = new Float64Array(0);
+  min = new Float64Array(0);
+  max = new Float64Array(0);
+
+  ensure(len: number): void {
+    if (len > this.n.length) {
+      const cap = Math.max(len, 2 * this.n.length, 4);
+      const more = (a: Float64Array, fill: number) => {
+        const b = new Float64Array(cap).fill(fill);
+        b.set(a);
+        return b;
+      };
+      this.n = more(this.n, 0);
+      this.sum = more(this.sum, 0);
+      this.sumsq = more(this.sumsq, 0);
+      this.min = more(this.min, NaN);
+      this.max = more(this.max, NaN);
     }
-    let r = cur.byMetric.get(metric);
-    if (!r) {
-      const k = keyOf(period, metric, bucketMs);
-      r = this.rows.get(k);
-      if (!r) this.rows.set(k, (r = emptyRow(period, metric, bucketMs)));
-      cur.byMetric.set(metric, r);
+    if (len > this.len) this.len = len;
+  }
+
+  add(i: number, v: number): void {
+    if (!Number.isFinite(v)) return;
+    const x = Math.fround(v);
+    if (i >= this.len) this.ensure(i + 1);
+    this.n[i]++;
+    this.sum[i] += x;
+    this.sumsq[i] += x * x;
+    if (!(this.min[i] <= x)) this.min[i] = x;
+    if (!(this.max[i] >= x)) this.max[i] = x;
+  }
+
+  addAll(values: ArrayLike<number>): void {
+    for (let i = 0; i < values.length; i++) this.add(i, values[i]);
+  }
+
+  row(metric: string, bucketMs: number): RollupRow {
+    const k = this.len;
+    const r: RollupRow = { period: 'hour', metric, bucketMs, n: new Array<number>(k), sum: new Array<number>(k), sumsq: new Array<number>(k), min: new Array<number>(k), max: new Array<number>(k) };
+    for (let i = 0; i < k; i++) {
+      r.n[i] = this.n[i];
+      r.sum[i] = this.sum[i];
+      r.sumsq[i] = this.sumsq[i];
+      r.min[i] = this.min[i];
+      r.max[i] = this.max[i];
     }
     return r;
+  }
+}
+
+const copyRow = (r: RollupRow, period: RollupPeriod = r.period, bucketMs: number = r.bucketMs): RollupRow => ({
+  period,
+  metric: r.metric,
+  bucketMs,
+  n: r.n.slice(),
+  sum: r.sum.slice(),
+  sumsq: r.sumsq.slice(),
+  min: r.min.slice(),
+  max: r.max.slice(),
+});
+
+/**
+ * Day rows from hour rows: each day is its hours merged in time order (as a recompute of the
+ * day from stored hours does). `onto`: stored day rows the hours are merged into (the hours are
+ * then the part of the day not yet in them).
+ */
+export function daysFromHours(hours: RollupRow[], onto: RollupRow[] = []): RollupRow[] {
+  const out = new Map<string, RollupRow>();
+  for (const d of onto) out.set(keyOf('day', d.metric, d.bucketMs), copyRow(d));
+  const sorted = [...hours].sort((a, b) => a.bucketMs - b.bucketMs || (a.metric < b.metric ? -1 : a.metric > b.metric ? 1 : 0));
+  const touched = new Set<string>();
+  for (const h of sorted) {
+    const b = bucketOf('day', h.bucketMs);
+    const k = keyOf('day', h.metric, b);
+    let d = out.get(k);
+    if (!d) out.set(k, (d = emptyRow('day', h.metric, b)));
+    mergeRollupInto(d, h);
+    touched.add(k);
+  }
+  return [...out.entries()].filter(([k]) => touched.has(k)).map(([, d]) => d);
+}
+
+/**
+ * Hourly rollups being built for one unit from analysed rings (the days follow from the hours).
+ * Per ring: one bucket test and plain typed-array arithmetic per value.
+ */
+export class RollupAccumulator {
+  private readonly hours = new Map<number, Slot[]>();
+  private bucket = NaN;
+  private slots: Slot[] = [];
+
+  private slotsFor(tsMs: number): Slot[] {
+    const b = bucketOf('hour', tsMs);
+    if (b !== this.bucket) {
+      this.bucket = b;
+      let s = this.hours.get(b);
+      if (!s) this.hours.set(b, (s = []));
+      this.slots = s;
+    }
+    return this.slots;
+  }
+
+  private slot(slots: Slot[], m: number): Slot {
+    return (slots[m] ??= new Slot());
   }
 
   private addRing(
     tsMs: number,
     steady: boolean,
-    scalars: [number, number, number, number, number],
+    s0: number,
+    s1: number,
+    s2: number,
+    s3: number,
+    s4: number,
     validity: ArrayLike<number>,
     tcDev: ArrayLike<number>,
     tcRes: ArrayLike<number> | null,
     chDev: ArrayLike<number>,
     chRes: ArrayLike<number> | null,
   ): void {
-    for (const period of ['hour', 'day'] as const) {
-      const b = bucketOf(period, tsMs);
-      addValue(this.row(period, 'spread', b), 0, scalars[0]);
-      addValue(this.row(period, 'spread_excl1', b), 0, scalars[1]);
-      addValue(this.row(period, 'spread_excl2', b), 0, scalars[2]);
-      addValue(this.row(period, 'ring_mean', b), 0, scalars[3]);
-      addValue(this.row(period, 'load_fraction', b), 0, scalars[4]);
-      const cd = this.row(period, 'chamber_deviation', b);
-      grow(cd, chDev.length);
-      for (let k = 0; k < chDev.length; k++) addValue(cd, k, chDev[k]);
-      const td = this.row(period, 'tc_deviation', b);
-      const ti = this.row(period, 'tc_invalid', b);
-      grow(td, tcDev.length);
-      for (let i = 0; i < tcDev.length; i++) {
-        addValue(td, i, tcDev[i]);
-        addValue(ti, i, validity[i] === 0 ? 0 : 1);
-      }
-      if (steady && chRes) {
-        const cr = this.row(period, 'chamber_residual', b);
-        for (let k = 0; k < chRes.length; k++) addValue(cr, k, chRes[k]);
-      }
-      if (steady && tcRes) {
-        const tr = this.row(period, 'tc_residual', b);
-        for (let i = 0; i < tcRes.length; i++) addValue(tr, i, tcRes[i]);
-      }
-    }
+    const slots = this.slotsFor(tsMs);
+    this.slot(slots, M.spread).add(0, s0);
+    this.slot(slots, M.spread_excl1).add(0, s1);
+    this.slot(slots, M.spread_excl2).add(0, s2);
+    this.slot(slots, M.ring_mean).add(0, s3);
+    this.slot(slots, M.load_fraction).add(0, s4);
+    const cd = this.slot(slots, M.chamber_deviation);
+    cd.ensure(chDev.length);
+    cd.addAll(chDev);
+    const td = this.slot(slots, M.tc_deviation);
+    td.ensure(tcDev.length);
+    td.addAll(tcDev);
+    const ti = this.slot(slots, M.tc_invalid);
+    for (let i = 0; i < tcDev.length; i++) ti.add(i, validity[i] === 0 ? 0 : 1);
+    if (steady && chRes) this.slot(slots, M.chamber_residual).addAll(chRes);
+    if (steady && tcRes) this.slot(slots, M.tc_residual).addAll(tcRes);
   }
 
   /** Adds one freshly analysed ring. */
   add(a: AnalysisRow): void {
-    this.addRing(a.tsMs, a.steady, [a.spread, a.spreadExcl1, a.spreadExcl2, a.ringMean, a.loadFraction], a.validity, a.tcDeviation, a.tcResidual, a.chamberDeviation, a.chamberResidual);
+    this.addRing(a.tsMs, a.steady, a.spread, a.spreadExcl1, a.spreadExcl2, a.ringMean, a.loadFraction, a.validity, a.tcDeviation, a.tcResidual, a.chamberDeviation, a.chamberResidual);
   }
 
   /** Adds ring i of stored analysis. */
@@ -144,7 +217,11 @@ export class RollupAccumulator {
     this.addRing(
       c.tsMs[i],
       c.steady[i] === 1,
-      [c.spread[i], c.spreadExcl1[i], c.spreadExcl2[i], c.ringMean[i], c.loadFraction[i]],
+      c.spread[i],
+      c.spreadExcl1[i],
+      c.spreadExcl2[i],
+      c.ringMean[i],
+      c.loadFraction[i],
       c.validity[i],
       c.tcDeviation[i],
       c.tcResidual[i],
@@ -153,37 +230,43 @@ export class RollupAccumulator {
     );
   }
 
-  /** Adds a stored rollup row (days recomputed from their hours). */
-  addRollup(r: RollupRow, period: RollupPeriod): void {
-    const b = bucketOf(period, r.bucketMs);
-    const k = keyOf(period, r.metric, b);
-    let mine = this.rows.get(k);
-    if (!mine) this.rows.set(k, (mine = emptyRow(period, r.metric, b)));
-    mergeRollupInto(mine, r);
+  /** Hour buckets touched, oldest first. */
+  hourBuckets(): number[] {
+    return [...this.hours.keys()].sort((a, b) => a - b);
   }
 
-  buckets(period: RollupPeriod): number[] {
-    const s = new Set<number>();
-    for (const r of this.rows.values()) if (r.period === period) s.add(r.bucketMs);
-    return [...s].sort((a, b) => a - b);
+  /** Day buckets touched, oldest first. */
+  dayBuckets(): number[] {
+    return [...new Set(this.hourBuckets().map((h) => bucketOf('day', h)))];
   }
 
-  all(): RollupRow[] {
-    return [...this.rows.values()];
-  }
-
-  /** Merges stored rows (of buckets this accumulator touched) into its rows; returns the merged rows. */
-  mergedWith(stored: RollupRow[]): RollupRow[] {
-    const out = new Map<string, RollupRow>();
-    for (const r of this.rows.values()) out.set(keyOf(r.period, r.metric, r.bucketMs), { ...r, n: r.n.slice(), sum: r.sum.slice(), sumsq: r.sumsq.slice(), min: r.min.slice(), max: r.max.slice() });
-    for (const s of stored) {
-      const k = keyOf(s.period, s.metric, s.bucketMs);
-      const mine = out.get(k);
-      if (!mine) continue;
-      // Stored first, then this batch: the order a recompute over the bucket would add in.
-      const merged = mergeRollupInto({ ...s, n: s.n.slice(), sum: s.sum.slice(), sumsq: s.sumsq.slice(), min: s.min.slice(), max: s.max.slice() }, mine);
-      out.set(k, merged);
+  /** The hour rows of the rings added. */
+  hourRows(): RollupRow[] {
+    const out: RollupRow[] = [];
+    for (const b of this.hourBuckets()) {
+      const slots = this.hours.get(b) as Slot[];
+      for (let m = 0; m < METRICS.length; m++) if (slots[m]) out.push(slots[m].row(METRICS[m], b));
     }
-    return [...out.values()];
+    return out;
+  }
+
+  /**
+   * Merges stored rows (of the hours and days this accumulator touched) with its rows; returns
+   * every hour and day row to write.
+   */
+  mergedWith(stored: RollupRow[]): RollupRow[] {
+    const storedHours = new Map<string, RollupRow>();
+    const storedDays: RollupRow[] = [];
+    for (const s of stored) {
+      if (s.period === 'hour') storedHours.set(keyOf('hour', s.metric, s.bucketMs), s);
+      else storedDays.push(s);
+    }
+    const mine = this.hourRows();
+    // Stored first, then this batch: the order a recompute over the bucket would add in.
+    const hours = mine.map((h) => {
+      const s = storedHours.get(keyOf('hour', h.metric, h.bucketMs));
+      return s ? mergeRollupInto(copyRow(s), h) : h;
+    });
+    return [...hours, ...daysFromHours(mine, storedDays)];
   }
 }
