@@ -6,9 +6,16 @@
  * the rollups (JSON and SVG). Uses DATABASE_URL if set, else an embedded PostgreSQL in a
  * temporary directory. The last line printed is one JSON object {"bench":"api",…}.
  * Goals: p99 under 50 ms for both routes; a year of trend under 200 ms.
+ * Beside the latencies it prints where the time went during each route's run: how busy the
+ * server thread was, its GC and loop delay, requests waiting for a database connection, and the
+ * PostgreSQL CPU per request (embedded server only). BENCH_CPU_PROFILE=DIR also writes a V8 CPU
+ * profile of the server thread per route (DIR/fleet.cpuprofile, DIR/status.cpuprofile).
  */
 import autocannon from 'autocannon';
+import { readdirSync, readFileSync } from 'node:fs';
+import path from 'node:path';
 import { Worker } from 'node:worker_threads';
+import type { PhaseStats } from './api-server.ts';
 import { loadConfig } from '../services/db/config.ts';
 import { startThrowawayPostgres } from '../services/db/embedded.ts';
 import { createKeysRepository } from '../services/db/keys.ts';
@@ -49,6 +56,30 @@ async function load(url: string, key: string, paths: () => string): Promise<{ p5
     requests: [{ method: 'GET', setupRequest: (req) => ({ ...req, path: paths() }) }],
   });
   return { p50: result.latency.p50, p99: result.latency.p99, rps: Math.round(result.requests.average), errors: result.errors, non2xx: result.non2xx };
+}
+
+/** CPU seconds used so far by a PostgreSQL server and its backends (Linux /proc), or null. */
+function postgresCpuS(dataDir: string | undefined): number | null {
+  if (!dataDir) return null;
+  try {
+    const postmaster = Number(readFileSync(path.join(dataDir, 'postmaster.pid'), 'utf8').split('\n')[0]);
+    let ticks = 0;
+    for (const d of readdirSync('/proc')) {
+      if (!/^\d+$/.test(d)) continue;
+      let stat: string;
+      try {
+        stat = readFileSync(`/proc/${d}/stat`, 'utf8');
+      } catch {
+        continue;
+      }
+      const f = stat.slice(stat.lastIndexOf(')') + 2).split(' ');
+      // f[1] = ppid, f[11] = utime, f[12] = stime (fields 4, 14, 15 of proc(5)), in clock ticks.
+      if (Number(d) === postmaster || Number(f[1]) === postmaster) ticks += Number(f[11]) + Number(f[12]);
+    }
+    return ticks / 100;
+  } catch {
+    return null;
+  }
 }
 
 async function main(): Promise<void> {
@@ -111,10 +142,49 @@ async function main(): Promise<void> {
     const fleetBody = await (await fetch(`${base}/v1/fleet`, { headers: { authorization: `Bearer ${key}` } })).json() as { units: unknown[] };
     if (fleetBody.units.length !== UNITS) throw new Error(`fleet returned ${fleetBody.units.length} units, expected ${UNITS}`);
 
-    const fleet = await load(base, key, () => '/v1/fleet');
+    // One route under load, with the server thread's own account of where its time went.
+    const profileDir = process.env.BENCH_CPU_PROFILE;
+    const ask = <T>(m: unknown, field: string) =>
+      new Promise<T>((resolve) => {
+        const on = (r: Record<string, unknown>) => {
+          if (!(field in r)) return;
+          serverThread.off('message', on);
+          resolve(r[field] as T);
+        };
+        serverThread.on('message', on);
+        serverThread.postMessage(m);
+      });
+    const measured = async (name: string, paths: () => string) => {
+      await ask({ cmd: 'begin', profile: profileDir ? path.resolve(profileDir, `${name}.cpuprofile`) : null }, 'begun');
+      const cpu0 = process.cpuUsage();
+      const pg0 = postgresCpuS(server?.dataDir);
+      const r = await load(base, key, paths);
+      const cpu = process.cpuUsage(cpu0);
+      const pg1 = postgresCpuS(server?.dataDir);
+      const s = await ask<PhaseStats>({ cmd: 'end' }, 'stats');
+      const requests = Math.max(1, r.rps * DURATION_S);
+      const where = {
+        serverBusy: s.loopBusy,
+        gcMs: s.gcMs,
+        loopDelayP99Ms: s.loopDelayP99Ms,
+        poolWaitingMean: s.poolWaitingMean,
+        poolWaitingMax: s.poolWaitingMax,
+        poolMax: s.poolMax,
+        // CPU per request: the server thread; this whole process (server and load generator); PostgreSQL.
+        serverCpuUsPerReq: s.cpuS !== null ? Math.round((s.cpuS * 1e6) / requests) : null,
+        nodeCpuUsPerReq: Math.round((cpu.user + cpu.system) / requests),
+        pgCpuUsPerReq: pg0 !== null && pg1 !== null ? Math.round(((pg1 - pg0) * 1e6) / requests) : null,
+      };
+      log(`  server thread busy ${(where.serverBusy * 100).toFixed(0)} %, GC ${where.gcMs} ms in ${s.gcCount}, loop delay p99 ${where.loopDelayP99Ms} ms, ` +
+        `waiting for a connection mean ${where.poolWaitingMean} max ${where.poolWaitingMax} (pool ${where.poolMax}); ` +
+        `CPU per request: server thread ${where.serverCpuUsPerReq ?? '?'} µs, whole process ${where.nodeCpuUsPerReq} µs, PostgreSQL ${where.pgCpuUsPerReq ?? '?'} µs`);
+      return { ...r, where };
+    };
+
+    const fleet = await measured('fleet', () => '/v1/fleet');
     log(`GET /v1/fleet                p50 ${fleet.p50} ms  p99 ${fleet.p99} ms  ${fleet.rps} req/s  (errors ${fleet.errors}, non-2xx ${fleet.non2xx})`);
     let n = 0;
-    const status = await load(base, key, () => `/v1/units/${ids[n++ % ids.length]}/status`);
+    const status = await measured('status', () => `/v1/units/${ids[n++ % ids.length]}/status`);
     log(`GET /v1/units/:id/status     p50 ${status.p50} ms  p99 ${status.p99} ms  ${status.rps} req/s  (errors ${status.errors}, non-2xx ${status.non2xx})`);
 
     const from = new Date(now - 365 * DAY).toISOString();
@@ -144,8 +214,8 @@ async function main(): Promise<void> {
       units: UNITS,
       connections: CONNECTIONS,
       durationS: DURATION_S,
-      fleet: { p50Ms: fleet.p50, p99Ms: fleet.p99, reqPerS: fleet.rps, errors: fleet.errors + fleet.non2xx },
-      status: { p50Ms: status.p50, p99Ms: status.p99, reqPerS: status.rps, errors: status.errors + status.non2xx },
+      fleet: { p50Ms: fleet.p50, p99Ms: fleet.p99, reqPerS: fleet.rps, errors: fleet.errors + fleet.non2xx, where: fleet.where },
+      status: { p50Ms: status.p50, p99Ms: status.p99, reqPerS: status.rps, errors: status.errors + status.non2xx, where: status.where },
       yearTrendMs: { json: trendJson.median, svg: trendSvg.median, jsonMax: trendJson.max, svgMax: trendSvg.max },
       goals,
       met,
