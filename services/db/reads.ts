@@ -6,6 +6,7 @@
  * or a key range so a mistaken call cannot scan history.
  */
 import type pg from 'pg';
+import type { StartCountersRecord } from './starts.ts';
 
 type Queryable = pg.Pool | pg.ClientBase;
 
@@ -37,67 +38,146 @@ export interface FleetRecord {
   shelvedAlerts: number;
 }
 
+/** One unit's start counters as the fleet shows them (as the starts repository's counters). */
+export interface FleetStarts {
+  firedStarts: number;
+  failedStarts: number;
+  trips: number;
+  firedHours: number;
+  lastStartAt: string | null;
+  lastStartOutcome: StartCountersRecord['lastStartOutcome'];
+}
+
+const LAST_RING_WINDOW_MS = 35 * 86_400_000;
+
+/** The fleet at one commit snapshot: its records, start counters, and until when they hold. */
+export interface FleetState {
+  records: FleetRecord[];
+  starts: Map<string, FleetStarts>;
+  /** The commit snapshot the rows were read at (see commitSnapshot). */
+  snapshot: string;
+  /**
+   * The next instant at which the same rows would read differently with no write in between
+   * (a shelf running out, a configuration version taking effect, a latest ring leaving the
+   * five-week window), or null.
+   */
+  changesAtMs: number | null;
+}
+
 /**
- * One row per unit (or per unit of the scope): the latest analysed ring (found through the
- * worker's watermark, one primary-key probe), the latest stored ring of the last five weeks,
- * and the counts of open active alerts by grade, shelved ones apart.
+ * One row per unit (or per unit of the scope) in one statement: the latest analysed ring (found
+ * through the worker's watermark, one primary-key probe), the latest stored ring of the last five
+ * weeks, the counts of open active alerts by grade, shelved ones apart, and the start counters;
+ * with the commit snapshot it was read at and the next instant the clock alone changes it.
  */
-export async function fleetRecords(q: Queryable, scope: string[] | null, nowMs: number): Promise<FleetRecord[]> {
-  const { rows } = await q.query(
-    `WITH u AS (SELECT id, name, site FROM units WHERE $1::text[] IS NULL OR id = ANY($1)),
+export async function fleetState(q: Queryable, scope: string[] | null, nowMs: number): Promise<FleetState> {
+  const { rows } = await q.query({
+    name: 'fleet_state',
+    text: `WITH u AS (SELECT id, name, site FROM units WHERE $1::text[] IS NULL OR id = ANY($1)),
           a AS (SELECT unit_id,
                        max(CASE grade WHEN 'critical' THEN 3 WHEN 'alarm' THEN 2 WHEN 'warning' THEN 1 ELSE 0 END)
                          FILTER (WHERE shelved_until IS NULL OR shelved_until <= $2) AS worst,
                        count(*) FILTER (WHERE shelved_until IS NULL OR shelved_until <= $2) AS active,
                        count(*) FILTER (WHERE NOT acknowledged AND (shelved_until IS NULL OR shelved_until <= $2)) AS unacked,
-                       count(*) FILTER (WHERE shelved_until > $2) AS shelved
+                       count(*) FILTER (WHERE shelved_until > $2) AS shelved,
+                       min(shelved_until) FILTER (WHERE shelved_until > $2) AS unshelve_at
                   FROM alerts WHERE closed_at IS NULL AND active AND ($1::text[] IS NULL OR unit_id = ANY($1))
-                 GROUP BY unit_id)
-     SELECT u.id, u.name, u.site,
+                 GROUP BY unit_id),
+          f AS (SELECT u.id, u.name, u.site,
             (SELECT v.config->>'temperatureUnit' FROM unit_config_versions v
               WHERE v.unit_id = u.id AND v.effective_from <= $2 ORDER BY v.effective_from DESC LIMIT 1) AS temperature_unit,
-            (SELECT max(r.ts) FROM rings r WHERE r.unit_id = u.id AND r.ts > $2::timestamptz - interval '35 days') AS last_ring_ts,
+            (SELECT min(v.effective_from) FROM unit_config_versions v WHERE v.unit_id = u.id AND v.effective_from > $2) AS next_config_at,
+            (SELECT max(r.ts) FROM rings r WHERE r.unit_id = u.id AND r.ts > $2::timestamptz - $3::interval) AS last_ring_ts,
             ra.ts AS analysis_ts, ra.load_fraction, ra.spread, ra.spread_limit, ra.valid_count, cardinality(ra.validity) AS tc_count,
-            a.worst, coalesce(a.active, 0) AS active, coalesce(a.unacked, 0) AS unacked, coalesce(a.shelved, 0) AS shelved
+            a.worst, coalesce(a.active, 0) AS active, coalesce(a.unacked, 0) AS unacked, coalesce(a.shelved, 0) AS shelved, a.unshelve_at,
+            s.fired_starts, s.failed_starts, s.trips, s.fired_seconds, l.crank_at AS last_start_at, l.outcome AS last_start_outcome
        FROM u
        LEFT JOIN analysis_progress p ON p.unit_id = u.id
        LEFT JOIN LATERAL (SELECT ts, load_fraction, spread, spread_limit, valid_count, validity FROM ring_analysis x
                            WHERE x.unit_id = u.id AND x.ts = p.watermark_ts) ra ON true
        LEFT JOIN a ON a.unit_id = u.id
-      ORDER BY u.id`,
-    [scope, new Date(nowMs)],
-  );
-  return rows.map((r) => ({
-    unitId: r.id,
-    name: r.name,
-    site: r.site,
-    temperatureUnit: r.temperature_unit === 'F' ? 'F' : 'C',
-    lastRingTs: iso(r.last_ring_ts) ?? iso(r.analysis_ts),
-    lastAnalysisTs: iso(r.analysis_ts),
-    loadFraction: num(r.load_fraction),
-    spreadC: num(r.spread),
-    spreadLimitC: num(r.spread_limit),
-    validCount: num(r.valid_count),
-    thermocoupleCount: num(r.tc_count),
-    worstGrade: r.worst === null || r.worst === undefined ? null : GRADE_BY_RANK[Number(r.worst)],
-    activeAlerts: Number(r.active),
-    unacknowledged: Number(r.unacked),
-    shelvedAlerts: Number(r.shelved),
-  }));
+       LEFT JOIN start_state s ON s.unit_id = u.id
+       LEFT JOIN LATERAL (SELECT crank_at, outcome FROM starts WHERE unit_id = u.id ORDER BY crank_at DESC LIMIT 1) l ON true)
+     SELECT h.snap, f.* FROM (SELECT pg_current_snapshot()::text AS snap) h LEFT JOIN f ON true
+      ORDER BY f.id`,
+    values: [scope, new Date(nowMs), `${LAST_RING_WINDOW_MS / 1000} seconds`],
+  });
+  const records: FleetRecord[] = [];
+  const starts = new Map<string, FleetStarts>();
+  let changesAtMs: number | null = null;
+  const sooner = (v: unknown) => {
+    if (v instanceof Date && Number.isFinite(v.getTime()) && (changesAtMs === null || v.getTime() < changesAtMs)) changesAtMs = v.getTime();
+  };
+  for (const r of rows) {
+    if (r.id === null) continue;
+    records.push({
+      unitId: r.id,
+      name: r.name,
+      site: r.site,
+      temperatureUnit: r.temperature_unit === 'F' ? 'F' : 'C',
+      lastRingTs: iso(r.last_ring_ts) ?? iso(r.analysis_ts),
+      lastAnalysisTs: iso(r.analysis_ts),
+      loadFraction: num(r.load_fraction),
+      spreadC: num(r.spread),
+      spreadLimitC: num(r.spread_limit),
+      validCount: num(r.valid_count),
+      thermocoupleCount: num(r.tc_count),
+      worstGrade: r.worst === null || r.worst === undefined ? null : GRADE_BY_RANK[Number(r.worst)],
+      activeAlerts: Number(r.active),
+      unacknowledged: Number(r.unacked),
+      shelvedAlerts: Number(r.shelved),
+    });
+    starts.set(r.id, {
+      firedStarts: Number(r.fired_starts ?? 0),
+      failedStarts: Number(r.failed_starts ?? 0),
+      trips: Number(r.trips ?? 0),
+      firedHours: Math.round((Number(r.fired_seconds ?? 0) / 3600) * 100) / 100,
+      lastStartAt: iso(r.last_start_at),
+      lastStartOutcome: r.last_start_outcome ?? null,
+    });
+    sooner(r.unshelve_at);
+    sooner(r.next_config_at);
+    // The latest stored ring is looked for over the last five weeks only.
+    if (r.last_ring_ts instanceof Date) sooner(new Date(r.last_ring_ts.getTime() + LAST_RING_WINDOW_MS));
+  }
+  return { records, starts, snapshot: rows[0].snap, changesAtMs };
+}
+
+/** The fleet records alone (see fleetState). */
+export async function fleetRecords(q: Queryable, scope: string[] | null, nowMs: number): Promise<FleetRecord[]> {
+  return (await fleetState(q, scope, nowMs)).records;
 }
 
 /**
- * A cheap fingerprint of everything fleetRecords reads except the clock: open alerts (count and
- * latest change), analysis progress (latest change), units and configuration versions. Equal
- * fingerprints mean equal records, apart from rings stored but not yet analysed.
+ * A cheap fingerprint of everything fleetState reads except the rings and the clock: for each
+ * table (open alerts, analysis progress, start state, units, configuration versions) its row
+ * count and the sum of its rows' xmin. Every insert, update or delete of a row changes one of
+ * them, whichever order the writing transactions committed in; equal fingerprints mean equal
+ * records, apart from rings stored but not yet analysed. With the commit snapshot it was read at.
  */
-export async function fleetVersion(q: Queryable): Promise<string> {
-  const { rows } = await q.query(
-    `SELECT (SELECT count(*) || '/' || coalesce(max(updated_at)::text, '') FROM alerts WHERE closed_at IS NULL) AS a,
-            (SELECT coalesce(max(updated_at)::text, '') FROM analysis_progress) AS p,
-            (SELECT count(*) FROM unit_config_versions) || '/' || (SELECT count(*) FROM units) AS u`,
-  );
-  return `${rows[0].a}|${rows[0].p}|${rows[0].u}`;
+export async function fleetVersion(q: Queryable): Promise<{ fingerprint: string; snapshot: string }> {
+  const { rows } = await q.query({
+    name: 'fleet_version',
+    text: `SELECT concat_ws('|',
+              (SELECT count(*) || '/' || coalesce(sum(xmin::text::bigint), 0) FROM alerts WHERE closed_at IS NULL),
+              (SELECT count(*) || '/' || coalesce(sum(xmin::text::bigint), 0) FROM analysis_progress),
+              (SELECT count(*) || '/' || coalesce(sum(xmin::text::bigint), 0) FROM start_state),
+              (SELECT count(*) || '/' || coalesce(sum(xmin::text::bigint), 0) FROM units),
+              (SELECT count(*) || '/' || coalesce(sum(xmin::text::bigint), 0) FROM unit_config_versions)) AS fingerprint,
+            pg_current_snapshot()::text AS snap`,
+  });
+  return { fingerprint: rows[0].fingerprint, snapshot: rows[0].snap };
+}
+
+/**
+ * The database's commit snapshot (`xmin:xmax:in-progress ids`). Two equal texts mean that no
+ * transaction committed or aborted between the two reads: anything read at the first is still
+ * exactly what a read now would return, apart from what depends on the clock. Any write anywhere
+ * in the cluster changes it, so it is a validator for caches, never a version of one table.
+ */
+export async function commitSnapshot(q: Queryable): Promise<string> {
+  const { rows } = await q.query({ name: 'commit_snapshot', text: `SELECT pg_current_snapshot()::text AS snap` });
+  return rows[0].snap as string;
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -515,7 +595,9 @@ export type ReadsRepository = ReturnType<typeof createReadsRepository>;
 export function createReadsRepository(pool: pg.Pool) {
   return {
     fleet: (scope: string[] | null, nowMs: number) => fleetRecords(pool, scope, nowMs),
+    fleetState: (scope: string[] | null, nowMs: number) => fleetState(pool, scope, nowMs),
     fleetVersion: () => fleetVersion(pool),
+    commitSnapshot: () => commitSnapshot(pool),
     analysisNear: (unitId: string, atMs: number | null) => analysisNear(pool, unitId, atMs),
     firstAnalysisTs: (unitId: string, sinceMs: number) => firstAnalysisTs(pool, unitId, sinceMs),
     ringReadings: (unitId: string, tsIso: string) => ringReadings(pool, unitId, tsIso),

@@ -8,10 +8,9 @@ import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
 import { Type, type Static } from 'typebox';
 import { unitScope } from '../auth.ts';
 import { fleetSvg, rankFleet, type Freshness } from '../svg/fleet.ts';
-import type { FleetRecord } from '../../db/reads.ts';
-import { createStartsRepository, type StartCountersRecord } from '../../db/starts.ts';
+import type { FleetRecord, FleetStarts } from '../../db/reads.ts';
 import { StartCounters } from './starts.ts';
-import { readErrors, readsOf } from './read-common.ts';
+import { coalesced, readErrors, readsOf, snapshotOf } from './read-common.ts';
 
 const Grade = Type.Union([Type.Literal('notice'), Type.Literal('warning'), Type.Literal('alarm'), Type.Literal('critical')]);
 const Nullable = <T extends Parameters<typeof Type.Union>[0][number]>(t: T) => Type.Union([t, Type.Null()]);
@@ -54,71 +53,173 @@ export function freshnessOf(lastRingTs: string | null, nowMs: number, silentS: n
 
 const NO_STARTS = { firedStarts: 0, failedStarts: 0, trips: 0, firedHours: 0, lastStartAt: null, lastStartOutcome: null };
 
-export function fleetRows(records: FleetRecord[], nowMs: number, silentS: number, starts: ReadonlyMap<string, StartCountersRecord> = new Map()): FleetRow[] {
-  return rankFleet(
-    records.map((r) => {
-      const c = starts.get(r.unitId);
-      const f = freshnessOf(r.lastRingTs, nowMs, silentS);
-      return {
-        unitId: r.unitId,
-        name: r.name,
-        site: r.site,
-        temperatureUnit: r.temperatureUnit,
-        lastRingTs: r.lastRingTs,
-        lastAnalysisTs: r.lastAnalysisTs,
-        dataAgeS: f.ageS,
-        freshness: f.freshness,
-        loadFraction: r.loadFraction,
-        spreadC: r.spreadC,
-        spreadLimitC: r.spreadLimitC,
-        worstGrade: r.worstGrade,
-        activeAlerts: r.activeAlerts,
-        unacknowledged: r.unacknowledged,
-        shelvedAlerts: r.shelvedAlerts,
-        coverage: r.validCount !== null && r.thermocoupleCount !== null ? { valid: r.validCount, total: r.thermocoupleCount } : null,
-        starts: c ? { firedStarts: c.firedStarts, failedStarts: c.failedStarts, trips: c.trips, firedHours: c.firedHours, lastStartAt: c.lastStartAt, lastStartOutcome: c.lastStartOutcome } : NO_STARTS,
-      };
-    }),
-  );
+function fleetRow(r: FleetRecord, c: FleetStarts | undefined, f: { freshness: Freshness; ageS: number | null }): FleetRow {
+  return {
+    unitId: r.unitId,
+    name: r.name,
+    site: r.site,
+    temperatureUnit: r.temperatureUnit,
+    lastRingTs: r.lastRingTs,
+    lastAnalysisTs: r.lastAnalysisTs,
+    dataAgeS: f.ageS,
+    freshness: f.freshness,
+    loadFraction: r.loadFraction,
+    spreadC: r.spreadC,
+    spreadLimitC: r.spreadLimitC,
+    worstGrade: r.worstGrade,
+    activeAlerts: r.activeAlerts,
+    unacknowledged: r.unacknowledged,
+    shelvedAlerts: r.shelvedAlerts,
+    coverage: r.validCount !== null && r.thermocoupleCount !== null ? { valid: r.validCount, total: r.thermocoupleCount } : null,
+    starts: c ? { firedStarts: c.firedStarts, failedStarts: c.failedStarts, trips: c.trips, firedHours: c.firedHours, lastStartAt: c.lastStartAt, lastStartOutcome: c.lastStartOutcome } : NO_STARTS,
+  };
 }
 
-/** Fleet records are reused while the fleet's fingerprint is unchanged, for at most this long. */
+export function fleetRows(records: FleetRecord[], nowMs: number, silentS: number, starts: ReadonlyMap<string, FleetStarts> = new Map()): FleetRow[] {
+  return rankFleet(records.map((r) => fleetRow(r, starts.get(r.unitId), freshnessOf(r.lastRingTs, nowMs, silentS))));
+}
+
+const CLOCK_FIELDS = ',"dataAgeS":0,"freshness":"live"';
+
+/**
+ * The reply body of one set of fleet records at any instant, as the bytes of
+ * JSON.stringify({ asOf, units: fleetRows(records, atMs, silentS, starts) }). Each row's JSON is
+ * made once, in two pieces around the fields that follow the clock (dataAgeS, freshness), and
+ * the ranking is kept while no unit turns silent or stops being silent: a new second costs the
+ * joining of the pieces, not the serialization and ranking of the whole fleet.
+ */
+export function fleetBodyMaker(records: FleetRecord[], silentS: number, starts: ReadonlyMap<string, FleetStarts> = new Map()): (atMs: number) => Buffer {
+  const pieces = records.map((r) => {
+    const json = JSON.stringify(fleetRow(r, starts.get(r.unitId), { freshness: 'live', ageS: 0 }));
+    // Keys and quotes inside string values are escaped, so the marker occurs once, where the fields are.
+    const at = json.indexOf(CLOCK_FIELDS);
+    return { head: json.slice(0, at) + ',"dataAgeS":', tail: json.slice(at + CLOCK_FIELDS.length) };
+  });
+  let order: number[] | null = null;
+  let silentBefore: boolean[] = [];
+  return (atMs) => {
+    const fresh = records.map((r) => freshnessOf(r.lastRingTs, atMs, silentS));
+    const silent = fresh.map((f) => f.freshness === 'silent');
+    if (order === null || silent.some((v, i) => v !== silentBefore[i])) {
+      const keys = records.map((r, i) => ({ i, unitId: r.unitId, worstGrade: r.worstGrade, spreadC: r.spreadC, spreadLimitC: r.spreadLimitC, freshness: fresh[i].freshness }));
+      order = rankFleet(keys).map((k) => k.i);
+      silentBefore = silent;
+    }
+    const parts: string[] = [`{"asOf":"${new Date(atMs).toISOString()}","units":[`];
+    for (let k = 0; k < order.length; k++) {
+      const i = order[k];
+      const f = fresh[i];
+      parts.push(k === 0 ? '' : ',', pieces[i].head, f.ageS === null ? 'null' : String(f.ageS), ',"freshness":"', f.freshness, '"', pieces[i].tail);
+    }
+    parts.push(']}');
+    return Buffer.from(parts.join(''));
+  };
+}
+
+/**
+ * After a write elsewhere in the database, fleet records whose fingerprint (fleetVersion) is
+ * unchanged are reused for at most this long since they were read.
+ */
 export const FLEET_CACHE_MS = 5_000;
+
+/** What GET /v1/fleet promises about how fresh its rows are (also in README, "The API"). */
+export const FLEET_FRESHNESS =
+  'Every read reflects every alert action, analysed ring, start, unit and configuration change committed before it. ' +
+  'A ring stored but not yet analysed may show in lastRingTs, dataAgeS and freshness up to 5 s late. ' +
+  'dataAgeS and freshness are computed at asOf, the start of the current second.';
 
 export async function fleetRoutes(base: FastifyInstance): Promise<void> {
   const app = base.withTypeProvider<TypeBoxTypeProvider>();
   const reads = readsOf(app);
+  const snapshot = snapshotOf(app);
   const silentS = app.appConfig.alerts.unitSilentS;
-  // A wall screen or fifty dashboards polling the board: one fingerprint query per request
-  // decides whether the records must be read again (they are, at the latest, every
-  // FLEET_CACHE_MS); within one second of the clock and one fingerprint every caller gets the
-  // same serialized body. Freshness comes from the clock of the second the body was made in.
-  const startsRepo = createStartsRepository(app.pool);
-  interface Entry { version: string; atMs: number; records: FleetRecord[]; starts: Map<string, StartCountersRecord>; second: number; body: Buffer | null }
+  // A wall screen or fifty dashboards polling the board. Each request reads the database's
+  // commit snapshot (one trivial query, shared by the requests that arrive while one is under
+  // way): while it equals the snapshot the records were read at, nothing has been written since
+  // and the records are exact. Otherwise one refresh per scope (shared the same way) compares
+  // the fleet's fingerprint: unchanged, the records are kept, from then on for at most
+  // FLEET_CACHE_MS since they were read; changed, they are read again. A shelf running out or a
+  // configuration version taking effect ends the records' validity at that instant. Within one
+  // second every caller gets the same body, with freshness from the clock of that second.
+  interface Entry {
+    snapshot: string;
+    fingerprint: string;
+    readAtMs: number;
+    validUntilMs: number;
+    records: FleetRecord[];
+    starts: Map<string, FleetStarts>;
+    make: ((atMs: number) => Buffer) | null;
+    second: number;
+    body: Buffer | null;
+  }
   const cache = new Map<string, Entry>();
-  async function body(scope: string[] | null, now: number): Promise<Buffer> {
-    const key = scope === null ? '*' : [...scope].sort().join(',');
-    const second = Math.floor(now / 1000);
-    let e = cache.get(key);
-    const version = await reads.fleetVersion();
-    if (e && e.body !== null && e.second === second && e.version === version) return e.body;
-    if (!e || e.version !== version || now - e.atMs >= FLEET_CACHE_MS) {
-      const [records, counters] = await Promise.all([reads.fleet(scope, now), startsRepo.counters(scope)]);
-      if (cache.size > 200) cache.clear();
-      e = { version, atMs: now, records, starts: new Map(counters.map((c) => [c.unitId, c])), second, body: null };
-      cache.set(key, e);
+  const refreshers = new Map<string, () => Promise<Entry>>();
+
+  function refresher(key: string, scope: string[] | null): () => Promise<Entry> {
+    let r = refreshers.get(key);
+    if (r) return r;
+    if (refreshers.size > 200) {
+      refreshers.clear();
+      cache.clear();
     }
-    const at = second * 1000;
-    e.second = second;
-    e.body = Buffer.from(JSON.stringify({ asOf: new Date(at).toISOString(), units: fleetRows(e.records, at, silentS, e.starts) }));
+    r = coalesced(async () => {
+      const now = Date.now();
+      const old = cache.get(key);
+      const v = await reads.fleetVersion();
+      if (old && old.fingerprint === v.fingerprint && now < old.validUntilMs && now - old.readAtMs < FLEET_CACHE_MS) {
+        // Kept on the fingerprint's word: from now on no longer than FLEET_CACHE_MS since read.
+        old.snapshot = v.snapshot;
+        old.validUntilMs = Math.min(old.validUntilMs, old.readAtMs + FLEET_CACHE_MS);
+        return old;
+      }
+      const st = await reads.fleetState(scope, now);
+      const e: Entry = {
+        snapshot: st.snapshot,
+        fingerprint: v.fingerprint,
+        readAtMs: now,
+        validUntilMs: st.changesAtMs ?? Infinity,
+        records: st.records,
+        starts: st.starts,
+        make: null,
+        second: -1,
+        body: null,
+      };
+      cache.set(key, e);
+      return e;
+    });
+    refreshers.set(key, r);
+    return r;
+  }
+
+  async function current(scope: string[] | null): Promise<Entry> {
+    const key = scope === null ? '*' : [...scope].sort().join(',');
+    const snap = await snapshot();
+    const e = cache.get(key);
+    if (e && e.snapshot === snap && Date.now() < e.validUntilMs) return e;
+    return refresher(key, scope)();
+  }
+
+  function body(e: Entry, now: number): Buffer {
+    const second = Math.floor(now / 1000);
+    if (e.body === null || e.second !== second) {
+      e.make ??= fleetBodyMaker(e.records, silentS, e.starts);
+      e.body = e.make(second * 1000);
+      e.second = second;
+    }
     return e.body;
   }
 
   app.get('/v1/fleet', {
-    schema: { tags: ['read'], summary: 'One row per unit, worst active alert first, with freshness, spread and coverage', response: { 200: FleetReply, ...readErrors } },
+    schema: {
+      tags: ['read'],
+      summary: 'One row per unit, worst active alert first, with freshness, spread and coverage',
+      description: FLEET_FRESHNESS,
+      response: { 200: FleetReply, ...readErrors },
+    },
     config: { access: 'read' },
   }, async (request, reply) => {
-    return reply.header('content-type', 'application/json; charset=utf-8').send((await body(unitScope(request), Date.now())) as never);
+    const e = await current(unitScope(request));
+    return reply.header('content-type', 'application/json; charset=utf-8').send(body(e, Date.now()) as never);
   });
 
   app.get('/v1/fleet.svg', {
@@ -130,8 +231,9 @@ export async function fleetRoutes(base: FastifyInstance): Promise<void> {
     },
     config: { access: 'read' },
   }, async (request, reply) => {
+    const e = await current(unitScope(request));
     const now = Date.now();
-    const rows = (JSON.parse((await body(unitScope(request), now)).toString()) as { units: FleetRow[] }).units;
+    const rows = fleetRows(e.records, Math.floor(now / 1000) * 1000, silentS, e.starts);
     return reply.header('content-type', 'image/svg+xml; charset=utf-8').send(fleetSvg(rows, now));
   });
 }

@@ -1,11 +1,12 @@
 /**
  * What the read routes share: time windows with their bounds (a request for more history than
  * a resolution allows is refused with a sentence saying what is allowed), the unit lookup that
- * answers 404, schema pieces, and the read repository bound to the application's pool.
+ * answers 404, schema pieces, the read repository bound to the application's pool, and the
+ * commit snapshot that tells the cached routes whether anything was written since they read.
  */
 import type { FastifyInstance } from 'fastify';
 import { Type } from 'typebox';
-import { createReadsRepository, type ReadsRepository } from '../../db/reads.ts';
+import { commitSnapshot, createReadsRepository, type ReadsRepository } from '../../db/reads.ts';
 import type { UnitRecord } from '../../db/units.ts';
 import { badRequest, notFound } from '../errors.ts';
 import { ErrorReply } from '../schemas.ts';
@@ -60,6 +61,53 @@ export function readsOf(app: FastifyInstance): ReadsRepository {
   let r = readsByPool.get(app.pool);
   if (!r) readsByPool.set(app.pool, (r = createReadsRepository(app.pool)));
   return r;
+}
+
+/**
+ * Runs `run` on behalf of many callers, one run at a time. A caller never shares a run that was
+ * already under way when it called (its answer could predate the caller): it waits for the next
+ * run, which every caller that arrived meanwhile shares. So each caller gets an answer read
+ * after it asked, and a crowd of concurrent callers costs one run, not one each.
+ */
+export function coalesced<T>(run: () => Promise<T>): () => Promise<T> {
+  let running = false;
+  let waiting: Array<{ resolve: (v: T) => void; reject: (err: unknown) => void }> = [];
+  const next = (): void => {
+    running = true;
+    const batch = waiting;
+    waiting = [];
+    run()
+      .then(
+        (v) => {
+          for (const w of batch) w.resolve(v);
+        },
+        (err: unknown) => {
+          for (const w of batch) w.reject(err);
+        },
+      )
+      .finally(() => {
+        running = false;
+        if (waiting.length) next();
+      });
+  };
+  return () =>
+    new Promise<T>((resolve, reject) => {
+      waiting.push({ resolve, reject });
+      if (!running) next();
+    });
+}
+
+const snapshotsByPool = new WeakMap<object, () => Promise<string>>();
+
+/**
+ * The database's commit snapshot, read after the call (see commitSnapshot): when it equals the
+ * snapshot a cached answer was read at, nothing has been written since and the answer is still
+ * exact. Concurrent callers share one query.
+ */
+export function snapshotOf(app: FastifyInstance): () => Promise<string> {
+  let s = snapshotsByPool.get(app.pool);
+  if (!s) snapshotsByPool.set(app.pool, (s = coalesced(() => commitSnapshot(app.pool))));
+  return s;
 }
 
 /** Numbers to JSON: NaN and infinities become null. */

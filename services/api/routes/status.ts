@@ -3,20 +3,21 @@
  * analysed ring, or null before the first; the latest stored ring), its exhaust spreads and
  * limit, coldest and hottest thermocouples, chamber estimates with the swirl used, invalid
  * thermocouples with their reasons, the active alerts, and how far analysis has come (rings
- * stored and analysed, the watermark, the worker holding the unit).
+ * stored and analysed, the watermark, the worker holding the unit). One statement reads it all;
+ * the serialized reply is kept per unit and given again while the database's commit snapshot
+ * says nothing has been written since.
  * Also `workerRoutes`: this route and the baselines routes, registered together.
  */
 import type { FastifyInstance } from 'fastify';
 import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
-import { Type, type TSchema } from 'typebox';
+import { Type, type Static, type TSchema } from 'typebox';
 import { ADVISORY_CAUTION } from '../../core/findings.ts';
 import { VALIDITY_REASONS } from '../../core/types.ts';
-import { analysisProgress, latestAnalysis } from '../../db/analysis.ts';
-import { listActiveAlerts } from '../../db/alerts.ts';
+import { unitStatusState, type UnitStatusState } from '../../db/status-reads.ts';
 import { notFound } from '../errors.ts';
 import { ErrorReply, UnitParams } from '../schemas.ts';
 import { baselineRoutes } from './baselines.ts';
-import { createStartsRepository } from '../../db/starts.ts';
+import { coalesced, snapshotOf } from './read-common.ts';
 import { StartCounters } from './starts.ts';
 
 const Nullable = <T extends TSchema>(t: T) => Type.Union([t, Type.Null()]);
@@ -77,63 +78,114 @@ const errors = { 400: ErrorReply, 401: ErrorReply, 403: ErrorReply, 404: ErrorRe
 const iso = (d: Date | null) => (d ? d.toISOString() : null);
 const num = (v: number | null | undefined) => (v === null || v === undefined || !Number.isFinite(v) ? null : v);
 
+/** What GET /v1/units/:unitId/status promises about how fresh it is. */
+export const STATUS_FRESHNESS = 'Every read reflects every ring analysed, alert action and start counted that was committed before it.';
+
+type StatusBody = Static<typeof StatusReply>;
+
+/** The reply body from what the status statement read. */
+export function statusBody(unitId: string, st: UnitStatusState): StatusBody {
+  const a = st.analysis;
+  const p = st.progress;
+  const validity = a?.validity ?? [];
+  return {
+    unitId,
+    ts: iso(a?.ts ?? null),
+    lastRingTs: iso(p.lastRingTs),
+    loadFraction: num(a?.loadFraction),
+    steady: a?.steady ?? false,
+    spread: num(a?.spread),
+    spreadExcl1: num(a?.spreadExcl1),
+    spreadExcl2: num(a?.spreadExcl2),
+    limit: num(a?.spreadLimit),
+    limitFromBaseline: a?.limitFromBaseline ?? false,
+    ringMean: num(a?.ringMean),
+    hottestThermocouple: a?.hottestTc ?? null,
+    coldestThermocouple: a?.coldestTc ?? null,
+    secondColdestThermocouple: a?.secondColdestTc ?? null,
+    coldestAdjacent: a?.coldestAdjacent ?? false,
+    coverage: { valid: a?.validCount ?? 0, total: validity.length, degraded: a?.coverageDegraded ?? false },
+    swirlDeg: num(a?.swirlDeg),
+    chambers: (a?.chamberDeviation ?? []).map((d, k) => ({
+      chamber: k + 1,
+      deviationDegC: num(d),
+      uncertaintyDegC: num(a?.chamberUncertainty[k]),
+      residualDegC: num(a?.chamberResidual?.[k]),
+    })),
+    worstChamber:
+      a && a.worstChamber !== null
+        ? { chamber: a.worstChamber, likelihood: num(a.worstLikelihood), runnerUpChamber: a.runnerUpChamber, runnerUpLikelihood: num(a.runnerUpLikelihood) }
+        : null,
+    invalidThermocouples: validity.flatMap((code, i) => (code === 0 ? [] : [{ thermocouple: i + 1, reason: VALIDITY_REASONS[code] ?? 'missing' }])),
+    configVersion: a?.configVersion ?? null,
+    baselineVersion: a?.baselineVersion ?? null,
+    activeAlerts: st.alerts as unknown as Record<string, unknown>[],
+    progress: {
+      ringsStored: p.ringsStored,
+      ringsAnalysed: p.ringsAnalysed,
+      ringsPending: Math.max(0, p.ringsStored - p.ringsAnalysed),
+      lateRingsAnalysed: p.lateRingsAnalysed,
+      watermarkTs: iso(p.watermarkTs),
+      workerId: p.workerId,
+      leaseUntil: iso(p.leaseUntil),
+    },
+    starts: st.starts,
+    caution: ADVISORY_CAUTION,
+  };
+}
+
+/** Units whose status is kept serialized; past this the cache starts again empty. */
+const STATUS_CACHE_UNITS = 20_000;
+
 export async function statusRoutes(base: FastifyInstance): Promise<void> {
   const app = base.withTypeProvider<TypeBoxTypeProvider>();
-  const startsRepo = createStartsRepository(app.pool);
+  const snapshot = snapshotOf(app);
+  // The serialized status of each unit asked for, with the commit snapshot it was read at. A
+  // request reads the database's commit snapshot (one trivial query, shared by the requests
+  // that arrive while one is under way); while it equals the entry's, nothing has been written
+  // since and the bytes are exact. A shelf running out ends an entry at that instant. Otherwise
+  // one statement reads the status again, shared by the requests for the same unit that arrive
+  // while it is under way.
+  interface Entry { snapshot: string; validUntilMs: number; body: Buffer }
+  const cache = new Map<string, Entry>();
+  const loaders = new Map<string, () => Promise<UnitStatusState | null>>();
+  const loaderOf = (unitId: string) => {
+    let l = loaders.get(unitId);
+    if (!l) {
+      if (loaders.size >= STATUS_CACHE_UNITS) loaders.clear();
+      loaders.set(unitId, (l = coalesced(() => unitStatusState(app.pool, unitId, Date.now()))));
+    }
+    return l;
+  };
+
   app.get('/v1/units/:unitId/status', {
-    schema: { tags: ['analysis'], summary: 'Latest analysis of a unit, its active alerts and how far analysis has come', params: UnitParams, response: { 200: StatusReply, ...errors } },
+    schema: {
+      tags: ['analysis'],
+      summary: 'Latest analysis of a unit, its active alerts and how far analysis has come',
+      description: STATUS_FRESHNESS,
+      params: UnitParams,
+      response: { 200: StatusReply, ...errors },
+    },
     config: { access: 'read' },
-  }, async (request) => {
+  }, async (request, reply) => {
     const unitId = request.params.unitId;
-    if (!(await app.repos.units.exists(unitId))) throw notFound(`No unit ${unitId}.`);
-    const [a, p, alerts, [starts]] = await Promise.all([latestAnalysis(app.pool, unitId), analysisProgress(app.pool, unitId), listActiveAlerts(app.pool, unitId), startsRepo.counters([unitId])]);
-    const validity = a?.validity ?? [];
-    return {
-      unitId,
-      ts: iso(a?.ts ?? null),
-      lastRingTs: iso(p.lastRingTs),
-      loadFraction: num(a?.loadFraction),
-      steady: a?.steady ?? false,
-      spread: num(a?.spread),
-      spreadExcl1: num(a?.spreadExcl1),
-      spreadExcl2: num(a?.spreadExcl2),
-      limit: num(a?.spreadLimit),
-      limitFromBaseline: a?.limitFromBaseline ?? false,
-      ringMean: num(a?.ringMean),
-      hottestThermocouple: a?.hottestTc ?? null,
-      coldestThermocouple: a?.coldestTc ?? null,
-      secondColdestThermocouple: a?.secondColdestTc ?? null,
-      coldestAdjacent: a?.coldestAdjacent ?? false,
-      coverage: { valid: a?.validCount ?? 0, total: validity.length, degraded: a?.coverageDegraded ?? false },
-      swirlDeg: num(a?.swirlDeg),
-      chambers: (a?.chamberDeviation ?? []).map((d, k) => ({
-        chamber: k + 1,
-        deviationDegC: num(d),
-        uncertaintyDegC: num(a?.chamberUncertainty[k]),
-        residualDegC: num(a?.chamberResidual?.[k]),
-      })),
-      worstChamber:
-        a && a.worstChamber !== null
-          ? { chamber: a.worstChamber, likelihood: num(a.worstLikelihood), runnerUpChamber: a.runnerUpChamber, runnerUpLikelihood: num(a.runnerUpLikelihood) }
-          : null,
-      invalidThermocouples: validity.flatMap((code, i) => (code === 0 ? [] : [{ thermocouple: i + 1, reason: VALIDITY_REASONS[code] ?? 'missing' }])),
-      configVersion: a?.configVersion ?? null,
-      baselineVersion: a?.baselineVersion ?? null,
-      activeAlerts: alerts as unknown as Record<string, unknown>[],
-      progress: {
-        ringsStored: p.ringsStored,
-        ringsAnalysed: p.ringsAnalysed,
-        ringsPending: Math.max(0, p.ringsStored - p.ringsAnalysed),
-        lateRingsAnalysed: p.lateRingsAnalysed,
-        watermarkTs: iso(p.watermarkTs),
-        workerId: p.workerId,
-        leaseUntil: iso(p.leaseUntil),
-      },
-      starts: starts
-        ? { firedStarts: starts.firedStarts, failedStarts: starts.failedStarts, trips: starts.trips, firedHours: starts.firedHours, lastStartAt: starts.lastStartAt, lastStartOutcome: starts.lastStartOutcome }
-        : { firedStarts: 0, failedStarts: 0, trips: 0, firedHours: 0, lastStartAt: null, lastStartOutcome: null },
-      caution: ADVISORY_CAUTION,
-    };
+    const snap = await snapshot();
+    let e = cache.get(unitId);
+    if (!e || e.snapshot !== snap || Date.now() >= e.validUntilMs) {
+      const st = await loaderOf(unitId)();
+      if (!st) {
+        cache.delete(unitId);
+        throw notFound(`No unit ${unitId}.`);
+      }
+      e = cache.get(unitId);
+      // Requests sharing one read serialize it once.
+      if (!e || e.snapshot !== st.snapshot || e.validUntilMs !== (st.changesAtMs ?? Infinity)) {
+        if (cache.size >= STATUS_CACHE_UNITS) cache.clear();
+        e = { snapshot: st.snapshot, validUntilMs: st.changesAtMs ?? Infinity, body: Buffer.from(reply.serialize(statusBody(unitId, st)) as string) };
+        cache.set(unitId, e);
+      }
+    }
+    return reply.header('content-type', 'application/json; charset=utf-8').send(e.body as never);
   });
 }
 
