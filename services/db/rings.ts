@@ -6,6 +6,7 @@
 import { once } from 'node:events';
 import pg from 'pg';
 import { from as copyFrom } from 'pg-copy-streams';
+import { isoMicros } from './pg-binary.ts';
 
 /** LISTEN channel told, after each commit, which units got new rings. */
 export const NEW_RINGS_CHANNEL = 'cansight_new_rings';
@@ -211,9 +212,12 @@ function nullableFloat4(d: DataView, p: number, v: number | null): number {
   return p + 8;
 }
 
-/** Sends one binary COPY body to `COPY target (columns) FROM STDIN`. */
-export async function copyBinary(client: pg.ClientBase, target: string, body: Buffer): Promise<void> {
-  const stream = client.query(copyFrom(`COPY ${target} (${RING_COLUMNS}) FROM STDIN (FORMAT binary)`));
+/**
+ * Sends one binary COPY body to `COPY target (columns) FROM STDIN`, optionally with statements
+ * before and after it in the same simple query (they run in order; an error skips the rest).
+ */
+export async function copyBinary(client: pg.ClientBase, target: string, body: Buffer, before = '', after = ''): Promise<void> {
+  const stream = client.query(copyFrom(`${before}COPY ${target} (${RING_COLUMNS}) FROM STDIN (FORMAT binary)${after}`));
   const done = once(stream, 'finish');
   stream.end(body);
   await done;
@@ -238,16 +242,20 @@ export interface ChunkResult {
  * chunks of rows are copied as they arrive. Nothing is visible to others before commit(); an
  * error or rollback() leaves nothing behind.
  *
- * Per chunk: when no stored ring of the chunk's units falls inside the chunk's time span and
- * each unit's times only increase, the chunk is copied straight into the ring table (under a
- * savepoint, so a ring written meanwhile by another request sends the chunk the slow way);
- * otherwise it is copied into a session-local staging table and moved with
- * INSERT … SELECT … ON CONFLICT DO NOTHING, which counts the duplicates.
+ * Per chunk: when each unit's times in the chunk only increase, the chunk is copied straight
+ * into the ring table under a savepoint, in the same round trip as a check that no stored ring
+ * of the chunk's units falls inside the chunk's time span (a stored ring there, or one written
+ * meanwhile by another request, ends that attempt with a unique violation, and the chunk goes
+ * the slow way); otherwise it is copied into a session-local staging table and moved with
+ * INSERT … SELECT … ON CONFLICT DO NOTHING in key order, which counts the duplicates.
+ * BEGIN goes out with the first statement that needs it, and NOTIFY with COMMIT, so a write
+ * of one chunk costs two round trips.
  * A month without a partition gets one inside the transaction through ensure_ring_partitions
  * (migration 0003), which attaches it with a lock that does not stop other writers or readers.
  */
 export class RingWrite {
   private finished = false;
+  private begun = false;
   private readonly created = new Set<number>();
   private readonly notifyUnits = new Set<string>();
   private readonly onError = (err: Error) => {
@@ -259,26 +267,33 @@ export class RingWrite {
     client.on('error', this.onError);
   }
 
+  /** Takes a connection for a write; the transaction begins with its first statement. */
   static async open(pool: pg.Pool): Promise<RingWrite> {
-    const client = await pool.connect();
-    const w = new RingWrite(pool, client);
-    try {
-      await client.query('BEGIN');
-    } catch (err) {
-      w.release(true);
-      throw err;
-    }
-    return w;
+    return new RingWrite(pool, await pool.connect());
+  }
+
+  /** 'BEGIN; ' the first time a statement of this write is sent, then ''. */
+  private begin(): string {
+    if (this.begun) return '';
+    this.begun = true;
+    return 'BEGIN; ';
+  }
+
+  private async ensureBegun(): Promise<void> {
+    if (!this.begun) await this.client.query(this.begin().trim());
   }
 
   /** Runs a read query on this write's connection (inside its transaction). */
-  query<R extends pg.QueryResultRow = Record<string, unknown>>(text: string, values?: unknown[]): Promise<pg.QueryResult<R>> {
+  async query<R extends pg.QueryResultRow = Record<string, unknown>>(text: string, values?: unknown[]): Promise<pg.QueryResult<R>> {
     this.assertUsable();
+    await this.ensureBegun();
     return this.client.query<R>(text, values);
   }
 
-  /** The connection, for repositories that read through it (e.g. unit configurations). */
-  get connection(): pg.ClientBase {
+  /** The connection inside this write's transaction, for repositories that read through it. */
+  async connection(): Promise<pg.ClientBase> {
+    this.assertUsable();
+    await this.ensureBegun();
     return this.client;
   }
 
@@ -293,35 +308,43 @@ export class RingWrite {
     for (const month of months) {
       if (known.has(month) || this.created.has(month)) continue;
       // A partition made here is not committed yet: it is known to the process only after COMMIT.
+      await this.ensureBegun();
       const { rows } = await this.client.query('SELECT ensure_ring_partitions($1, $1) AS made', [monthStartIso(month)]);
       if (Number(rows[0].made) > 0) this.created.add(month);
       else known.add(month);
     }
   }
 
-  private async overlaps(enc: RingCopyEncoder): Promise<boolean> {
+  /**
+   * A statement that fails with a unique violation when a stored ring of one of the chunk's
+   * units lies inside that unit's time span in the chunk; null when some unit's times do not
+   * only increase (the chunk may hold a ring twice: straight to the slow way).
+   */
+  private spanCheck(enc: RingCopyEncoder): string | null {
     const ids: string[] = [];
     const lo: string[] = [];
     const hi: string[] = [];
     for (const span of enc.units.values()) {
-      if (!span.increasing) return true;
-      ids.push(span.unitId);
-      lo.push(new Date(span.loMs).toISOString());
-      hi.push(new Date(span.hiMs).toISOString());
+      if (!span.increasing) return null;
+      ids.push(pg.escapeLiteral(span.unitId));
+      lo.push(`'${isoMicros(span.loMs)}'`);
+      hi.push(`'${isoMicros(span.hiMs)}'`);
     }
-    const { rows } = await this.client.query(
-      `SELECT EXISTS (SELECT 1 FROM unnest($1::text[], $2::timestamptz[], $3::timestamptz[]) AS u(unit_id, lo, hi)
-         WHERE EXISTS (SELECT 1 FROM rings r WHERE r.unit_id = u.unit_id AND r.ts BETWEEN u.lo AND u.hi)) AS overlap`,
-      [ids, lo, hi],
-    );
-    return rows[0].overlap as boolean;
+    const body = `BEGIN IF EXISTS (SELECT 1 FROM unnest(ARRAY[${ids.join(',')}]::text[], ARRAY[${lo.join(',')}]::timestamptz[], ARRAY[${hi.join(',')}]::timestamptz[]) AS u(unit_id, lo, hi)
+       WHERE EXISTS (SELECT 1 FROM rings r WHERE r.unit_id = u.unit_id AND r.ts BETWEEN u.lo AND u.hi))
+     THEN RAISE EXCEPTION USING ERRCODE = 'unique_violation', MESSAGE = 'a stored ring lies inside the time span of this chunk'; END IF; END`;
+    // Unit ids are quoted literals; the block's own quote tag must not occur inside it.
+    return body.includes('$span$') ? null : `DO $span$ ${body} $span$`;
   }
 
   private async staged(body: Buffer, count: number): Promise<ChunkResult> {
+    await this.ensureBegun();
     await this.client.query(`CREATE TEMP TABLE IF NOT EXISTS ${STAGE} (LIKE rings INCLUDING DEFAULTS) ON COMMIT DELETE ROWS`);
     await copyBinary(this.client, STAGE, body);
     const { rows } = await this.client.query<{ unit_id: string; n: number }>(
-      `WITH ins AS (INSERT INTO rings (${RING_COLUMNS}) SELECT ${RING_COLUMNS} FROM ${STAGE} ON CONFLICT DO NOTHING RETURNING unit_id)
+      // In key order, as the straight copies of other writes go (times only increasing), so two
+      // writes of the same rings wait for each other instead of deadlocking.
+      `WITH ins AS (INSERT INTO rings (${RING_COLUMNS}) SELECT ${RING_COLUMNS} FROM ${STAGE} ORDER BY unit_id, ts ON CONFLICT DO NOTHING RETURNING unit_id)
        SELECT unit_id, count(*)::int AS n FROM ins GROUP BY unit_id`,
     );
     await this.client.query(`TRUNCATE ${STAGE}`);
@@ -340,15 +363,20 @@ export class RingWrite {
     if (count === 0) return { accepted: 0, duplicates: 0 };
     await this.ensureMonths(enc.months);
     const body = enc.finish();
-    if (!(await this.overlaps(enc))) {
-      await this.client.query('SAVEPOINT cansight_chunk');
+    const check = this.spanCheck(enc);
+    if (check !== null) {
+      // One round trip: savepoint, span check, COPY, release (a simple query may hold a COPY;
+      // an error skips the rest of it).
+      const begin = this.begin();
       try {
-        await copyBinary(this.client, 'rings', body);
-        await this.client.query('RELEASE SAVEPOINT cansight_chunk');
+        await copyBinary(this.client, 'rings', body, `${begin}SAVEPOINT cansight_chunk; ${check}; `, '; RELEASE SAVEPOINT cansight_chunk');
         for (const id of enc.units.keys()) this.notifyUnits.add(id);
         return { accepted: count, duplicates: 0 };
       } catch (err) {
-        if ((err as { code?: string }).code !== '23505') throw err;
+        // A ring stored already (23505), or a deadlock with another write of the same rings
+        // in another order (40P01): undo this attempt and take the slow way.
+        const code = (err as { code?: string }).code;
+        if (code !== '23505' && code !== '40P01') throw err;
         await this.client.query('ROLLBACK TO SAVEPOINT cansight_chunk');
       }
     }
@@ -360,13 +388,16 @@ export class RingWrite {
     this.assertUsable();
     const unitIds = [...this.notifyUnits].sort();
     try {
-      if (unitIds.length) {
-        let payload = JSON.stringify(unitIds);
-        if (Buffer.byteLength(payload) > NOTIFY_PAYLOAD_MAX_BYTES) payload = '*';
-        // Delivered by PostgreSQL only when the transaction commits.
-        await this.client.query('SELECT pg_notify($1, $2)', [NEW_RINGS_CHANNEL, payload]);
+      if (this.begun) {
+        let notify = '';
+        if (unitIds.length) {
+          let payload = JSON.stringify(unitIds);
+          if (Buffer.byteLength(payload) > NOTIFY_PAYLOAD_MAX_BYTES) payload = '*';
+          // Delivered by PostgreSQL only when the transaction commits.
+          notify = `SELECT pg_notify(${pg.escapeLiteral(NEW_RINGS_CHANNEL)}, ${pg.escapeLiteral(payload)}); `;
+        }
+        await this.client.query(`${notify}COMMIT`);
       }
-      await this.client.query('COMMIT');
     } catch (err) {
       await this.rollback();
       throw err;
@@ -381,7 +412,7 @@ export class RingWrite {
   async rollback(): Promise<void> {
     if (this.finished) return;
     let broken = this.lostConnection !== null;
-    if (!broken) {
+    if (!broken && this.begun) {
       try {
         await this.client.query('ROLLBACK');
       } catch {

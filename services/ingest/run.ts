@@ -61,7 +61,7 @@ export class IngestRun {
    */
   async unitVersions(unitId: string): Promise<ConfigVersionRecord[]> {
     const w = await this.session();
-    return createUnitsRepository(w.connection as unknown as pg.Pool).versions(unitId);
+    return createUnitsRepository((await w.connection()) as unknown as pg.Pool).versions(unitId);
   }
 
   reject(index: number, field: string, reason: string): void {

@@ -1,7 +1,9 @@
 /**
- * The rings repository's write path under concurrency: two writes of overlapping rings at the
- * same time store each ring once with exact counts, and making a new month's partition does not
- * wait for another write that is still open.
+ * The rings repository's write path: a chunk goes straight into the ring table unless it holds a
+ * ring twice, a stored ring lies in its time span, or another write stores one of its rings
+ * meanwhile; in every case each ring is stored once with exact counts. Two writes of
+ * overlapping rings at the same time, and making a new month's partition without waiting for
+ * another write that is still open.
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { RingCopyEncoder, RingWrite, countRings, readRings, type RingRow } from '../../services/db/rings.ts';
@@ -59,5 +61,62 @@ describe('RingWrite', () => {
     expect(await later.write(encode([row('part-1', Date.UTC(2011, 1, 4))]))).toEqual({ accepted: 1, duplicates: 0 });
     await later.commit();
     expect(await countRings(db.pool, 'part-1')).toBe(3);
+  });
+
+  const times = (unitId: string, seconds: number[]) => seconds.map((x) => row(unitId, T0 + x * 1000));
+  async function writeOnce(rows: RingRow[]): Promise<{ accepted: number; duplicates: number }> {
+    const w = await RingWrite.open(db.pool);
+    const r = await w.write(encode(rows));
+    await w.commit();
+    return r;
+  }
+  const storedSeconds = async (unitId: string) => (await readRings(db.pool, unitId, T0 - 86_400_000, T0 + 86_400_000, 10_000)).map((r) => (r.tsMs - T0) / 1000);
+
+  it('a re-sent chunk, a chunk overlapping stored rings, a ring twice in one chunk: each stored once, exact counts', async () => {
+    const u = 'fall-1';
+    expect(await writeOnce(times(u, [0, 1, 2, 3]))).toEqual({ accepted: 4, duplicates: 0 });
+    expect(await writeOnce(times(u, [0, 1, 2, 3]))).toEqual({ accepted: 0, duplicates: 4 });
+    expect(await writeOnce(times(u, [2, 3, 4, 5]))).toEqual({ accepted: 2, duplicates: 2 });
+    expect(await writeOnce(times(u, [6, 7, 5, 7, 8]))).toEqual({ accepted: 3, duplicates: 2 });
+    // Stored rings inside the chunk's span but none of its times: all of it is new.
+    expect(await writeOnce(times(u, [-1, 2.5, 9]))).toEqual({ accepted: 3, duplicates: 0 });
+    expect(await storedSeconds(u)).toEqual([-1, 0, 1, 2, 2.5, 3, 4, 5, 6, 7, 8, 9]);
+  });
+
+  it('several chunks in one write, some going the slow way, commit together', async () => {
+    const u = 'fall-2';
+    await writeOnce(times(u, [10, 11]));
+    const w = await RingWrite.open(db.pool);
+    expect(await w.write(encode(times(u, [0, 1, 2])))).toEqual({ accepted: 3, duplicates: 0 });
+    expect(await w.write(encode(times(u, [2, 3, 10])))).toEqual({ accepted: 1, duplicates: 2 });
+    expect(await w.write(encode(times(u, [4, 5])))).toEqual({ accepted: 2, duplicates: 0 });
+    expect(await countRings(db.pool, u)).toBe(2); // nothing visible before commit
+    expect(await w.commit()).toEqual({ unitIds: [u] });
+    expect(await storedSeconds(u)).toEqual([0, 1, 2, 3, 4, 5, 10, 11]);
+  });
+
+  it('unit ids with quotes and backslashes go through the span check as literals', async () => {
+    const u = "o'hare \\ $span$ 'x";
+    expect(await writeOnce(times(u, [0, 1]))).toEqual({ accepted: 2, duplicates: 0 });
+    expect(await writeOnce(times(u, [1, 2]))).toEqual({ accepted: 1, duplicates: 1 });
+    expect(await countRings(db.pool, u)).toBe(3);
+  });
+
+  it('concurrent writes of overlapping rings, each committing when its chunk is written: the union stored once, counts adding up', async () => {
+    const u = 'fall-3';
+    const sets = [[0, 1, 2, 3, 4], [3, 4, 5, 6], [6, 7, 0], [1, 8, 9], [9, 2, 10]];
+    const writes = await Promise.all(sets.map(() => RingWrite.open(db.pool)));
+    // Whichever copies a ring first holds it; the others wait for that write to commit, then
+    // take their chunk the slow way.
+    const results = await Promise.all(
+      sets.map(async (set, i) => {
+        const r = await writes[i].write(encode(times(u, set)));
+        await writes[i].commit();
+        return r;
+      }),
+    );
+    expect(results.reduce((a, r) => a + r.accepted, 0)).toBe(11);
+    expect(results.reduce((a, r) => a + r.accepted + r.duplicates, 0)).toBe(sets.flat().length);
+    expect(await storedSeconds(u)).toEqual([0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10]);
   });
 });
