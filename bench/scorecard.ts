@@ -12,8 +12,12 @@
  * the full setting. Prints the table; the last line is one JSON object.
  *
  *   npm run scorecard     SCORECARD_UNITS (20), SCORECARD_DAYS (30), SCORECARD_REFERENCE_DAYS (9),
- *                         SCORECARD_SEED (1), SCORECARD_END (2026-11-01T00:00:00Z)
+ *                         SCORECARD_SEED (1), SCORECARD_END (2026-11-01T00:00:00Z),
+ *                         SCORECARD_ONLY (unit ids, comma-separated: run just those units of the
+ *                         seeded fleet, with the faults they have in the whole fleet),
+ *                         SCORECARD_ALERTS_OUT (file: every alert read back, as JSON)
  */
+import { writeFileSync } from 'node:fs';
 import { loadConfig } from '../services/db/config.ts';
 import { startThrowawayPostgres } from '../services/db/embedded.ts';
 import { createLogger } from '../services/db/logger.ts';
@@ -49,10 +53,14 @@ async function main(): Promise<void> {
   try {
     await migrate(pool);
     const config = loadConfig({ CANSIGHT_BASELINE_AUTO_DAYS: '7', ...process.env, LOG_LEVEL: process.env.SCORECARD_LOG_LEVEL ?? 'warn', HOST: '127.0.0.1', PORT: '0', CANSIGHT_RATE_LIMIT_PER_MIN: '10000000' });
-    const fleet = scorecardFleet({ seed: SEED, units: UNITS, referenceDays: REFERENCE_DAYS, days: DAYS, end: END });
+    const whole = scorecardFleet({ seed: SEED, units: UNITS, referenceDays: REFERENCE_DAYS, days: DAYS, end: END });
+    const only = process.env.SCORECARD_ONLY ? new Set(process.env.SCORECARD_ONLY.split(',').map((x) => x.trim())) : null;
+    const fleet = only ? { ...whole, units: whole.units.filter((u) => only.has(u.config.id)), healthy: whole.healthy.filter((id) => only.has(id)) } : whole;
+    if (fleet.units.length === 0) throw new Error(`SCORECARD_ONLY names no unit of the fleet (${whole.units.map((u) => u.config.id).join(', ')})`);
     say(`scorecard: ${UNITS} units, ${REFERENCE_DAYS} + ${DAYS} days, seed ${SEED}, baseline after ${config.worker.baselineAutoDays} days of steady data`);
     const run = await runScorecard({ pool, config, logger: createLogger(config.logLevel), fleet, steadyIntervalS: 60, say });
     process.stdout.write(formatScorecard(run.figures) + '\n');
+    if (process.env.SCORECARD_ALERTS_OUT) writeFileSync(process.env.SCORECARD_ALERTS_OUT, JSON.stringify(run.alerts, null, 1));
     process.stdout.write(`\n${run.rings} rings through ingest and the worker in ${Math.round(run.seconds)} s\n`);
     const met = floorsMet(run.figures);
     process.stdout.write(`floors (${JSON.stringify(SCORECARD_FLOORS)}): ${Object.entries(met).map(([k, v]) => `${k} ${v ? 'met' : 'NOT met'}`).join(', ')}\n`);

@@ -9,9 +9,9 @@ import { baselineAt, type UnitBaseline } from './baseline.ts';
 import { attributeChamber, type ChamberAttribution } from './chambers.ts';
 import type { CusumState, DriftRate } from './drift.ts';
 import { removeCommonMode } from './drift.ts';
-import type { RingAnalysis } from './ring.ts';
+import type { BaselineResiduals, RingAnalysis } from './ring.ts';
 import { VALIDITY, VALIDITY_REASONS, type ValidityReason } from './types.ts';
-import type { WindowVerdict } from './validity.ts';
+import { loneThermocouple, type WindowVerdict } from './validity.ts';
 
 export type FindingKind = 'thermocouple_fault' | 'coverage_degraded' | 'spread_high' | 'spread_jump' | 'chamber_cold' | 'chamber_hot' | 'chamber_drift';
 export type Grade = 'notice' | 'warning' | 'alarm' | 'critical';
@@ -154,6 +154,20 @@ export interface FindingInput {
   steady: boolean;
   history?: FindingHistory;
   baseline?: UnitBaseline | null;
+  /**
+   * Departures from the baseline at this load, when there is one (ring.ts baselineResiduals):
+   * per thermocouple, per chamber (the chamber map of the thermocouples' pattern, without a
+   * thermocouple that departs alone) and that thermocouple. Without them a chamber's residual
+   * is its deviation less its chamber baseline.
+   */
+  residuals?: Pick<BaselineResiduals, 'thermocoupleDegC' | 'chamberDegC' | 'lone'> | null;
+  /**
+   * The plume kernel's response at each thermocouple's left and right neighbour, relative to
+   * its peak (UnitContext.responseLeft / responseRight): how much of a chamber's plume peaking
+   * on a thermocouple its neighbours must see. With it, a departure that stays on one
+   * thermocouple is reported as that sensor's, not as a chamber's.
+   */
+  plumeShare?: { left: ArrayLike<number>; right: ArrayLike<number> };
   /** Drift state per chamber and per thermocouple (index 0 = number 1). */
   drift?: { chambers?: readonly (ChamberDriftInput | null | undefined)[]; thermocouples?: readonly (ChamberDriftInput | null | undefined)[] };
   thresholds?: Partial<Thresholds>;
@@ -189,7 +203,34 @@ export function evaluateFindings(input: FindingInput): Finding[] {
   spreadFindings(input, t, version, out);
   chamberFindings(input, t, version, out);
   driftFindings(input, t, version, out);
-  return out.sort((x, y) => gradeRank(y.grade) - gradeRank(x.grade));
+  return foldSpreadIntoChamber(out, a.chamberCount).sort((x, y) => gradeRank(y.grade) - gradeRank(x.grade));
+}
+
+/**
+ * One event, one alert: a high spread or a spread jump that a chamber finding of the same ring
+ * explains (it names that chamber or the one beside it) is folded into the chamber finding,
+ * whose evidence and message then carry the spread and whose grade is the more severe of the
+ * two (ISA-18.2 designed suppression of consequential alarms; a lost flame otherwise raises a
+ * chamber alert, a spread alert and a jump alert at once).
+ */
+function foldSpreadIntoChamber(findings: Finding[], n: number): Finding[] {
+  const chambers = findings.filter((f) => (f.kind === 'chamber_cold' || f.kind === 'chamber_hot') && f.chamber !== null);
+  if (chambers.length === 0) return findings;
+  const near = (a: number, b: number) => a === b || (a - b + n) % n === 1 || (b - a + n) % n === 1;
+  return findings.filter((f) => {
+    if ((f.kind !== 'spread_high' && f.kind !== 'spread_jump') || f.chamber === null) return true;
+    const host = chambers.find((c) => near(c.chamber as number, f.chamber as number));
+    if (!host) return true;
+    host.grade = maxGrade(host.grade, f.grade);
+    if (f.kind === 'spread_high') {
+      host.evidence = { ...host.evidence, spreadDegC: f.evidence.spreadDegC, spreadLimitDegC: f.evidence.limitDegC };
+      host.message += `; exhaust spread ${f.evidence.spreadDegC} °C is over its limit ${f.evidence.limitDegC} °C`;
+    } else {
+      host.evidence = { ...host.evidence, spreadJumpDegC: f.evidence.jumpDegC };
+      host.message += `; exhaust spread changed by ${f.evidence.jumpDegC} °C since the previous steady ring`;
+    }
+    return false;
+  });
 }
 
 function tcFinding(tc: number, grade: Grade, reason: ValidityReason, evidence: Finding['evidence'], version: number | null, message: string): Finding {
@@ -234,6 +275,23 @@ function thermocoupleFindings(input: FindingInput, t: Thresholds, version: numbe
       out.push(tcFinding(tc, 'warning', reason, {}, version, `thermocouple ${tc} is ${reason.replace('_', ' ')}`));
       seen.add(tc);
     }
+  }
+  const lone = input.baseline ? input.residuals?.lone ?? null : null;
+  if (lone && !seen.has(lone.thermocouple)) {
+    const tc = lone.thermocouple;
+    const res = input.residuals!.thermocoupleDegC;
+    const [l, r] = [(tc - 2 + a.thermocoupleCount) % a.thermocoupleCount, tc % a.thermocoupleCount];
+    out.push(
+      tcFinding(
+        tc,
+        'warning',
+        'drifting_alone',
+        { residualDegC: r1(lone.residualDegC), leftNeighbourResidualDegC: r1(res[l]), rightNeighbourResidualDegC: r1(res[r]), loadFraction: r3(a.loadFraction) },
+        version,
+        `thermocouple ${tc} reads ${r1(Math.abs(lone.residualDegC))} °C ${lone.residualDegC < 0 ? 'below' : 'above'} its normal at this load while its neighbours hold: the sensor, not a chamber`,
+      ),
+    );
+    seen.add(tc);
   }
   for (const v of h.windowVerdicts ?? []) {
     if (v.reason === 'valid' || seen.has(v.thermocouple)) continue;
@@ -341,13 +399,15 @@ function chamberFindings(input: FindingInput, t: Thresholds, version: number | n
   const resid = new Float64Array(n);
   const scale = new Float64Array(n);
   let usedBaseline = false;
+  const mapped = input.baseline ? input.residuals?.chamberDegC ?? null : null;
   for (let k = 0; k < n; k++) {
     const dev = a.chamberDeviationDegC[k];
     const b = input.baseline && input.baseline.chambers[k] ? baselineAt(input.baseline.chambers[k], a.loadFraction) : null;
     if (b) usedBaseline = true;
-    resid[k] = b ? dev - b.median : dev;
+    resid[k] = mapped ? (Number.isFinite(dev) ? mapped[k] : NaN) : b ? dev - b.median : dev;
     scale[k] = b ? b.scale : 0;
   }
+  if (mapped) usedBaseline = true;
   const cm = removeCommonMode(resid);
   const r = cm.residualsDegC;
   const factor = usedBaseline ? 1 : t.noBaselineChamberFactor;
@@ -406,19 +466,45 @@ function chamberAdvice(ch: number, cold: boolean, grade: Grade): string {
 
 function driftFindings(input: FindingInput, t: Thresholds, version: number | null, out: Finding[]): void {
   const chambers = input.drift?.chambers ?? [];
+  const sensors = input.drift?.thermocouples ?? [];
+  const rateOf = (d: ChamberDriftInput | null | undefined) => (d && d.rate && d.rate.significant ? d.rate.per30DaysDegC : 0);
+  // A thermocouple drifting alone (its neighbours hold) explains the chamber drift the map makes of it.
+  const share = input.plumeShare;
+  const m = sensors.length;
+  let lone: { index: number; value: number } | null = null;
+  if (share && m >= 3) {
+    const rates = new Float64Array(m);
+    for (let i = 0; i < m; i++) {
+      const d = sensors[i];
+      rates[i] = d && d.rate ? d.rate.per30DaysDegC : NaN;
+    }
+    lone = loneThermocouple(rates, m, share.left, share.right, t.driftWarningDegCPer30Days);
+    if (lone && !sensors[lone.index]?.rate?.significant) lone = null;
+  }
+  const explained: number[] = [];
   for (let k = 0; k < chambers.length; k++) {
     const d = chambers[k];
     if (!d) continue;
+    const rate = d.rate;
+    const mag = Math.abs(rateOf(d));
+    let grade: Grade | null = null;
+    if (mag >= t.driftAlarmDegCPer30Days) grade = 'alarm';
+    else if (mag >= t.driftWarningDegCPer30Days) grade = 'warning';
+    // A CUSUM signal alone (no significant rate at the warning level) is shown with the trend, not raised.
+    if (!grade || !rate) continue;
+    // One plume drifting shows on the chambers either side too: only the strongest is reported.
+    const n = chambers.length;
+    const sign = Math.sign(rate.per30DaysDegC);
+    const l = rateOf(chambers[(k - 1 + n) % n]) * sign;
+    const r = rateOf(chambers[(k + 1) % n]) * sign;
+    if (n > 1 && (l > mag || r > mag)) continue;
+    if (lone) {
+      explained.push(k + 1);
+      continue;
+    }
     const c = d.cusum;
     const cusumSide = c ? (c.lower > c.h ? 'down' : c.upper > c.h ? 'up' : null) : null;
-    const rate = d.rate;
-    const rateMag = rate && rate.significant ? Math.abs(rate.per30DaysDegC) : 0;
-    let grade: Grade | null = null;
-    if (rateMag >= t.driftAlarmDegCPer30Days) grade = 'alarm';
-    else if (rateMag >= t.driftWarningDegCPer30Days) grade = 'warning';
-    else if (cusumSide) grade = 'notice';
-    if (!grade) continue;
-    const cooling = rate && rate.significant && rateMag > 0 ? rate.per30DaysDegC < 0 : cusumSide === 'down';
+    const cooling = rate.per30DaysDegC < 0;
     const ch = k + 1;
     out.push({
       kind: 'chamber_drift',
@@ -429,17 +515,39 @@ function driftFindings(input: FindingInput, t: Thresholds, version: number | nul
       runnerUpChamber: null,
       runnerUpLikelihood: null,
       evidence: {
-        ratePer30DaysDegC: rate ? r1(rate.per30DaysDegC) : null,
-        rateLowPer30DaysDegC: rate ? r1(rate.per30DaysInterval[0]) : null,
-        rateHighPer30DaysDegC: rate ? r1(rate.per30DaysInterval[1]) : null,
-        ratePer1000FiredHoursDegC: rate && rate.per1000FiredHoursDegC !== null ? r1(rate.per1000FiredHoursDegC) : null,
+        ratePer30DaysDegC: r1(rate.per30DaysDegC),
+        rateLowPer30DaysDegC: r1(rate.per30DaysInterval[0]),
+        rateHighPer30DaysDegC: r1(rate.per30DaysInterval[1]),
+        ratePer1000FiredHoursDegC: rate.per1000FiredHoursDegC !== null ? r1(rate.per1000FiredHoursDegC) : null,
         cusumUpper: c ? r1(c.upper) : null,
         cusumLower: c ? r1(c.lower) : null,
         cusumSignal: cusumSide,
       },
       baselineVersion: version,
-      message: `chamber ${ch} is ${cooling ? 'cooling' : 'warming'} against its baseline${rate && rate.significant ? ` at ${r1(rate.per30DaysDegC)} °C per 30 days` : ''}`,
+      message: `chamber ${ch} is ${cooling ? 'cooling' : 'warming'} against its baseline at ${r1(rate.per30DaysDegC)} °C per 30 days`,
       advice: cooling ? `inspect chamber ${ch} fuel nozzle at the next outage` : `inspect chamber ${ch} fuel nozzle tip for erosion or over-fuelling at the next outage`,
     });
+  }
+  if (lone) {
+    const tc = lone.index + 1;
+    const rate = sensors[lone.index]!.rate!;
+    const [li, ri] = [(lone.index - 1 + m) % m, (lone.index + 1) % m];
+    out.push(
+      tcFinding(
+        tc,
+        'warning',
+        'drifting_alone',
+        {
+          ratePer30DaysDegC: r1(rate.per30DaysDegC),
+          rateLowPer30DaysDegC: r1(rate.per30DaysInterval[0]),
+          rateHighPer30DaysDegC: r1(rate.per30DaysInterval[1]),
+          leftNeighbourRatePer30DaysDegC: r1(sensors[li]?.rate?.per30DaysDegC ?? NaN),
+          rightNeighbourRatePer30DaysDegC: r1(sensors[ri]?.rate?.per30DaysDegC ?? NaN),
+          chamberDriftExplained: explained.join(',') || null,
+        },
+        version,
+        `thermocouple ${tc} is drifting ${rate.per30DaysDegC < 0 ? 'down' : 'up'} against its normal at ${r1(rate.per30DaysDegC)} °C per 30 days while its neighbours hold${explained.length ? `; the drift of chamber ${explained.join(', ')} is this sensor's` : ''}`,
+      ),
+    );
   }
 }

@@ -18,6 +18,7 @@ import { arcDistanceDeg, chamberAnglesDeg, chamberPitchDeg, thermocoupleAnglesDe
 import { emptySpread, spreadInto, type SpreadMetrics } from './spread.ts';
 import { madOfSorted, medianOfSorted, sortPrefixInPlace } from './stats.ts';
 import { swirlDeg } from './swirl.ts';
+import { baselineAt, type UnitBaseline } from './baseline.ts';
 import { checkUnitConfig, MAX_THERMOCOUPLES } from './unit-config.ts';
 import { VALIDITY, VALIDITY_REASONS, type PlumeKernel, type Reading, type UnitConfig, type ValidityReason } from './types.ts';
 import {
@@ -25,6 +26,7 @@ import {
   coverageInto,
   defaultCoverageOptions,
   defaultValidityOptions,
+  loneThermocouple,
   markIsolatedOutliers,
   type Coverage,
   type CoverageOptions,
@@ -50,6 +52,13 @@ export interface AnalysisOptions {
   minValidForChambers: number;
   /** Uncertainty of the swirl angle, degrees: sets how the runner-up chamber's likelihood falls off. */
   swirlUncertaintyDeg: number;
+  /**
+   * A thermocouple this far from its own normal while its neighbours hold is reported as a
+   * sensor and left out of the chamber residual map, °C. Engineering judgement: 15 °C is three
+   * times the IEC 60584-1 class 2 tolerance at 600 °C (±4.5 °C), far beyond a healthy
+   * probe's day-to-day wander against its own normal.
+   */
+  loneSensorMinDegC: number;
 }
 
 /** Defaults: engineering judgement unless stated in the field's own comment. */
@@ -64,6 +73,7 @@ export const defaultAnalysisOptions: AnalysisOptions = {
   residualFloorDegC: 1,
   minValidForChambers: 3,
   swirlUncertaintyDeg: 8,
+  loneSensorMinDegC: 15,
 };
 
 /** Options that may be given in part; nested groups are merged field by field. */
@@ -461,4 +471,71 @@ export function ringAnalysisToJson(a: RingAnalysis): RingAnalysisJson {
     runnerUpChamber: a.runnerUpChamber,
     runnerUpLikelihood: num(a.runnerUpLikelihood),
   };
+}
+
+/** Departures of one analysed ring from the unit's baseline at its load. */
+export interface BaselineResiduals {
+  /** Per thermocouple: its deviation less its own normal at this load (NaN: invalid, or no normal here). */
+  thermocoupleDegC: Float64Array;
+  /**
+   * Per chamber: the chamber map of that pattern, without the thermocouple that departs alone
+   * (null: too few thermocouples with a residual).
+   */
+  chamberDegC: Float64Array | null;
+  /**
+   * A thermocouple at least `loneSensorMinDegC` from its normal while its neighbours hold
+   * (validity.ts loneThermocouple), numbered from 1: a sensor's error, which the chamber map
+   * would otherwise spread over the chambers near it as cold and hot plumes.
+   */
+  lone: { thermocouple: number; residualDegC: number } | null;
+}
+
+/** The ring's departures from the baseline: thermocouple residuals, a lone one, and their chamber map. */
+export function baselineResiduals(ctx: UnitContext, a: RingAnalysis, baseline: UnitBaseline): BaselineResiduals {
+  const tc = new Float64Array(ctx.m).fill(NaN);
+  for (let i = 0; i < ctx.m; i++) {
+    const bb = baseline.thermocouples[i] ? baselineAt(baseline.thermocouples[i], a.loadFraction) : null;
+    if (bb) tc[i] = a.deviationDegC[i] - bb.median;
+  }
+  const lone = loneThermocouple(tc, ctx.m, ctx.responseLeft, ctx.responseRight, ctx.options.loneSensorMinDegC);
+  let mapped: Float64Array = tc;
+  if (lone) {
+    mapped = tc.slice();
+    mapped[lone.index] = NaN;
+  }
+  return {
+    thermocoupleDegC: tc,
+    chamberDegC: chamberResidualsFromThermocouples(ctx, a.loadFraction, mapped),
+    lone: lone ? { thermocouple: lone.index + 1, residualDegC: lone.value } : null,
+  };
+}
+
+/**
+ * Chamber residuals from thermocouple residuals: `tcResidualDegC[i]` is thermocouple i's
+ * deviation less its own normal at this load (NaN where it has none or is not usable); the
+ * result is what the chamber map makes of that pattern, through the solver of the ring's load
+ * bin for the thermocouples that have a residual. A healthy chamber's residual stays near zero
+ * whichever thermocouples are usable: leaving a failed or condemned thermocouple out changes
+ * how the ring's built-in asymmetry is mapped (so a chamber map less a chamber baseline fitted
+ * with every thermocouple would move by degrees), but not how departures from normal are.
+ * Returns null when fewer than minValidForChambers thermocouples have a residual.
+ */
+export function chamberResidualsFromThermocouples(ctx: UnitContext, loadFraction: number, tcResidualDegC: ArrayLike<number>): Float64Array | null {
+  const { m, n } = ctx;
+  const usable = new Uint8Array(m);
+  const values = new Float64Array(m);
+  let count = 0;
+  for (let i = 0; i < m; i++) {
+    const v = tcResidualDegC[i];
+    if (Number.isFinite(v)) {
+      usable[i] = 1;
+      values[i] = v;
+      count++;
+    }
+  }
+  if (count < ctx.options.minValidForChambers) return null;
+  const solver = solverFor(ctx, loadBinOf(ctx, loadFraction), usable);
+  const out = { chamberDeviationDegC: new Float64Array(n), chamberUncertaintyDegC: new Float64Array(n), ringLevelDegC: NaN, fitResidualSdDegC: NaN };
+  estimateChambers(solver, values, 0, ctx.options.residualFloorDegC, new Float64Array(m), new Float64Array(n + 1), out);
+  return out.chamberDeviationDegC;
 }

@@ -213,8 +213,15 @@ export interface WindowValidityOptions {
   minRings: number;
   /** Frozen: the reading's range over the window at most this, °C… */
   frozenMaxRangeDegC: number;
-  /** …while the ring mean moved by at least this, °C. */
+  /** …while the ring mean moved by at least this, °C… */
   frozenMinRingMoveDegC: number;
+  /**
+   * …or while both ring neighbours' readings ranged over at least this, °C. A live probe's
+   * reading always moves by some tenths (noise, small changes of the gas), so at steady base
+   * load, when the ring mean hardly moves, a reading stuck to the hundredth beside neighbours
+   * that move by a degree is a frozen value (a failed transmitter, a stale gateway register).
+   */
+  frozenNeighbourMinRangeDegC: number;
   /** Erratic: RMS sample-to-sample change of its residual above this multiple of its neighbours'… */
   erraticRatio: number;
   /** …and above this, °C. */
@@ -240,6 +247,7 @@ export const defaultWindowValidityOptions: WindowValidityOptions = {
   minRings: 10,
   frozenMaxRangeDegC: 0.05,
   frozenMinRingMoveDegC: 3,
+  frozenNeighbourMinRangeDegC: 1,
   erraticRatio: 4,
   erraticMinDegC: 3,
   driftAloneDegC: 15,
@@ -354,7 +362,8 @@ export function windowValidity(
     let reason: ValidityReason = 'valid';
     if (usable[i] >= opts.minRings) {
       const neighbourStep = Math.max(finiteOr(stepRms[l], 0), finiteOr(stepRms[r], 0));
-      if (rangeDeg[i] <= opts.frozenMaxRangeDegC && ringRange[i] >= opts.frozenMinRingMoveDegC) reason = 'frozen';
+      const neighboursMove = finiteOr(rangeDeg[l], 0) >= opts.frozenNeighbourMinRangeDegC && finiteOr(rangeDeg[r], 0) >= opts.frozenNeighbourMinRangeDegC;
+      if (rangeDeg[i] <= opts.frozenMaxRangeDegC && (ringRange[i] >= opts.frozenMinRingMoveDegC || neighboursMove)) reason = 'frozen';
       else if (stepRms[i] > opts.erraticMinDegC && stepRms[i] > opts.erraticRatio * neighbourStep) reason = 'erratic';
       else if (
         loadHeld &&
@@ -376,4 +385,40 @@ function finiteOr(v: number, fallback: number): number {
 /** Reason name of a validity code (e.g. 3 → "isolated_outlier"). */
 export function validityReason(code: number): ValidityReason {
   return VALIDITY_REASONS[code] ?? 'missing';
+}
+
+/**
+ * The thermocouple that departs alone. `values` holds one number per thermocouple (a residual
+ * against its own normal, or a drift rate; NaN where unknown). The candidate is the largest in
+ * magnitude, at least `minMagnitude`; it departs alone when each ring neighbour moved the same
+ * way by less than `fraction` of what a chamber's plume peaking on the candidate would put on
+ * it (`shareLeft[i]` / `shareRight[i]`: the plume kernel's response at the left / right
+ * neighbour of thermocouple i, relative to its peak). Mixing spreads every chamber's plume onto
+ * the next thermocouple by at least that share, wherever the swirl puts it; a failing sensor's
+ * error stays on the sensor. Null when no candidate, or when a neighbour is unknown (no verdict).
+ */
+export function loneThermocouple(
+  values: ArrayLike<number>,
+  m: number,
+  shareLeft: ArrayLike<number>,
+  shareRight: ArrayLike<number>,
+  minMagnitude: number,
+  fraction = 0.5,
+): { index: number; value: number } | null {
+  if (m < 3) return null;
+  let best = -1;
+  for (let i = 0; i < m; i++) {
+    const v = values[i];
+    if (Number.isFinite(v) && Math.abs(v) >= minMagnitude && (best < 0 || Math.abs(v) > Math.abs(values[best]))) best = i;
+  }
+  if (best < 0) return null;
+  const [l, r] = ringNeighbours(best, m);
+  const v = values[best];
+  const sign = v < 0 ? -1 : 1;
+  const vl = values[l];
+  const vr = values[r];
+  if (!Number.isFinite(vl) || !Number.isFinite(vr)) return null;
+  const mag = Math.abs(v);
+  if (sign * vl >= fraction * shareLeft[best] * mag || sign * vr >= fraction * shareRight[best] * mag) return null;
+  return { index: best, value: v };
 }

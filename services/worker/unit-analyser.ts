@@ -6,8 +6,8 @@
  * rebuilds it from stored rings and analysis after a restart or a takeover and the next ring
  * is analysed exactly as it would have been without the interruption. No I/O here.
  */
-import { analyseRing, prepareUnit, type UnitContext } from '../core/ring.ts';
-import { baselineAt, type UnitBaseline } from '../core/baseline.ts';
+import { analyseRing, baselineResiduals, prepareUnit, type UnitContext } from '../core/ring.ts';
+import type { UnitBaseline } from '../core/baseline.ts';
 import { correctedLoadFraction, defaultSteadyStateOptions, steadyState, type SteadyStateOptions } from '../core/correction.ts';
 import { evaluateFindings, gradeRank, spreadLimitDegC, type ChamberDriftInput, type Finding, type Thresholds } from '../core/findings.ts';
 import { VALIDITY } from '../core/types.ts';
@@ -233,20 +233,14 @@ export class UnitAnalyser {
     this.pushCodes(validity);
 
     const b = this.inputs.baseline;
-    let tcResidual: Float64Array | null = null;
-    let chamberResidual: Float64Array | null = null;
-    if (b && st.steady) {
-      tcResidual = new Float64Array(ctx.m).fill(NaN);
-      for (let i = 0; i < ctx.m; i++) {
-        const bb = b.thermocouples[i] ? baselineAt(b.thermocouples[i], load) : null;
-        if (bb) tcResidual[i] = a.deviationDegC[i] - bb.median;
-      }
-      chamberResidual = new Float64Array(ctx.n).fill(NaN);
-      for (let k = 0; k < ctx.n; k++) {
-        const bb = b.chambers[k] ? baselineAt(b.chambers[k], load) : null;
-        if (bb) chamberResidual[k] = a.chamberDeviationDegC[k] - bb.median;
-      }
-    }
+    // Residuals against the baseline at this load: each thermocouple's deviation less its own
+    // normal, and the chamber map of that pattern (chamberResidualsFromThermocouples). Findings
+    // judge every ring in service by them; the stored analysis keeps them for steady rings.
+    const res = b ? baselineResiduals(ctx, a, b) : null;
+    const tcRes = res ? res.thermocoupleDegC : null;
+    const chamberRes = res ? res.chamberDegC : null;
+    const tcResidual = st.steady ? tcRes : null;
+    const chamberResidual = st.steady && tcRes ? (chamberRes ?? new Float64Array(ctx.n).fill(NaN)) : null;
     const limit = spreadLimitDegC(b, load, this.inputs.raise);
 
     let raise: Finding[] | null = null;
@@ -259,8 +253,9 @@ export class UnitAnalyser {
         windowVerdicts: this.verdicts,
       };
       const drift = { chambers: this.inputs.driftChambers, thermocouples: this.inputs.driftThermocouples };
-      raise = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, drift, thresholds: this.inputs.raise });
-      hold = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, drift, thresholds: this.inputs.hold });
+      const plumeShare = { left: ctx.responseLeft, right: ctx.responseRight };
+      raise = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.raise });
+      hold = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.hold });
     }
     // A spread jump is a change between consecutive steady rings: a ring that is not steady (a
     // start, a stop, a load change) ends the comparison, so the first steady ring after it is not
