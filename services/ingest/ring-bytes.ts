@@ -12,9 +12,9 @@
  * other number is read by Number over its text), and the time is computed as parseRfc3339
  * computes it.
  *
- * scanRingBatch checks a whole JSON batch body, { "rings": [ ... ] }, and finds where each ring
- * starts and ends, so each ring can then be read on its own (or parsed on its own when the
- * reader does not take it).
+ * readRingBatch reads a whole JSON batch body, { "rings": [ ... ] }, in one pass: it reads each
+ * ring in the common form and checks the syntax of every other one, and keeps where each ring
+ * starts and ends, so a ring the reader does not take can be parsed on its own.
  */
 import { fahrenheitToCelsius } from '../core/temperature.ts';
 import type { Range } from '../db/config.ts';
@@ -69,16 +69,39 @@ function inside(v: number, r: Range): boolean {
   return v >= r.min && v <= r.max;
 }
 
+const KEY_BYTES: Buffer[] = [];
+for (const k of KEYS) KEY_BYTES[31 - Math.clz32(k.bit)] = k.bytes;
+
+/** `bit` when b[s, s + length) holds the name of that field (lengths already equal), else 0. */
+function same(b: Uint8Array, s: number, bit: number): number {
+  const key = KEY_BYTES[31 - Math.clz32(bit)];
+  for (let i = 0; i < key.length; i++) if (b[s + i] !== key[i]) return 0;
+  return bit;
+}
+
 /** The field bit of the key in b[s, e), or 0 when it is not a ring field written plainly. */
 function keyBit(b: Uint8Array, s: number, e: number): number {
-  const len = e - s;
-  outer: for (let k = 0; k < KEYS.length; k++) {
-    const key = KEYS[k].bytes;
-    if (key.length !== len) continue;
-    for (let i = 0; i < len; i++) if (b[s + i] !== key[i]) continue outer;
-    return KEYS[k].bit;
+  switch (e - s) {
+    case 2:
+      return b[s] === 0x74 && b[s + 1] === 0x73 ? F_TS : 0;
+    case 4:
+      return same(b, s, F_CDT);
+    case 6:
+      return b[s] === 0x75 ? same(b, s, F_UNIT) : b[s] === 0x6c ? same(b, s, F_LOAD) : same(b, s, F_CDP);
+    case 8:
+      if (b[s] === 0x65) return b[s + 7] === 0x43 ? same(b, s, F_EXHAUST_C) : same(b, s, F_EXHAUST_F);
+      return b[s] === 0x61 ? same(b, s, F_AMBIENT_C) : same(b, s, F_SPEED);
+    case 9:
+      return same(b, s, F_EXHAUST_MV);
+    case 10:
+      return same(b, s, F_AMBIENT_KPA);
+    case 11:
+      return same(b, s, F_FUEL);
+    case 13:
+      return b[s] === 0x66 ? same(b, s, F_FLAME) : same(b, s, F_COLD_JUNCTION);
+    default:
+      return 0;
   }
-  return 0;
 }
 
 function isSpace(c: number): boolean {
@@ -159,9 +182,65 @@ function scalarEnd(b: Uint8Array, p: number, end: number): number {
   return numberEnd(b, p, end);
 }
 
-/** A JSON batch body found to be exactly { "rings": [ {…}, … ] }: the body and each ring's span. */
+/**
+ * The end (after the closing brace) of the JSON object at b[p] whose keys are ring fields
+ * written plainly and whose values are scalars or lists of scalars, every token checked as
+ * JSON.parse would; -1 for anything else.
+ */
+function objectEnd(b: Uint8Array, p: number, end: number): number {
+  if (p >= end || b[p] !== LBRACE) return -1;
+  p = skipSpace(b, p + 1, end);
+  if (p < end && b[p] === RBRACE) return p + 1;
+  for (;;) {
+    if (p >= end || b[p] !== QUOTE) return -1;
+    const k = stringEnd(b, p, end);
+    if (k < 0 || keyBit(b, p + 1, k - 1) === 0) return -1;
+    p = skipSpace(b, k, end);
+    if (p >= end || b[p] !== COLON) return -1;
+    p = skipSpace(b, p + 1, end);
+    if (p >= end) return -1;
+    if (b[p] === LBRACKET) {
+      p = skipSpace(b, p + 1, end);
+      if (p < end && b[p] === RBRACKET) p++;
+      else {
+        for (;;) {
+          if (p >= end) return -1;
+          p = scalarEnd(b, p, end);
+          if (p < 0) return -1;
+          p = skipSpace(b, p, end);
+          if (p >= end) return -1;
+          if (b[p] === RBRACKET) {
+            p++;
+            break;
+          }
+          if (b[p] !== COMMA) return -1;
+          p = skipSpace(b, p + 1, end);
+        }
+      }
+    } else {
+      p = scalarEnd(b, p, end);
+      if (p < 0) return -1;
+    }
+    p = skipSpace(b, p, end);
+    if (p >= end) return -1;
+    if (b[p] === RBRACE) return p + 1;
+    if (b[p] !== COMMA) return -1;
+    p = skipSpace(b, p + 1, end);
+  }
+}
+
+/**
+ * A JSON batch body found to be exactly { "rings": [ {…}, … ] }: the body, each ring's span,
+ * and the reader holding the values of every ring in the common form (fast[i] = 1).
+ */
 export class RingBatchBytes {
-  constructor(readonly body: Buffer, readonly starts: number[], readonly ends: number[]) {}
+  constructor(
+    readonly body: Buffer,
+    readonly starts: number[],
+    readonly ends: number[],
+    readonly fast: Uint8Array,
+    readonly reader: RingBytesReader,
+  ) {}
   get length(): number {
     return this.starts.length;
   }
@@ -170,12 +249,13 @@ export class RingBatchBytes {
 const RINGS_KEY = Buffer.from('"rings"', 'latin1');
 
 /**
- * Checks that `body` is a JSON object with the one key "rings" holding a list of objects whose
- * keys are ring fields written plainly and whose values are scalars or lists of scalars (every
- * token checked as JSON.parse would), and returns each ring's span; null for anything else
- * (which then goes to the general JSON parser, for its answer).
+ * Reads a JSON batch body in one pass: it must be an object with the one key "rings" holding a
+ * list of objects whose keys are ring fields written plainly and whose values are scalars or
+ * lists of scalars (every token checked as JSON.parse would). A ring in the common form is read
+ * as it is passed (its values kept in the reader); another is only checked. Null for any other
+ * body, which then goes to the general JSON parser for its answer.
  */
-export function scanRingBatch(body: Buffer): RingBatchBytes | null {
+export function readRingBatch(body: Buffer): RingBatchBytes | null {
   const b = body;
   const end = b.length;
   let p = skipSpace(b, 0, end);
@@ -188,59 +268,30 @@ export function scanRingBatch(body: Buffer): RingBatchBytes | null {
   p = skipSpace(b, p + 1, end);
   if (p >= end || b[p] !== LBRACKET) return null;
   p = skipSpace(b, p + 1, end);
+  const reader = new RingBytesReader();
   const starts: number[] = [];
   const ends: number[] = [];
+  let fast = new Uint8Array(1024);
   if (p < end && b[p] === RBRACKET) p++;
   else {
     for (;;) {
-      if (p >= end || b[p] !== LBRACE) return null;
-      const start = p;
-      p = skipSpace(b, p + 1, end);
-      if (p < end && b[p] === RBRACE) p++;
-      else {
-        for (;;) {
-          if (p >= end || b[p] !== QUOTE) return null;
-          const k = stringEnd(b, p, end);
-          if (k < 0 || keyBit(b, p + 1, k - 1) === 0) return null;
-          p = skipSpace(b, k, end);
-          if (p >= end || b[p] !== COLON) return null;
-          p = skipSpace(b, p + 1, end);
-          if (p >= end) return null;
-          if (b[p] === LBRACKET) {
-            p = skipSpace(b, p + 1, end);
-            if (p < end && b[p] === RBRACKET) p++;
-            else {
-              for (;;) {
-                if (p >= end) return null;
-                p = scalarEnd(b, p, end);
-                if (p < 0) return null;
-                p = skipSpace(b, p, end);
-                if (p >= end) return null;
-                if (b[p] === RBRACKET) {
-                  p++;
-                  break;
-                }
-                if (b[p] !== COMMA) return null;
-                p = skipSpace(b, p + 1, end);
-              }
-            }
-          } else {
-            p = scalarEnd(b, p, end);
-            if (p < 0) return null;
-          }
-          p = skipSpace(b, p, end);
-          if (p >= end) return null;
-          if (b[p] === RBRACE) {
-            p++;
-            break;
-          }
-          if (b[p] !== COMMA) return null;
-          p = skipSpace(b, p + 1, end);
-        }
+      const n = starts.length;
+      if (n === fast.length) {
+        const more = new Uint8Array(n * 2);
+        more.set(fast);
+        fast = more;
       }
-      starts.push(start);
-      ends.push(p);
-      p = skipSpace(b, p, end);
+      let q = reader.readAt(b, p, end);
+      if (q >= 0) {
+        reader.save(n);
+        fast[n] = 1;
+      } else {
+        q = objectEnd(b, p, end);
+        if (q < 0) return null;
+      }
+      starts.push(p);
+      ends.push(q);
+      p = skipSpace(b, q, end);
       if (p >= end) return null;
       if (b[p] === RBRACKET) {
         p++;
@@ -253,7 +304,7 @@ export function scanRingBatch(body: Buffer): RingBatchBytes | null {
   p = skipSpace(b, p, end);
   if (p >= end || b[p] !== RBRACE) return null;
   p = skipSpace(b, p + 1, end);
-  return p === end ? new RingBatchBytes(body, starts, ends) : null;
+  return p === end ? new RingBatchBytes(body, starts, ends, fast.subarray(0, starts.length), reader) : null;
 }
 
 /**
@@ -286,6 +337,11 @@ export class RingBytesReader {
   private readingCount = 0;
   /** Views of `readings` by length, so a row's exhaustC has the ring's own length. */
   private views: Float64Array[] = [];
+  /** Rings of a batch kept by save(): seven integers and eight numbers per ring, and the readings. */
+  private savedInts = new Int32Array(7 * 64);
+  private savedNums = new Float64Array(8 * 64);
+  private savedReadings = new Float64Array(64 * 24);
+  private savedTop = 0;
   private lastUnitBytes: Uint8Array = new Uint8Array(0);
   private lastUnit = '';
   private dayKey = -1;
@@ -296,39 +352,37 @@ export class RingBytesReader {
     const b = this.b;
     const start = p;
     let neg = false;
-    if (b[p] === MINUS) {
+    if (p < end && b[p] === MINUS) {
       neg = true;
       p++;
     }
     if (p >= end) return -1;
-    let c = b[p];
+    let d = b[p] - D0;
     let m = 0;
     let digits = 0;
-    let frac = 0;
-    if (c === D0) p++;
-    else if (c > D0 && c <= D9) {
-      while (p < end) {
-        c = b[p];
-        if (c < D0 || c > D9) break;
-        m = m * 10 + (c - D0);
+    if (d === 0) p++;
+    else if (d > 0 && d <= 9) {
+      do {
+        m = m * 10 + d;
         digits++;
-        p++;
-      }
+        if (++p === end) break;
+        d = b[p] - D0;
+      } while (d >= 0 && d <= 9);
     } else return -1;
+    let frac = 0;
     if (p < end && b[p] === DOT) {
-      p++;
-      const f0 = p;
+      const f0 = ++p;
       while (p < end) {
-        c = b[p];
-        if (c < D0 || c > D9) break;
-        m = m * 10 + (c - D0);
+        d = b[p] - D0;
+        if (d < 0 || d > 9) break;
+        m = m * 10 + d;
         p++;
       }
       frac = p - f0;
       if (frac === 0) return -1;
       digits += frac;
     }
-    if (p < end && (b[p] === 0x65 || b[p] === 0x45)) {
+    if (p < end && (b[p] | 0x20) === 0x65) {
       p = numberEnd(b, start, end);
       if (p < 0) return -1;
       this.num = Number(b.toString('latin1', start, p));
@@ -361,23 +415,32 @@ export class RingBytesReader {
       this.readingCount = 0;
       return p + 1;
     }
+    let out = this.readings;
     for (;;) {
       if (p >= end) return -1;
-      if (n === this.readings.length) {
+      if (n === out.length) {
         const more = new Float64Array(n * 2);
-        more.set(this.readings);
-        this.readings = more;
+        more.set(out);
+        this.readings = out = more;
         this.views = [];
       }
       if (b[p] === 0x6e) {
         p = literal(b, p, end, 'null');
         if (p < 0) return -1;
-        this.readings[n++] = NaN;
+        out[n++] = NaN;
       } else {
         p = this.number(p, end);
         if (p < 0) return -1;
-        this.readings[n++] = this.num;
+        out[n++] = this.num;
       }
+      if (p >= end) return -1;
+      let c = b[p];
+      if (c === COMMA) {
+        c = b[++p];
+        if (c === 0x20 || c === 0x0a || c === 0x0d || c === 0x09) p = skipSpace(b, p, end);
+        continue;
+      }
+      if (c === RBRACKET) break;
       p = skipSpace(b, p, end);
       if (p >= end) return -1;
       if (b[p] === RBRACKET) break;
@@ -403,42 +466,50 @@ export class RingBytesReader {
    * ring in the common form. Its values are checked by check().
    */
   read(b: Buffer, start: number, end: number): boolean {
+    const q = this.readAt(b, skipSpace(b, start, end), end);
+    return q >= 0 && skipSpace(b, q, end) === end;
+  }
+
+  /**
+   * Reads the JSON object that starts at b[p] (before `end`): the index after its closing brace
+   * when it is a ring in the common form, else -1.
+   */
+  readAt(b: Buffer, p: number, end: number): number {
     this.b = b;
     this.seen = 0;
     this.cdtC = null;
     this.cdpKPa = null;
     this.fuelFlowKgS = null;
     this.flame = null;
-    let p = skipSpace(b, start, end);
-    if (p >= end || b[p] !== LBRACE) return false;
+    if (p >= end || b[p] !== LBRACE) return -1;
     p = skipSpace(b, p + 1, end);
     for (;;) {
-      if (p >= end || b[p] !== QUOTE) return false;
+      if (p >= end || b[p] !== QUOTE) return -1;
       const ks = p + 1;
       let q = ks;
       while (q < end && b[q] !== QUOTE) q++;
-      if (q >= end) return false;
+      if (q >= end) return -1;
       const bit = keyBit(b, ks, q);
-      if (bit === 0 || (this.seen & bit) !== 0) return false;
+      if (bit === 0 || (this.seen & bit) !== 0) return -1;
       this.seen |= bit;
       p = skipSpace(b, q + 1, end);
-      if (p >= end || b[p] !== COLON) return false;
+      if (p >= end || b[p] !== COLON) return -1;
       p = skipSpace(b, p + 1, end);
-      if (p >= end) return false;
+      if (p >= end) return -1;
       switch (bit) {
         case F_UNIT: {
-          if (b[p] !== QUOTE) return false;
+          if (b[p] !== QUOTE) return -1;
           const s = p + 1;
           p++;
           while (p < end && ((b[p] >= 0x61 && b[p] <= 0x7a) || (b[p] >= D0 && b[p] <= D9) || b[p] === MINUS)) p++;
-          if (p >= end || b[p] !== QUOTE || p === s || p - s > 40) return false;
+          if (p >= end || b[p] !== QUOTE || p === s || p - s > 40) return -1;
           this.unitStart = s;
           this.unitEnd = p;
           p++;
           break;
         }
         case F_TS:
-          if (b[p] !== QUOTE) return false;
+          if (b[p] !== QUOTE) return -1;
           this.tsStart = p + 1;
           p = this.plainText(p, end);
           this.tsEnd = p - 1;
@@ -482,19 +553,88 @@ export class RingBytesReader {
           break;
         case F_EXHAUST_C:
         case F_EXHAUST_F:
-          if (b[p] !== LBRACKET) return false;
+          if (b[p] !== LBRACKET) return -1;
           p = this.list(p, end);
           break;
         default:
-          return false;
+          return -1;
       }
-      if (p < 0) return false;
+      if (p < 0) return -1;
       p = skipSpace(b, p, end);
-      if (p >= end) return false;
-      if (b[p] === RBRACE) return skipSpace(b, p + 1, end) === end;
-      if (b[p] !== COMMA) return false;
+      if (p >= end) return -1;
+      if (b[p] === RBRACE) return p + 1;
+      if (b[p] !== COMMA) return -1;
       p = skipSpace(b, p + 1, end);
     }
+  }
+
+  /** Keeps the values of the ring just read as ring `slot` of a batch (slots in increasing order). */
+  save(slot: number): void {
+    while ((slot + 1) * 7 > this.savedInts.length) {
+      const ints = new Int32Array(this.savedInts.length * 2);
+      ints.set(this.savedInts);
+      this.savedInts = ints;
+      const nums = new Float64Array(this.savedNums.length * 2);
+      nums.set(this.savedNums);
+      this.savedNums = nums;
+    }
+    const n = this.readingCount;
+    if (this.savedTop + n > this.savedReadings.length) {
+      const more = new Float64Array(Math.max(this.savedReadings.length * 2, this.savedTop + n));
+      more.set(this.savedReadings.subarray(0, this.savedTop));
+      this.savedReadings = more;
+    }
+    const i = slot * 7;
+    const ints = this.savedInts;
+    ints[i] = this.seen;
+    ints[i + 1] = this.tsStart;
+    ints[i + 2] = this.tsEnd;
+    ints[i + 3] = this.unitStart;
+    ints[i + 4] = this.unitEnd;
+    ints[i + 5] = this.savedTop;
+    ints[i + 6] = n;
+    const f = slot * 8;
+    const nums = this.savedNums;
+    nums[f] = this.loadMw;
+    nums[f + 1] = this.ambientC;
+    nums[f + 2] = this.ambientKPa;
+    nums[f + 3] = this.speedPct;
+    nums[f + 4] = this.cdtC ?? NaN;
+    nums[f + 5] = this.cdpKPa ?? NaN;
+    nums[f + 6] = this.fuelFlowKgS ?? NaN;
+    nums[f + 7] = this.flame === null ? -1 : this.flame ? 1 : 0;
+    this.savedReadings.set(this.readings.subarray(0, n), this.savedTop);
+    this.savedTop += n;
+  }
+
+  /** Makes ring `slot` of the batch in `b` the ring read, as save() kept it. */
+  load(b: Buffer, slot: number): void {
+    this.b = b;
+    const i = slot * 7;
+    const ints = this.savedInts;
+    this.seen = ints[i];
+    this.tsStart = ints[i + 1];
+    this.tsEnd = ints[i + 2];
+    this.unitStart = ints[i + 3];
+    this.unitEnd = ints[i + 4];
+    const from = ints[i + 5];
+    const n = ints[i + 6];
+    const f = slot * 8;
+    const nums = this.savedNums;
+    this.loadMw = nums[f];
+    this.ambientC = nums[f + 1];
+    this.ambientKPa = nums[f + 2];
+    this.speedPct = nums[f + 3];
+    this.cdtC = nums[f + 4] === nums[f + 4] ? nums[f + 4] : null;
+    this.cdpKPa = nums[f + 5] === nums[f + 5] ? nums[f + 5] : null;
+    this.fuelFlowKgS = nums[f + 6] === nums[f + 6] ? nums[f + 6] : null;
+    this.flame = nums[f + 7] < 0 ? null : nums[f + 7] === 1;
+    if (n > this.readings.length) {
+      this.readings = new Float64Array(n);
+      this.views = [];
+    }
+    this.readings.set(this.savedReadings.subarray(from, from + n));
+    this.readingCount = n;
   }
 
   /** Whether the ring read names a unit. */

@@ -31,7 +31,7 @@ import { ErrorReply } from '../api/schemas.ts';
 import type { Config } from '../db/config.ts';
 import { IngestRun, type IngestTally } from './run.ts';
 import { ingestCsv, ingestNdjson, type StreamIngestOptions } from './streams.ts';
-import { RingBatchBytes, RingBytesReader, scanRingBatch } from './ring-bytes.ts';
+import { RingBatchBytes, readRingBatch } from './ring-bytes.ts';
 import { isRejection, thermocoupleCounter, validateRing, type ValidationContext } from './validate.ts';
 import { IngestReply, RingBatchBody, UnitRingsParams } from './schemas.ts';
 
@@ -104,13 +104,13 @@ export async function ingestRoutes(app: FastifyInstance): Promise<void> {
   app.addContentTypeParser(STREAM_TYPES, (_request, payload, done) => done(null, payload));
 
   // JSON: a body of the form { "rings": [ {…}, … ] } whose rings hold only ring fields and
-  // scalar values is checked and cut into rings here, and each ring is then read from its bytes
-  // (RingBatchBytes); any other body goes to Fastify's own JSON parser, with its answers.
+  // scalar values is read here straight from its bytes (RingBatchBytes); any other body goes to
+  // Fastify's own JSON parser, with its answers.
   const defaultJson = app.getDefaultJsonParser(app.initialConfig.onProtoPoisoning ?? 'error', app.initialConfig.onConstructorPoisoning ?? 'error');
   app.addContentTypeParser('application/json', { parseAs: 'buffer', bodyLimit: config.ingest.bodyLimitBytes }, (request, body, done) => {
     const buf = body as Buffer;
-    const scanned = scanRingBatch(buf);
-    if (scanned !== null) done(null, scanned);
+    const read = readRingBatch(buf);
+    if (read !== null) done(null, read);
     else defaultJson(request, buf.toString('utf8'), done);
   });
 
@@ -147,13 +147,15 @@ export async function ingestRoutes(app: FastifyInstance): Promise<void> {
         }
         return;
       }
-      // Each ring from its bytes; one the reader does not take is parsed and validated alone.
-      const { body: buf, starts, ends } = body as RingBatchBytes;
-      const reader = new RingBytesReader();
+      // Rings read from the bytes are checked here; any other ring is parsed and validated alone.
+      const { body: buf, starts, ends, fast, reader } = body as RingBatchBytes;
       for (let i = 0; i < starts.length; i++) {
-        if (reader.read(buf, starts[i], ends[i]) && (!reader.namesUnit || reader.unitId() === unitId) && reader.check(unitId, ctx)) {
-          if (run.add(reader.row)) await run.flush();
-          continue;
+        if (fast[i] === 1) {
+          reader.load(buf, i);
+          if ((!reader.namesUnit || reader.unitId() === unitId) && reader.check(unitId, ctx)) {
+            if (run.add(reader.row)) await run.flush();
+            continue;
+          }
         }
         const v = validateRing(JSON.parse(buf.toString('utf8', starts[i], ends[i])), unitId, ctx);
         if (isRejection(v)) run.reject(i, v.field, v.reason);

@@ -7,7 +7,7 @@
 import { describe, expect, it } from 'vitest';
 import { loadConfig } from '../../services/db/config.ts';
 import { RingCopyEncoder, type RingRow } from '../../services/db/rings.ts';
-import { RingBytesReader, scanRingBatch } from '../../services/ingest/ring-bytes.ts';
+import { RingBytesReader, readRingBatch } from '../../services/ingest/ring-bytes.ts';
 import { isRejection, validateRing, type ValidationContext } from '../../services/ingest/validate.ts';
 
 const NOW = Date.UTC(2026, 2, 1, 12, 0, 0);
@@ -208,12 +208,44 @@ describe('the batch scanner', () => {
       { ts: 'a "quoted" \\ text é \u2028', flameDetected: false, exhaustMv: [] },
     ];
     for (const body of [JSON.stringify({ rings }), JSON.stringify({ rings }, null, 2), ' \r\n{"rings" : [ ] }\t', '{"rings":[]}']) {
-      const s = scanRingBatch(Buffer.from(body));
+      const s = readRingBatch(Buffer.from(body));
       expect(s, body).not.toBeNull();
       const parsed = JSON.parse(body).rings as unknown[];
       expect(s!.length).toBe(parsed.length);
       parsed.forEach((r, i) => expect(JSON.parse(s!.body.toString('utf8', s!.starts[i], s!.ends[i]))).toEqual(r));
     }
+  });
+
+  it('reads the rings in the common form as it passes them: each, checked, is the ring validateRing gives', () => {
+    const rings = [
+      `{${base},"exhaustC":[551.2,549.8,null,560]}`,
+      `{${base},"exhaustC":[551.2,549.8,null]}`,
+      `{"unitId":"${UNIT}",${base},"exhaustF":[1022,1023.8,null,1040],"cdtC":390,"flameDetected":true}`,
+      `{${base},"exhaustC":[551,552,553,554],"loadMw":"x"}`,
+      `{${base},"exhaustMv":[22,22.5,null,23],"coldJunctionC":25}`,
+      `{"unitId":"other",${base},"exhaustC":[551,552,553,554]}`,
+      `{ "ts" : "2026-03-01T09:00:00.25+01:00" , "loadMw" : 1e1 , "ambientC" : -0.5 , "ambientKPa" : 99 , "speedPct" : 0 , "exhaustC" : [ 1 , 2 , 3 , 4 ] }`,
+      `{${base},"exhaustC":[551,552,553,5e3]}`,
+    ];
+    const body = Buffer.from(`{"rings":[${rings.join(',')}]}`);
+    const batch = readRingBatch(body)!;
+    expect(Array.from(batch.fast)).toEqual([1, 1, 1, 0, 0, 1, 1, 1]);
+    const c = ctx();
+    const taken: boolean[] = [];
+    for (let i = 0; i < batch.length; i++) {
+      const v = validateRing(JSON.parse(body.toString('utf8', batch.starts[i], batch.ends[i])), UNIT, c);
+      let row: RingRow | null = null;
+      if (batch.fast[i] === 1) {
+        batch.reader.load(body, i);
+        if ((!batch.reader.namesUnit || batch.reader.unitId() === UNIT) && batch.reader.check(UNIT, c)) row = batch.reader.row;
+      }
+      taken.push(row !== null);
+      if (row !== null) {
+        expect(isRejection(v), rings[i]).toBe(false);
+        expect(bits(row)).toBe(bits(v as RingRow));
+      }
+    }
+    expect(taken).toEqual([true, false, true, false, false, false, true, false]);
   });
 
   it('leaves every other body to the general parser', () => {
@@ -223,7 +255,7 @@ describe('the batch scanner', () => {
       '{"rings":[{"x":1}]}', '{"rings":[{"t\\u0073":"x"}]}', '\ufeff{"rings":[]}', '{"rings":[]', '{"rings":[]}}', '{"rings":[{}]} {}',
       '{"rings":[{"ts":"a\nb"}]}', '{"rings":[{"ts":"\\x"}]}', '{"rings":[{"loadMw":01}]}', "{'rings':[]}", '{"rings":[{},]}',
     ]) {
-      expect(scanRingBatch(Buffer.from(body)), body).toBeNull();
+      expect(readRingBatch(Buffer.from(body)), body).toBeNull();
     }
   });
 
@@ -238,7 +270,7 @@ describe('the batch scanner', () => {
         const c = '{}[],:"\\-+.e0 n\u0001x'[Math.floor(rnd() * 19)];
         text = rnd() < 0.5 ? text.slice(0, i) + c + text.slice(i) : text.slice(0, i) + text.slice(i + 1);
       }
-      const s = scanRingBatch(Buffer.from(text));
+      const s = readRingBatch(Buffer.from(text));
       if (s === null) continue;
       accepted++;
       const parsed = JSON.parse(text) as { rings: unknown[] }; // throws if the scanner was wrong
