@@ -171,6 +171,14 @@ export interface FindingInput {
   /** Drift state per chamber and per thermocouple (index 0 = number 1). */
   drift?: { chambers?: readonly (ChamberDriftInput | null | undefined)[]; thermocouples?: readonly (ChamberDriftInput | null | undefined)[] };
   thresholds?: Partial<Thresholds>;
+  /** How people see this unit: messages give temperature differences in it (evidence stays °C). Default °C. */
+  temperatureUnit?: 'C' | 'F';
+}
+
+/** A temperature difference in °C as people of a unit read it: °C, or °F (× 1.8), one decimal. */
+export function differenceText(deltaDegC: number, unit: 'C' | 'F' = 'C'): string {
+  const v = unit === 'F' ? deltaDegC * 1.8 : deltaDegC;
+  return Number.isFinite(v) ? `${Math.round(v * 10) / 10} °${unit}` : '—';
 }
 
 /**
@@ -203,7 +211,7 @@ export function evaluateFindings(input: FindingInput): Finding[] {
   spreadFindings(input, t, version, out);
   chamberFindings(input, t, version, out);
   driftFindings(input, t, version, out);
-  return foldSpreadIntoChamber(out, a.chamberCount).sort((x, y) => gradeRank(y.grade) - gradeRank(x.grade));
+  return foldSpreadIntoChamber(out, a.chamberCount, input.temperatureUnit).sort((x, y) => gradeRank(y.grade) - gradeRank(x.grade));
 }
 
 /**
@@ -213,7 +221,8 @@ export function evaluateFindings(input: FindingInput): Finding[] {
  * two (ISA-18.2 designed suppression of consequential alarms; a lost flame otherwise raises a
  * chamber alert, a spread alert and a jump alert at once).
  */
-function foldSpreadIntoChamber(findings: Finding[], n: number): Finding[] {
+function foldSpreadIntoChamber(findings: Finding[], n: number, unit: 'C' | 'F' | undefined): Finding[] {
+  const dd = (v: number) => differenceText(v, unit);
   const chambers = findings.filter((f) => (f.kind === 'chamber_cold' || f.kind === 'chamber_hot') && f.chamber !== null);
   if (chambers.length === 0) return findings;
   const near = (a: number, b: number) => a === b || (a - b + n) % n === 1 || (b - a + n) % n === 1;
@@ -224,10 +233,10 @@ function foldSpreadIntoChamber(findings: Finding[], n: number): Finding[] {
     host.grade = maxGrade(host.grade, f.grade);
     if (f.kind === 'spread_high') {
       host.evidence = { ...host.evidence, spreadDegC: f.evidence.spreadDegC, spreadLimitDegC: f.evidence.limitDegC };
-      host.message += `; exhaust spread ${f.evidence.spreadDegC} °C is over its limit ${f.evidence.limitDegC} °C`;
+      host.message += `; exhaust spread ${dd(f.evidence.spreadDegC as number)} is over its limit ${dd(f.evidence.limitDegC as number)}`;
     } else {
       host.evidence = { ...host.evidence, spreadJumpDegC: f.evidence.jumpDegC };
-      host.message += `; exhaust spread changed by ${f.evidence.jumpDegC} °C since the previous steady ring`;
+      host.message += `; exhaust spread changed by ${dd(f.evidence.jumpDegC as number)} since the previous steady ring`;
     }
     return false;
   });
@@ -250,6 +259,7 @@ function tcFinding(tc: number, grade: Grade, reason: ValidityReason, evidence: F
 }
 
 function thermocoupleFindings(input: FindingInput, t: Thresholds, version: number | null, out: Finding[]): void {
+  const dd = (v: number) => differenceText(v, input.temperatureUnit);
   const a = input.analysis;
   const h = input.history ?? {};
   const seen = new Set<number>();
@@ -288,7 +298,7 @@ function thermocoupleFindings(input: FindingInput, t: Thresholds, version: numbe
         'drifting_alone',
         { residualDegC: r1(lone.residualDegC), leftNeighbourResidualDegC: r1(res[l]), rightNeighbourResidualDegC: r1(res[r]), loadFraction: r3(a.loadFraction) },
         version,
-        `thermocouple ${tc} reads ${r1(Math.abs(lone.residualDegC))} °C ${lone.residualDegC < 0 ? 'below' : 'above'} its normal at this load while its neighbours hold: the sensor, not a chamber`,
+        `thermocouple ${tc} reads ${dd(Math.abs(lone.residualDegC))} ${lone.residualDegC < 0 ? 'below' : 'above'} its normal at this load while its neighbours hold: the sensor, not a chamber`,
       ),
     );
     seen.add(tc);
@@ -328,6 +338,7 @@ function coverageFinding(a: RingAnalysis, t: Thresholds, version: number | null,
 }
 
 function spreadFindings(input: FindingInput, t: Thresholds, version: number | null, out: Finding[]): void {
+  const dd = (v: number) => differenceText(v, input.temperatureUnit);
   const a = input.analysis;
   const s = a.spread;
   if (!Number.isFinite(s.spreadDegC) || s.validCount < 2) return;
@@ -360,8 +371,8 @@ function spreadFindings(input: FindingInput, t: Thresholds, version: number | nu
       evidence,
       baselineVersion: fromBaseline ? version : null,
       message: tcSuspect
-        ? `exhaust spread ${r1(s.spreadDegC)} °C is over the limit ${r1(limitDegC)} °C only because of thermocouple ${cold}`
-        : `exhaust spread ${r1(s.spreadDegC)} °C is over the limit ${r1(limitDegC)} °C`,
+        ? `exhaust spread ${dd(s.spreadDegC)} is over the limit ${dd(limitDegC)} only because of thermocouple ${cold}`
+        : `exhaust spread ${dd(s.spreadDegC)} is over the limit ${dd(limitDegC)}`,
       advice: tcSuspect
         ? `check thermocouple ${cold} and its wiring at the next opportunity`
         : chamber !== null
@@ -386,7 +397,7 @@ function spreadFindings(input: FindingInput, t: Thresholds, version: number | nu
         runnerUpLikelihood: null,
         evidence: { spreadDegC: r1(s.spreadDegC), previousSpreadDegC: r1(prev), jumpDegC: r1(jump) },
         baselineVersion: version,
-        message: `exhaust spread changed by ${r1(jump)} °C between consecutive steady rings`,
+        message: `exhaust spread changed by ${dd(jump)} between consecutive steady rings`,
         advice: 'look at the chamber and thermocouple findings raised with it; check the ring plot for a new cold or hot plume',
       });
     }
@@ -394,6 +405,7 @@ function spreadFindings(input: FindingInput, t: Thresholds, version: number | nu
 }
 
 function chamberFindings(input: FindingInput, t: Thresholds, version: number | null, out: Finding[]): void {
+  const dd = (v: number) => differenceText(v, input.temperatureUnit);
   const a = input.analysis;
   const n = a.chamberCount;
   const resid = new Float64Array(n);
@@ -451,7 +463,7 @@ function chamberFindings(input: FindingInput, t: Thresholds, version: number | n
         validThermocouples: a.coverage.validCount,
       },
       baselineVersion: usedBaseline ? version : null,
-      message: `chamber ${ch} runs ${r1(mag)} °C ${cold ? 'colder' : 'hotter'} than its normal at this load`,
+      message: `chamber ${ch} runs ${dd(mag)} ${cold ? 'colder' : 'hotter'} than its normal at this load`,
       advice: chamberAdvice(ch, cold, grade),
     });
   }
@@ -465,6 +477,7 @@ function chamberAdvice(ch: number, cold: boolean, grade: Grade): string {
 }
 
 function driftFindings(input: FindingInput, t: Thresholds, version: number | null, out: Finding[]): void {
+  const dd = (v: number) => differenceText(v, input.temperatureUnit);
   const chambers = input.drift?.chambers ?? [];
   const sensors = input.drift?.thermocouples ?? [];
   const rateOf = (d: ChamberDriftInput | null | undefined) => (d && d.rate && d.rate.significant ? d.rate.per30DaysDegC : 0);
@@ -524,7 +537,7 @@ function driftFindings(input: FindingInput, t: Thresholds, version: number | nul
         cusumSignal: cusumSide,
       },
       baselineVersion: version,
-      message: `chamber ${ch} is ${cooling ? 'cooling' : 'warming'} against its baseline at ${r1(rate.per30DaysDegC)} °C per 30 days`,
+      message: `chamber ${ch} is ${cooling ? 'cooling' : 'warming'} against its baseline at ${dd(rate.per30DaysDegC)} per 30 days`,
       advice: cooling ? `inspect chamber ${ch} fuel nozzle at the next outage` : `inspect chamber ${ch} fuel nozzle tip for erosion or over-fuelling at the next outage`,
     });
   }
@@ -546,7 +559,7 @@ function driftFindings(input: FindingInput, t: Thresholds, version: number | nul
           chamberDriftExplained: explained.join(',') || null,
         },
         version,
-        `thermocouple ${tc} is drifting ${rate.per30DaysDegC < 0 ? 'down' : 'up'} against its normal at ${r1(rate.per30DaysDegC)} °C per 30 days while its neighbours hold${explained.length ? `; the drift of chamber ${explained.join(', ')} is this sensor's` : ''}`,
+        `thermocouple ${tc} is drifting ${rate.per30DaysDegC < 0 ? 'down' : 'up'} against its normal at ${dd(rate.per30DaysDegC)} per 30 days while its neighbours hold${explained.length ? `; the drift of chamber ${explained.join(', ')} is this sensor's` : ''}`,
       ),
     );
   }

@@ -254,8 +254,8 @@ export class UnitAnalyser {
       };
       const drift = { chambers: this.inputs.driftChambers, thermocouples: this.inputs.driftThermocouples };
       const plumeShare = { left: ctx.responseLeft, right: ctx.responseRight };
-      raise = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.raise });
-      hold = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.hold });
+      raise = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.raise, temperatureUnit: cfg.temperatureUnit });
+      hold = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.hold, temperatureUnit: cfg.temperatureUnit });
     }
     // A spread jump is a change between consecutive steady rings: a ring that is not steady (a
     // start, a stop, a load change) ends the comparison, so the first steady ring after it is not

@@ -123,6 +123,21 @@ describe('findings', () => {
     expect(c!.evidence.spreadDegC as number).toBeGreaterThan(c!.evidence.spreadLimitDegC as number);
     expect(c!.message).toContain('exhaust spread');
   });
+  it('messages of a °F unit give temperature differences in °F; the evidence stays in °C', () => {
+    const dev = new Array(10).fill(0);
+    dev[3] = -230;
+    const a = analyseRing(ctx, ringFromChambers(config, dev, 0.8, 550, ctx.kernel), 0.8);
+    const c = evaluateFindings({ analysis: a, steady: true });
+    const f = evaluateFindings({ analysis: a, steady: true, temperatureUnit: 'F' });
+    const inC = c.find((x) => x.kind === 'chamber_cold')!;
+    const inF = f.find((x) => x.kind === 'chamber_cold')!;
+    expect(inF.evidence).toEqual(inC.evidence);
+    const degC = Number(/runs ([\d.]+) °C colder/.exec(inC.message)![1]);
+    const degF = Number(/runs ([\d.]+) °F colder/.exec(inF.message)![1]);
+    // A difference converts by the factor 9/5 alone (ITS-90 scale relation, no offset for differences).
+    expect(degF).toBeCloseTo(degC * 1.8, 0);
+    expect(inF.message).not.toContain('°C');
+  });
   it('a healthy ring gives no findings', () => {
     const rand = mulberry32(4);
     const dev = Array.from({ length: 10 }, () => (rand() - 0.5) * 6);
