@@ -42,9 +42,16 @@ export interface ScorecardRun {
 
 const RINGS_PER_REQUEST = 5_000;
 
+/** Sends one NDJSON body as a gateway would: a 503 (nothing stored) is retried after a pause, a few times. */
 async function post(url: string, key: string, body: string): Promise<number> {
-  const res = await fetch(`${url}/v1/rings`, { method: 'POST', headers: { authorization: `Bearer ${key}`, 'content-type': 'application/x-ndjson' }, body });
-  const reply = (await res.json()) as { accepted?: number; rejected?: unknown[]; message?: string };
+  let res: Response;
+  let reply: { accepted?: number; duplicates?: number; rejected?: unknown[]; message?: string };
+  for (let attempt = 1; ; attempt++) {
+    res = await fetch(`${url}/v1/rings`, { method: 'POST', headers: { authorization: `Bearer ${key}`, 'content-type': 'application/x-ndjson' }, body });
+    reply = (await res.json()) as typeof reply;
+    if (res.status !== 503 || attempt === 5) break;
+    await new Promise((r) => setTimeout(r, 500 * attempt));
+  }
   if (!res.ok) throw new Error(`ingest answered ${res.status}: ${reply.message ?? ''}`);
   if (reply.rejected && reply.rejected.length) throw new Error(`ingest rejected ${reply.rejected.length} rings, e.g. ${JSON.stringify(reply.rejected[0])}`);
   return reply.accepted ?? 0;
