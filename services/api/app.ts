@@ -5,20 +5,19 @@
  * both (cansight start).
  */
 import Fastify, { LogController, type FastifyInstance, type FastifyServerOptions } from 'fastify';
-import helmet from '@fastify/helmet';
+import helmet, { type FastifyHelmetOptions } from '@fastify/helmet';
 import rateLimit from '@fastify/rate-limit';
 import swagger from '@fastify/swagger';
 import swaggerUi from '@fastify/swagger-ui';
 import { Ajv } from 'ajv';
 import addFormats from 'ajv-formats';
-import { createHash } from 'node:crypto';
 import type { Config } from '../db/config.ts';
 import type { Logger } from '../db/logger.ts';
 import type { Pool } from '../db/pool.ts';
 import { createKeysRepository } from '../db/keys.ts';
 import { createUnitsRepository } from '../db/units.ts';
 import { installErrorHandling } from './errors.ts';
-import { authPlugin, bearerKey } from './auth.ts';
+import { authPlugin, bearerKeyHash } from './auth.ts';
 import { healthRoutes } from './routes/health.ts';
 import { unitRoutes } from './routes/units.ts';
 import { alertRoutes } from './routes/alerts.ts';
@@ -56,6 +55,25 @@ function makeAjv(coerce: boolean) {
   return ajv;
 }
 
+/**
+ * The security headers @fastify/helmet sets with these options, asked of the plugin once on a
+ * throwaway instance. With no per-route options and no nonces they are the same on every reply;
+ * the plugin itself builds helmet's middleware again on every request.
+ */
+async function securityHeaders(options: FastifyHelmetOptions): Promise<Array<[string, number | string | string[]]>> {
+  const probe = Fastify();
+  await probe.register(helmet, options);
+  let headers: Array<[string, number | string | string[]]> = [];
+  probe.get('/', async (_request, reply) => {
+    headers = Object.entries(reply.raw.getHeaders()).filter((e): e is [string, number | string | string[]] => e[1] !== undefined);
+    return '';
+  });
+  await probe.inject({ url: '/' });
+  await probe.close();
+  if (headers.length === 0) throw new Error('@fastify/helmet set no headers on a probe request');
+  return headers;
+}
+
 export async function buildApp(deps: AppDeps): Promise<FastifyInstance> {
   const parts = deps.parts ?? { api: true, ingest: true };
   const app = Fastify({
@@ -74,14 +92,18 @@ export async function buildApp(deps: AppDeps): Promise<FastifyInstance> {
   const lenient = makeAjv(true);
   app.setValidatorCompiler(({ schema, httpPart }) => (httpPart === 'body' ? strict : lenient).compile(schema as object) as never);
 
-  // External plugins.
-  await app.register(helmet, { contentSecurityPolicy: false });
+  // External plugins. Helmet's headers are worked out once (see securityHeaders).
+  const security = await securityHeaders({ contentSecurityPolicy: false });
+  app.addHook('onRequest', (_request, reply, done) => {
+    for (const [name, value] of security) reply.raw.setHeader(name, value);
+    done();
+  });
   await app.register(rateLimit, {
     max: deps.config.rateLimitPerMinute,
     timeWindow: '1 minute',
     keyGenerator: (req) => {
-      const key = bearerKey(req);
-      return key ? 'k:' + createHash('sha256').update(key).digest('hex').slice(0, 16) : 'ip:' + req.ip;
+      const hash = bearerKeyHash(req);
+      return hash ? 'k:' + hash.slice(0, 16) : 'ip:' + req.ip;
     },
   });
   await app.register(swagger, {

@@ -8,13 +8,29 @@ import type { FastifyInstance, FastifyRequest } from 'fastify';
 import fp from 'fastify-plugin';
 import { HttpError } from './errors.ts';
 import { ACCESS_ROLES } from './context.ts';
-import type { KeyRecord } from '../db/keys.ts';
+import { hashKey, type KeyRecord } from '../db/keys.ts';
 
 export function bearerKey(request: FastifyRequest): string | undefined {
   const h = request.headers.authorization;
   if (!h) return undefined;
   const m = /^Bearer\s+(\S+)\s*$/i.exec(h);
   return m ? m[1] : undefined;
+}
+
+const keyHashes = new WeakMap<FastifyRequest, string | null>();
+
+/**
+ * The hash of the request's bearer key (as stored, see hashKey), or undefined without one;
+ * worked out once per request for the rate limit and the guard both.
+ */
+export function bearerKeyHash(request: FastifyRequest): string | undefined {
+  let h = keyHashes.get(request);
+  if (h === undefined) {
+    const value = bearerKey(request);
+    h = value ? hashKey(value) : null;
+    keyHashes.set(request, h);
+  }
+  return h ?? undefined;
 }
 
 /** True when the key may see or write this unit. */
@@ -32,9 +48,9 @@ export const authPlugin = fp(async (app: FastifyInstance) => {
   app.addHook('onRequest', async (request) => {
     const access = request.routeOptions.config?.access ?? 'public';
     if (access === 'public') return;
-    const value = bearerKey(request);
-    if (!value) throw new HttpError(401, 'unauthorized', 'An API key is required: send "Authorization: Bearer <key>".');
-    const key = await app.repos.keys.verify(value);
+    const hash = bearerKeyHash(request);
+    if (!hash) throw new HttpError(401, 'unauthorized', 'An API key is required: send "Authorization: Bearer <key>".');
+    const key = await app.repos.keys.verifyHash(hash);
     if (!key) throw new HttpError(401, 'unauthorized', 'The API key is unknown or has been revoked.');
     request.principal = key;
     if (!ACCESS_ROLES[access].includes(key.role)) {

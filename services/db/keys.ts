@@ -55,6 +55,47 @@ export function createKeysRepository(pool: pg.Pool, opts: { cacheMs?: number } =
   // in other processes, and at once in the process that revoked it.
   const verified = new Map<string, { record: KeyRecord; readAt: number }>();
   const lastUsedWritten = new Map<string, number>();
+  const lookups = new Map<string, Promise<KeyRecord | null>>();
+  // Counts revocations: a lookup that overlapped one does not keep what it found.
+  let revocations = 0;
+  /** The live key with this hash (hashKey), or null; see verify. */
+  async function verifyHash(hash: string): Promise<KeyRecord | null> {
+    const now = Date.now();
+    const hit = verified.get(hash);
+    let record: KeyRecord | null;
+    if (hit && now - hit.readAt < cacheMs) {
+      record = hit.record;
+    } else {
+      // Requests with the same key while its lookup is under way share that lookup.
+      let lookup = lookups.get(hash);
+      if (!lookup) {
+        const asOf = revocations;
+        lookup = pool
+          .query(`SELECT ${COLUMNS} FROM api_keys WHERE key_hash = $1 AND revoked_at IS NULL`, [hash])
+          .then((found) => {
+            const r = found.rows.length ? toRecord(found.rows[0]) : null;
+            if (r && asOf === revocations) {
+              if (verified.size > 10_000) verified.clear();
+              verified.set(hash, { record: r, readAt: now });
+            } else {
+              verified.delete(hash);
+            }
+            return r;
+          })
+          .finally(() => {
+            if (lookups.get(hash) === lookup) lookups.delete(hash);
+          });
+        lookups.set(hash, lookup);
+      }
+      record = await lookup;
+    }
+    if (record && now - (lastUsedWritten.get(hash) ?? 0) >= LAST_USED_EVERY_MS) {
+      lastUsedWritten.set(hash, now);
+      pool.query(`UPDATE api_keys SET last_used_at = now() WHERE key_hash = $1`, [hash]).catch(() => lastUsedWritten.delete(hash));
+    }
+    return record;
+  }
+
   return {
     /** Creates a key; returns its record and the key value, which is never stored. */
     async create(role: Role, unitIds: string[] | null, label: string | null = null, value = newKeyValue()): Promise<{ key: string; record: KeyRecord }> {
@@ -87,7 +128,9 @@ export function createKeysRepository(pool: pg.Pool, opts: { cacheMs?: number } =
 
     /** Revokes by id or by prefix; returns the number of keys revoked. */
     async revoke(idOrPrefix: string): Promise<number> {
+      revocations++;
       verified.clear();
+      lookups.clear();
       const isUuid = /^[0-9a-f-]{36}$/i.test(idOrPrefix);
       const { rowCount } = await pool.query(
         isUuid
@@ -95,6 +138,7 @@ export function createKeysRepository(pool: pg.Pool, opts: { cacheMs?: number } =
           : `UPDATE api_keys SET revoked_at = now() WHERE prefix = $1 AND revoked_at IS NULL`,
         [idOrPrefix],
       );
+      revocations++;
       return rowCount ?? 0;
     },
 
@@ -104,28 +148,10 @@ export function createKeysRepository(pool: pg.Pool, opts: { cacheMs?: number } =
      * answer, without holding the request.
      */
     async verify(value: string): Promise<KeyRecord | null> {
-      const hash = hashKey(value);
-      const now = Date.now();
-      const hit = verified.get(hash);
-      let record: KeyRecord | null;
-      if (hit && now - hit.readAt < cacheMs) {
-        record = hit.record;
-      } else {
-        const found = await pool.query(`SELECT ${COLUMNS} FROM api_keys WHERE key_hash = $1 AND revoked_at IS NULL`, [hash]);
-        record = found.rows.length ? toRecord(found.rows[0]) : null;
-        if (record) {
-          if (verified.size > 10_000) verified.clear();
-          verified.set(hash, { record, readAt: now });
-        } else {
-          verified.delete(hash);
-        }
-      }
-      if (record && now - (lastUsedWritten.get(hash) ?? 0) >= LAST_USED_EVERY_MS) {
-        lastUsedWritten.set(hash, now);
-        pool.query(`UPDATE api_keys SET last_used_at = now() WHERE key_hash = $1`, [hash]).catch(() => lastUsedWritten.delete(hash));
-      }
-      return record;
+      return verifyHash(hashKey(value));
     },
+
+    verifyHash,
   };
 }
 
