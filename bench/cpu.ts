@@ -14,6 +14,8 @@ export interface CpuSample {
   mainS: number;
   processS: number;
   postgresS: number;
+  /** Of postgresS: the backends serving client connections (the rest is background work). */
+  connectionsS: number;
 }
 
 /** utime, stime, cutime, cstime of a /proc stat line, in seconds. */
@@ -50,27 +52,41 @@ export function postmasterPid(dataDir: string | undefined): number | null {
   }
 }
 
-function postgresSeconds(postmaster: number | null): number {
-  if (postmaster === null) return NaN;
+/** A backend serving a client connection shows the client's address in its process title. */
+function isConnection(pid: string): boolean {
+  try {
+    return /\(\d+\)|\[local\]/.test(readFileSync(`/proc/${pid}/cmdline`, 'latin1'));
+  } catch {
+    return false;
+  }
+}
+
+function postgresSeconds(postmaster: number | null): { all: number; connections: number } {
+  if (postmaster === null) return { all: NaN, connections: NaN };
   const own = statTimes(`/proc/${postmaster}/stat`);
-  if (own === null) return NaN;
+  if (own === null) return { all: NaN, connections: NaN };
   // Exited children are in the postmaster's cutime/cstime; live ones are read one by one.
-  let total = own[0] + own[1] + own[2] + own[3];
+  let all = own[0] + own[1] + own[2] + own[3];
+  let connections = 0;
   for (const pid of readdirSync('/proc')) {
     if (pid.charCodeAt(0) > 57 || parentOf(pid) !== postmaster) continue;
     const t = statTimes(`/proc/${pid}/stat`);
-    if (t) total += t[0] + t[1];
+    if (!t) continue;
+    all += t[0] + t[1];
+    if (isConnection(pid)) connections += t[0] + t[1];
   }
-  return total;
+  return { all, connections };
 }
 
 export function cpuSample(postmaster: number | null): CpuSample {
   const main = statTimes(`/proc/self/task/${process.pid}/stat`);
   const u = process.cpuUsage();
+  const pg = postgresSeconds(postmaster);
   return {
     mainS: main ? main[0] + main[1] : NaN,
     processS: (u.user + u.system) / 1e6,
-    postgresS: postgresSeconds(postmaster),
+    postgresS: pg.all,
+    connectionsS: pg.connections,
   };
 }
 
@@ -80,16 +96,24 @@ export interface CpuSpent {
   /** This process apart from its main thread (in the HTTP phases: mostly the client thread). */
   otherS: number;
   postgresS: number;
+  /** Of postgresS: backends of client connections (the rest: autovacuum, WAL writer, checkpoints…). */
+  connectionsS: number;
 }
 
 export function cpuSince(before: CpuSample, postmaster: number | null): CpuSpent {
   const now = cpuSample(postmaster);
   const mainS = now.mainS - before.mainS;
-  return { mainS, otherS: now.processS - before.processS - mainS, postgresS: now.postgresS - before.postgresS };
+  return {
+    mainS,
+    otherS: now.processS - before.processS - mainS,
+    postgresS: now.postgresS - before.postgresS,
+    // A connection opened during the span counts from its start.
+    connectionsS: now.connectionsS - before.connectionsS,
+  };
 }
 
-/** µs of CPU per ring, e.g. "server 9.8 µs, other 2.1 µs, PostgreSQL 14.2 µs". */
+/** µs of CPU per ring, e.g. "server 9.8 µs, other 2.1 µs, PostgreSQL 14.2 µs (connections 12.0 µs)". */
 export function describeCpu(spent: CpuSpent, rings: number, mainName: string, otherName: string): string {
   const us = (s: number) => (Number.isFinite(s) ? `${((s * 1e6) / rings).toFixed(1)} µs` : 'n/a');
-  return `CPU per ring: ${mainName} ${us(spent.mainS)}, ${otherName} ${us(spent.otherS)}, PostgreSQL ${us(spent.postgresS)}`;
+  return `CPU per ring: ${mainName} ${us(spent.mainS)}, ${otherName} ${us(spent.otherS)}, PostgreSQL ${us(spent.postgresS)} (connections ${us(spent.connectionsS)})`;
 }

@@ -200,7 +200,8 @@ async function main(): Promise<void> {
     log(`ratio to raw COPY: JSON ${jsonRatio.toFixed(2)}, NDJSON ${ndjsonRatio.toFixed(2)} (goal ≥ 0.5)`);
     const r = (x: number) => Math.round(x);
     const r2 = (x: number) => Math.round(x * 100) / 100;
-    const us = (c: CpuSpent, n: number) => ({ main: r2((c.mainS * 1e6) / n), other: r2((c.otherS * 1e6) / n), postgres: Number.isFinite(c.postgresS) ? r2((c.postgresS * 1e6) / n) : null });
+    const perRing = (s: number, n: number) => (Number.isFinite(s) ? r2((s * 1e6) / n) : null);
+    const us = (c: CpuSpent, n: number) => ({ main: perRing(c.mainS, n), other: perRing(c.otherS, n), postgres: perRing(c.postgresS, n), pgConnections: perRing(c.connectionsS, n) });
     log(JSON.stringify({
       bench: 'ingest', copyRingsPerS: r(copyRingsPerS), jsonRingsPerS: r(jsonRingsPerS), ndjsonRingsPerS: r(ndjsonRingsPerS), jsonRatio: r2(jsonRatio), ndjsonRatio: r2(ndjsonRatio),
       cpuUsPerRing: { copy: us(copyCpu, per * CLIENTS), json: us(jsonCpu, json.accepted), ndjson: us(ndCpu, nd.accepted) },
