@@ -74,6 +74,18 @@ function postgresCpuS(): number {
   }
 }
 
+/** CPU seconds used so far by one process (Linux /proc; 0 when unknown). */
+function processCpuS(pid: number | undefined): number {
+  if (pid === undefined) return 0;
+  try {
+    const stat = readFileSync(`/proc/${pid}/stat`, 'utf8');
+    const f = stat.slice(stat.lastIndexOf(')') + 2).split(' ');
+    return (Number(f[11]) + Number(f[12])) / 100;
+  } catch {
+    return 0;
+  }
+}
+
 async function database(): Promise<{ adminUrl: string; stop: () => Promise<void> }> {
   if (process.env.DATABASE_URL) return { adminUrl: process.env.DATABASE_URL, stop: async () => undefined };
   const server = await startThrowawayPostgres('cansight-bench-worker', createLogger('warn'));
@@ -251,7 +263,9 @@ async function alertLatency(adminUrl: string): Promise<{ p50: number; p99: numbe
   const app = await buildApp({ config, pool, logger, parts: { api: true, ingest: true } });
   const address = await app.listen({ host: '127.0.0.1', port: 0 });
   // The worker in a process of its own (as `cansight worker` runs beside `cansight api`/`ingest`).
-  const workerProc = spawn(process.execPath, [fileURLToPath(new URL('../bin/cansight.mjs', import.meta.url)), 'worker'], {
+  // BENCH_WORKER_NODE_ARGS: extra node options for the worker process, e.g. "--cpu-prof --cpu-prof-dir=/tmp/prof".
+  const nodeArgs = (process.env.BENCH_WORKER_NODE_ARGS ?? '').split(/\s+/).filter(Boolean);
+  const workerProc = spawn(process.execPath, [...nodeArgs, fileURLToPath(new URL('../bin/cansight.mjs', import.meta.url)), 'worker'], {
     env: {
       ...process.env,
       DATABASE_URL: dbUrl,
@@ -282,6 +296,7 @@ async function alertLatency(adminUrl: string): Promise<{ p50: number; p99: numbe
     }
   })();
 
+  const cpuAt0 = { worker: processCpuS(workerProc.pid), pg: postgresCpuS(), self: process.cpuUsage(), wall: performance.now() };
   const thread = new Thread(CLIENT_SOURCE, {
     eval: true,
     workerData: { from: createRequire(import.meta.url).resolve('undici'), url: address, key, units, seconds: SECONDS, faults, tc: 18, onDelayS: ON_DELAY_S },
@@ -292,6 +307,15 @@ async function alertLatency(adminUrl: string): Promise<{ p50: number; p99: numbe
   });
   await thread.terminate();
   if (error) throw new Error(error);
+  {
+    const wall = (performance.now() - cpuAt0.wall) / 1000;
+    const self = process.cpuUsage(cpuAt0.self);
+    const share = (s: number) => `${Math.round((100 * s) / wall)} %`;
+    say(
+      `alert latency CPU over the ${Math.round(wall)} s of sending (share of one core): worker process ${share(processCpuS(workerProc.pid) - cpuAt0.worker)}, ` +
+        `PostgreSQL ${share(postgresCpuS() - cpuAt0.pg)}, API + ingest + client ${share((self.user + self.system) / 1e6)}; load average ${os.loadavg()[0].toFixed(1)}`,
+    );
+  }
   // Give the last alerts time to appear.
   const deadline = Date.now() + 10_000;
   while (Date.now() < deadline && Object.keys(triggers).some((u) => !seen.has(u))) await new Promise((r) => setTimeout(r, 50));

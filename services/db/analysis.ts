@@ -411,10 +411,16 @@ export async function writeAnalysis(client: pg.ClientBase, pool: object, enc: An
 
 export interface UnitProgress {
   watermarkMs: number | null;
+  /** Stored rollups hold the in-order analysis up to this ring time (-Infinity: none). */
+  rollupsToMs: number;
   lateCheckedFromMs: number;
   ringsAnalysed: number;
   lateRingsAnalysed: number;
 }
+
+/** rollups_to in ms (NULL for -infinity, which extract() cannot turn into a finite number). */
+const RU_MS = (t: string) => `CASE WHEN ${t}.rollups_to = '-infinity' THEN NULL ELSE ${msOf(`${t}.rollups_to`)} END AS ru_ms`;
+const rollupsMs = (v: unknown) => (v === null || v === undefined ? -Infinity : Number(v));
 
 /**
  * Inside the caller's transaction: locks the unit's claim row if this worker holds a live
@@ -422,7 +428,7 @@ export interface UnitProgress {
  */
 export async function lockOwnedUnit(client: pg.ClientBase, unitId: string, workerId: string): Promise<UnitProgress | null> {
   const { rows } = await client.query(
-    `SELECT ${msOf('p.watermark_ts')} AS wm_ms, ${msOf('p.late_checked_from')} AS late_ms, p.rings_analysed, p.late_rings_analysed
+    `SELECT ${msOf('p.watermark_ts')} AS wm_ms, ${RU_MS('p')}, ${msOf('p.late_checked_from')} AS late_ms, p.rings_analysed, p.late_rings_analysed
        FROM unit_claims c JOIN analysis_progress p USING (unit_id)
       WHERE c.unit_id = $1 AND c.worker_id = $2 AND c.lease_until > now()
       FOR UPDATE OF c`,
@@ -432,6 +438,7 @@ export async function lockOwnedUnit(client: pg.ClientBase, unitId: string, worke
   const r = rows[0];
   return {
     watermarkMs: r.wm_ms === null ? null : Number(r.wm_ms),
+    rollupsToMs: rollupsMs(r.ru_ms),
     lateCheckedFromMs: Number(r.late_ms),
     ringsAnalysed: Number(r.rings_analysed),
     lateRingsAnalysed: Number(r.late_rings_analysed),
@@ -449,7 +456,7 @@ export async function lockUnits(client: pg.ClientBase, unitIds: string[], worker
   const { rows } =
     workerId === null
       ? await client.query(
-          `SELECT p.unit_id, ${msOf('p.watermark_ts')} AS wm_ms, ${msOf('p.late_checked_from')} AS late_ms, p.rings_analysed, p.late_rings_analysed
+          `SELECT p.unit_id, ${msOf('p.watermark_ts')} AS wm_ms, ${RU_MS('p')}, ${msOf('p.late_checked_from')} AS late_ms, p.rings_analysed, p.late_rings_analysed
              FROM analysis_progress p WHERE p.unit_id = ANY($1::text[]) ORDER BY p.unit_id FOR UPDATE`,
           [unitIds],
         )
@@ -459,7 +466,7 @@ export async function lockUnits(client: pg.ClientBase, unitIds: string[], worker
                        ORDER BY c.unit_id FOR UPDATE OF c),
                 e AS (UPDATE unit_claims c SET lease_until = greatest(c.lease_until, now() + make_interval(secs => $3))
                         FROM l WHERE c.unit_id = l.unit_id AND $3 > 0 AND c.lease_until < now() + make_interval(secs => $3 / 2.0) RETURNING c.unit_id)
-           SELECT p.unit_id, ${msOf('p.watermark_ts')} AS wm_ms, ${msOf('p.late_checked_from')} AS late_ms, p.rings_analysed, p.late_rings_analysed
+           SELECT p.unit_id, ${msOf('p.watermark_ts')} AS wm_ms, ${RU_MS('p')}, ${msOf('p.late_checked_from')} AS late_ms, p.rings_analysed, p.late_rings_analysed
              FROM l JOIN analysis_progress p USING (unit_id) ORDER BY p.unit_id`,
           [unitIds, workerId, leaseS],
         );
@@ -467,6 +474,7 @@ export async function lockUnits(client: pg.ClientBase, unitIds: string[], worker
   for (const r of rows) {
     out.set(r.unit_id, {
       watermarkMs: r.wm_ms === null ? null : Number(r.wm_ms),
+      rollupsToMs: rollupsMs(r.ru_ms),
       lateCheckedFromMs: Number(r.late_ms),
       ringsAnalysed: Number(r.rings_analysed),
       lateRingsAnalysed: Number(r.late_rings_analysed),
@@ -478,13 +486,13 @@ export async function lockUnits(client: pg.ClientBase, unitIds: string[], worker
 /** Inside the caller's transaction: locks the unit's progress row without a lease check (tools and tests). */
 export async function lockProgress(client: pg.ClientBase, unitId: string): Promise<UnitProgress | null> {
   const { rows } = await client.query(
-    `SELECT ${msOf('watermark_ts')} AS wm_ms, ${msOf('late_checked_from')} AS late_ms, rings_analysed, late_rings_analysed
+    `SELECT ${msOf('watermark_ts')} AS wm_ms, ${RU_MS('analysis_progress')}, ${msOf('late_checked_from')} AS late_ms, rings_analysed, late_rings_analysed
        FROM analysis_progress WHERE unit_id = $1 FOR UPDATE`,
     [unitId],
   );
   if (rows.length === 0) return null;
   const r = rows[0];
-  return { watermarkMs: r.wm_ms === null ? null : Number(r.wm_ms), lateCheckedFromMs: Number(r.late_ms), ringsAnalysed: Number(r.rings_analysed), lateRingsAnalysed: Number(r.late_rings_analysed) };
+  return { watermarkMs: r.wm_ms === null ? null : Number(r.wm_ms), rollupsToMs: rollupsMs(r.ru_ms), lateCheckedFromMs: Number(r.late_ms), ringsAnalysed: Number(r.rings_analysed), lateRingsAnalysed: Number(r.late_rings_analysed) };
 }
 
 /** Stored rings of a unit in [fromMs, toMs] that have no analysis yet. */
@@ -508,21 +516,49 @@ export async function advanceProgress(client: pg.ClientBase, unitId: string, wat
   );
 }
 
-/** For several units at once: advances each watermark, adds its in-order rings, and logs its batch. */
-export async function recordInOrderBatches(client: pg.ClientBase, workerId: string, batches: { unitId: string; fromMs: number; toMs: number; rings: number }[]): Promise<void> {
+/**
+ * For several units at once: advances each watermark, adds its in-order rings, logs its batch,
+ * and moves rollups_to forward to rollupsToMs where given (the batch's rollups were written).
+ */
+export async function recordInOrderBatches(
+  client: pg.ClientBase,
+  workerId: string,
+  batches: { unitId: string; fromMs: number; toMs: number; rings: number; rollupsToMs?: number | null }[],
+): Promise<void> {
   if (batches.length === 0) return;
   const ids = batches.map((b) => b.unitId);
   const from = batches.map((b) => isoMicros(b.fromMs));
   const to = batches.map((b) => isoMicros(b.toMs));
   const n = batches.map((b) => b.rings);
+  const ru = batches.map((b) => (b.rollupsToMs === undefined || b.rollupsToMs === null ? null : isoMicros(b.rollupsToMs)));
   await client.query(
-    `WITH b AS (SELECT * FROM unnest($1::text[], $2::timestamptz[], $3::timestamptz[], $4::int[]) AS b(unit_id, from_ts, to_ts, rings)),
+    `WITH b AS (SELECT * FROM unnest($1::text[], $2::timestamptz[], $3::timestamptz[], $4::int[], $6::timestamptz[]) AS b(unit_id, from_ts, to_ts, rings, rollups_to)),
           p AS (UPDATE analysis_progress p
-                   SET watermark_ts = greatest(coalesce(p.watermark_ts, '-infinity'), b.to_ts), rings_analysed = p.rings_analysed + b.rings, updated_at = now()
+                   SET watermark_ts = greatest(coalesce(p.watermark_ts, '-infinity'), b.to_ts), rings_analysed = p.rings_analysed + b.rings, updated_at = now(),
+                       rollups_to = CASE WHEN b.rollups_to IS NULL THEN p.rollups_to ELSE greatest(p.rollups_to, b.rollups_to) END
                   FROM b WHERE p.unit_id = b.unit_id)
      INSERT INTO analysis_batches (unit_id, worker_id, kind, from_ts, to_ts, rings) SELECT unit_id, $5, 'in_order', from_ts, to_ts, rings FROM b`,
-    [ids, from, to, n, workerId],
+    [ids, from, to, n, workerId, ru],
   );
+}
+
+/** Moves rollups_to of these units forward (their rollups were written up to then). */
+export async function setRollupsTo(client: pg.ClientBase, entries: { unitId: string; toMs: number }[]): Promise<void> {
+  if (entries.length === 0) return;
+  await client.query(
+    `UPDATE analysis_progress p SET rollups_to = greatest(p.rollups_to, e.t) FROM unnest($1::text[], $2::timestamptz[]) AS e(unit_id, t) WHERE p.unit_id = e.unit_id`,
+    [entries.map((e) => e.unitId), entries.map((e) => isoMicros(e.toMs))],
+  );
+}
+
+/** Time of a unit's first analysed ring after afterMs (-Infinity: from the start), or null. */
+export async function firstAnalysisAfter(client: Queryable, unitId: string, afterMs: number): Promise<number | null> {
+  const { rows } = await client.query(
+    Number.isFinite(afterMs)
+      ? { text: `SELECT ${msOf('min(ts)')} AS t FROM ring_analysis WHERE unit_id = $1 AND ts > $2`, values: [unitId, isoMicros(afterMs)] }
+      : { text: `SELECT ${msOf('min(ts)')} AS t FROM ring_analysis WHERE unit_id = $1`, values: [unitId] },
+  );
+  return rows[0].t === null ? null : Number(rows[0].t);
 }
 
 export async function logBatch(client: pg.ClientBase, b: { unitId: string; workerId: string; kind: 'in_order' | 'late' | 'rerun'; fromMs: number; toMs: number; rings: number }): Promise<void> {
@@ -584,10 +620,20 @@ export async function findLateRings(q: Queryable, unitIds: string[], perUnitLimi
   return out;
 }
 
-/** Moves the late search start of these units forward to horizon. */
+/**
+ * Moves the late search start of these units forward to horizon. Progress rows locked this
+ * instant (a round is committing that unit) are skipped, not waited for: they keep their older
+ * start and are searched again at the next sweep, which finds nothing new there. Waiting made
+ * the sweep hold the rows it had already updated while rounds waited for them: lock waits of
+ * seconds and deadlocks with the rounds.
+ */
 export async function setLateCheckedFrom(q: Queryable, unitIds: string[], horizon: Date): Promise<void> {
   if (unitIds.length === 0) return;
-  await q.query(`UPDATE analysis_progress SET late_checked_from = greatest(late_checked_from, $2) WHERE unit_id = ANY($1::text[])`, [unitIds, horizon]);
+  await q.query(
+    `WITH l AS (SELECT unit_id FROM analysis_progress WHERE unit_id = ANY($1::text[]) AND late_checked_from < $2 ORDER BY unit_id FOR UPDATE SKIP LOCKED)
+     UPDATE analysis_progress p SET late_checked_from = $2 FROM l WHERE p.unit_id = l.unit_id`,
+    [unitIds, horizon],
+  );
 }
 
 // ---------------------------------------------------------------------------------------------

@@ -20,7 +20,7 @@ import { fitDueRequests, fitFirstBaseline } from './baselines.ts';
 import { firstSteadyMs } from '../db/baselines.ts';
 import { runDrift, type DriftRunResult } from './drift.ts';
 import { startListener } from './listener.ts';
-import { analyseGroup, invalidateInputs, memoryOf, reanalyseSpan, spansOf, type PipelineContext } from './pipeline.ts';
+import { analyseGroup, invalidateInputs, memoryOf, reanalyseSpan, ROLLUP_HOLD_MS, rollupsDue, spansOf, type PipelineContext } from './pipeline.ts';
 
 export interface WorkerDeps {
   pool: Pool;
@@ -47,7 +47,15 @@ export interface Worker {
 const AUTO_FIT_CHECK_MS = 30_000;
 const RETRY_MS = 1_000;
 /** Most units analysed in one transaction. */
-const GROUP_UNITS = 32;
+const GROUP_UNITS = 16;
+/**
+ * Rounds in flight per unit of configured concurrency. A live round is mostly waits on the
+ * database (per unit a few short statements of the start and alert rules), so several rounds
+ * in flight overlap those waits; the analysis itself still runs one round at a time.
+ */
+const LANES_PER_SLOT = 3;
+/** Connections of the pool kept for the listener, the claim cycle, the sweep and the alert jobs. */
+const RESERVED_CONNECTIONS = 4;
 
 export async function startWorker(deps: WorkerDeps): Promise<Worker> {
   const { pool, config } = deps;
@@ -64,7 +72,10 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
     raise: defaultThresholds,
     hold: deadbandThresholds(defaultThresholds, alertSettings),
     memory: new Map(),
+    holdRollups: true,
   };
+  /** Units whose held rollups the next round writes, whether or not new rings came. */
+  const writeRollupsFor = new Set<string>();
 
   const owned = new Set<string>();
   const dirty = new Set<string>();
@@ -85,15 +96,16 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
   /** Units whose last group failed: analysed alone until they succeed, so one cannot hold back others. */
   const solo = new Set<string>();
   let groups = 0;
+  const lanes = Math.max(s.concurrency, Math.min(s.concurrency * LANES_PER_SLOT, config.poolMax - RESERVED_CONNECTIONS));
 
-  /** Starts groups of waiting units (up to GROUP_UNITS each) while fewer than `concurrency` run. */
+  /** Starts groups of waiting units (up to GROUP_UNITS each) while fewer than `lanes` run. */
   function pump(): void {
     if (stopped) return;
-    while (groups < s.concurrency) {
+    while (groups < lanes) {
       let waiting = 0;
       for (const id of dirty) if (!running.has(id)) waiting++;
-      // Share the waiting units among the free slots, so a backlog keeps every slot busy.
-      const size = Math.min(GROUP_UNITS, Math.max(1, Math.ceil(waiting / (s.concurrency - groups))));
+      // Share the waiting units among the free lanes, so a backlog keeps every lane busy.
+      const size = Math.min(GROUP_UNITS, Math.max(1, Math.ceil(waiting / (lanes - groups))));
       const group: string[] = [];
       for (const id of dirty) {
         if (running.has(id)) continue;
@@ -138,7 +150,9 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
     try {
       const ids: string[] = [];
       for (const id of unitIds) if (await lateRings(id)) ids.push(id);
-      const results = await analyseGroup(pc, ids);
+      const write = new Set(ids.filter((id) => writeRollupsFor.has(id)));
+      const results = await analyseGroup(pc, ids, { writeRollups: write });
+      for (const id of write) writeRollupsFor.delete(id);
       for (const [unitId, r] of results) {
         solo.delete(unitId);
         if (r.status === 'lost') {
@@ -276,6 +290,14 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
   await claimCycle();
   claimTimer = setTimeout(claimLoop, s.claimEveryS * 1000);
 
+  // Held rollups of units whose rings stopped coming are written by a round of their own.
+  const rollupTimer = setInterval(() => {
+    const due = rollupsDue(pc).filter((id) => owned.has(id));
+    for (const id of due) writeRollupsFor.add(id);
+    mark(due);
+  }, ROLLUP_HOLD_MS / 2);
+  rollupTimer.unref();
+
   const listener = startListener(pool, log, (units) => mark(units === '*' ? owned : units));
   const sweepTask = cron.schedule(s.sweepCron, safely('sweep', sweep), { noOverlap: true, name: `sweep-${workerId}` });
   const driftTask = cron.schedule(
@@ -299,11 +321,18 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
       for (const id of owned) invalidateInputs(pc, id);
       return r;
     },
-    settled() {
-      return new Promise<void>((resolve) => {
-        waiters.push(resolve);
-        checkSettled();
-      });
+    async settled() {
+      // Idle, with every held rollup written.
+      for (;;) {
+        await new Promise<void>((resolve) => {
+          waiters.push(resolve);
+          checkSettled();
+        });
+        const due = rollupsDue(pc, true).filter((id) => owned.has(id));
+        if (due.length === 0 || stopped) return;
+        for (const id of due) writeRollupsFor.add(id);
+        mark(due);
+      }
     },
     async stop() {
       if (stopped) return;
@@ -311,9 +340,13 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
       await sweepTask.destroy();
       await driftTask.destroy();
       if (claimTimer) clearTimeout(claimTimer);
+      clearInterval(rollupTimer);
       await listener.stop();
       await alertJobs.stop();
       await Promise.allSettled([...jobs, ...running.values()]);
+      // Write the rollups still held (a worker that dies instead leaves them to be recomputed).
+      const held = rollupsDue(pc, true).filter((id) => owned.has(id));
+      if (held.length) await analyseGroup(pc, held, { writeRollups: new Set(held) }).catch((err) => log.warn({ err: (err as Error).message, units: held.length }, 'could not write held rollups'));
       await retireWorker(pool, workerId).catch((err) => log.warn({ err: (err as Error).message }, 'could not give units back'));
       log.info('worker stopped');
     },

@@ -27,6 +27,8 @@ import {
   recordInOrderBatches,
   writeRollupsMany,
   insertRollupsMany,
+  firstAnalysisAfter,
+  setRollupsTo,
   lockUnits,
   type RingColumns,
   type RollupRow,
@@ -57,6 +59,13 @@ export interface PipelineContext {
   hold: Thresholds;
   /** Per-unit memory kept between rounds. */
   memory: Map<string, UnitMemory>;
+  /**
+   * Keep the rollups of a unit receiving rings live in memory and write them every
+   * ROLLUP_HOLD_MS (or when the hour turns) instead of with every round. Only for a worker that
+   * flushes them (on its timer, when settled and when it stops); off for tools and tests that
+   * call the pipeline directly.
+   */
+  holdRollups?: boolean;
 }
 
 export interface UnitMemory {
@@ -72,7 +81,21 @@ export interface UnitMemory {
   /** When the first baseline is due (first steady ring + baselineAutoDays), once known. */
   autoFitDueMs: number | null;
   autoFitFromMs: number | null;
+  /**
+   * Rollups of in-order rings analysed and committed but not written yet: exactly the rings after
+   * the stored rollups_to up to the watermark. Kept only together with the analyser's memory.
+   */
+  rollups: RollupAccumulator | null;
+  /** Wall time the held rollups were started. */
+  rollupsSince: number;
 }
+
+/** Longest a unit's rollups are held in memory before they are written. */
+export const ROLLUP_HOLD_MS = 10_000;
+/** A round holds its rollups only when it analysed at most this many rings of the unit… */
+const HOLD_MAX_RINGS = 16;
+/** …and its newest ring is at most this old (live arrival, not a backlog). */
+const HOLD_MAX_AGE_MS = 5 * 60_000;
 
 /** Inputs (configuration versions, baseline, drift) are re-read at most this often. */
 const INPUTS_TTL_MS = 30_000;
@@ -80,7 +103,11 @@ const NO_CLAIM = 'no lease check';
 
 export function memoryOf(pc: PipelineContext, unitId: string): UnitMemory {
   let m = pc.memory.get(unitId);
-  if (!m) pc.memory.set(unitId, (m = { analyser: null, watermarkMs: null, inputs: null, inputsLoadedAt: 0, baselineVersion: null, driftStamp: null, lastAutoFitCheck: 0, autoFitDueMs: null, autoFitFromMs: null }));
+  if (!m)
+    pc.memory.set(
+      unitId,
+      (m = { analyser: null, watermarkMs: null, inputs: null, inputsLoadedAt: 0, baselineVersion: null, driftStamp: null, lastAutoFitCheck: 0, autoFitDueMs: null, autoFitFromMs: null, rollups: null, rollupsSince: 0 }),
+    );
   return m;
 }
 
@@ -166,7 +193,18 @@ export async function analyseNextBatch(pc: PipelineContext, unitId: string): Pro
  * most max(500, batchRings / units) rings. Per unit, the start analysis and the alert rules run
  * on its batch inside the same transaction.
  */
-export async function analyseGroup(pc: PipelineContext, unitIds: string[]): Promise<Map<string, { status: RoundStatus; rings: number }>> {
+/** Units of the worker's memory whose held rollups are due to be written (all with `all`). */
+export function rollupsDue(pc: PipelineContext, all = false, now = Date.now()): string[] {
+  const out: string[] = [];
+  for (const [id, m] of pc.memory) if (m.rollups && (all || now - m.rollupsSince >= ROLLUP_HOLD_MS)) out.push(id);
+  return out;
+}
+
+export async function analyseGroup(
+  pc: PipelineContext,
+  unitIds: string[],
+  opts: { writeRollups?: ReadonlySet<string> } = {},
+): Promise<Map<string, { status: RoundStatus; rings: number }>> {
   const results = new Map<string, { status: RoundStatus; rings: number }>();
   const batch = pc.config.worker.batchRings;
   const perUnit = Math.max(Math.min(500, batch), Math.floor(batch / Math.max(1, unitIds.length)));
@@ -186,6 +224,14 @@ export async function analyseGroup(pc: PipelineContext, unitIds: string[]): Prom
         inputs.set(id, await loadInputs(pc, id, mem));
         if (!mem.analyser || mem.watermarkMs !== p.watermarkMs) {
           mem.analyser = null;
+          mem.rollups = null;
+          // Rollups held by a worker that stopped without writing them (or by this one before a
+          // rollback or a late-ring re-analysis): recompute those hours from stored analysis.
+          if (p.watermarkMs !== null && p.rollupsToMs < p.watermarkMs) {
+            const from = await firstAnalysisAfter(client, id, p.rollupsToMs);
+            if (from !== null && from <= p.watermarkMs) await recomputeRollups(client, id, from, p.watermarkMs);
+            await setRollupsTo(client, [{ unitId: id, toMs: p.watermarkMs }]);
+          }
           mem.analyser = await primedAnalyser(client, id, inputs.get(id) as AnalyserInputs, p.watermarkMs);
           mem.watermarkMs = p.watermarkMs;
         }
@@ -200,19 +246,31 @@ export async function analyseGroup(pc: PipelineContext, unitIds: string[]): Prom
       const enc = new AnalysisEncoder();
       const accs = new Map<string, RollupAccumulator>();
       const observationsByUnit = new Map<string, BatchObservation[]>();
-      const logged: { unitId: string; fromMs: number; toMs: number; rings: number }[] = [];
+      const logged: { unitId: string; fromMs: number; toMs: number; rings: number; rollupsToMs: number | null }[] = [];
+      const flushed: { unitId: string; toMs: number }[] = [];
+      const now = Date.now();
       let total = 0;
       for (const id of held) {
         const rings = ringsByUnit.get(id);
         if (!rings || rings.count === 0) {
           results.set(id, { status: 'idle', rings: 0 });
+          // Nothing new, but held rollups asked for: write them.
+          const mem = memoryOf(pc, id);
+          const p = progress.get(id) as UnitProgress;
+          if (mem.rollups && opts.writeRollups?.has(id) && p.watermarkMs !== null) {
+            accs.set(id, mem.rollups);
+            flushed.push({ unitId: id, toMs: p.watermarkMs });
+            mem.rollups = null;
+          }
           continue;
         }
         const mem = memoryOf(pc, id);
         const analyser = mem.analyser as UnitAnalyser;
-        // From here the analyser's memory runs ahead of the database until COMMIT.
+        // From here the analyser's memory (and the held rollups) run ahead of the database until COMMIT.
         mem.watermarkMs = NaN;
-        const acc = new RollupAccumulator();
+        const acc = mem.rollups ?? new RollupAccumulator();
+        const since = mem.rollups ? mem.rollupsSince : now;
+        mem.rollups = null;
         const observations: BatchObservation[] = [];
         for (let j = 0; j < rings.count; j++) {
           const r = analyser.analyse(rings, j);
@@ -220,20 +278,37 @@ export async function analyseGroup(pc: PipelineContext, unitIds: string[]): Prom
           acc.add(r.row);
           if (r.raise && r.hold) observations.push({ ts: new Date(rings.tsMs[j]), raise: r.raise, hold: r.hold });
         }
-        accs.set(id, acc);
         observationsByUnit.set(id, observations);
         const first = rings.tsMs[0];
         const last = rings.tsMs[rings.count - 1];
-        logged.push({ unitId: id, fromMs: first, toMs: last, rings: rings.count });
+        const hold =
+          pc.holdRollups === true &&
+          !opts.writeRollups?.has(id) &&
+          rings.count <= HOLD_MAX_RINGS &&
+          now - last <= HOLD_MAX_AGE_MS &&
+          now - since < ROLLUP_HOLD_MS &&
+          acc.hourBuckets().length === 1;
+        if (hold) {
+          mem.rollups = acc;
+          mem.rollupsSince = since;
+        } else accs.set(id, acc);
+        logged.push({ unitId: id, fromMs: first, toMs: last, rings: rings.count, rollupsToMs: hold ? null : last });
         newWatermarks.set(id, last);
         results.set(id, { status: rings.count >= perUnit ? 'more' : 'done', rings: rings.count });
         total += rings.count;
       }
-      if (total === 0) return;
+      if (total === 0) {
+        if (accs.size) {
+          await writeRollupsOf(client, accs);
+          await setRollupsTo(client, flushed);
+        }
+        return;
+      }
       const t3 = performance.now();
       await writeAnalysis(client, pc.pool, enc);
       const t4 = performance.now();
-      await writeRollupsOf(client, accs);
+      if (accs.size) await writeRollupsOf(client, accs);
+      await setRollupsTo(client, flushed);
       await recordInOrderBatches(client, pc.workerId ?? NO_CLAIM, logged);
       const t5 = performance.now();
       for (const { unitId: id } of logged) {
@@ -251,7 +326,10 @@ export async function analyseGroup(pc: PipelineContext, unitIds: string[]): Prom
     // The transaction rolled back: the memory may be ahead of what is stored.
     for (const id of ids) {
       const mem = pc.memory.get(id);
-      if (mem) mem.analyser = null;
+      if (mem) {
+        mem.analyser = null;
+        mem.rollups = null;
+      }
     }
     throw err;
   }
@@ -334,8 +412,10 @@ export async function reanalyseSpan(pc: PipelineContext, unitId: string, fromMs:
     await logBatch(client, { unitId, workerId: pc.workerId ?? NO_CLAIM, kind, fromMs: rings.tsMs[0], toMs: rings.tsMs[rings.count - 1], rings: rings.count });
     return rings.count;
   });
-  // The in-order memory may cover rings just re-analysed: rebuild it next round.
+  // The in-order memory may cover rings just re-analysed: rebuild it next round (the held
+  // rollups with it: the hours after rollups_to are recomputed then).
   mem.analyser = null;
+  mem.rollups = null;
   if (n === null) pc.memory.delete(unitId);
   return n;
 }
