@@ -231,19 +231,35 @@ function objectEnd(b: Uint8Array, p: number, end: number): number {
 
 /**
  * A JSON batch body found to be exactly { "rings": [ {…}, … ] }: the body, each ring's span,
- * and the reader holding the values of every ring in the common form (fast[i] = 1).
+ * and the reader holding the values of every ring in the common form (fast[i] = 1). release()
+ * hands the reader, with the storage it has grown, to the next batch.
  */
 export class RingBatchBytes {
+  private released = false;
   constructor(
     readonly body: Buffer,
-    readonly starts: number[],
-    readonly ends: number[],
+    readonly starts: Int32Array,
+    readonly ends: Int32Array,
     readonly fast: Uint8Array,
     readonly reader: RingBytesReader,
   ) {}
   get length(): number {
     return this.starts.length;
   }
+  /** Ends the use of this batch's spans and values. */
+  release(): void {
+    if (this.released) return;
+    this.released = true;
+    giveBack(this.reader);
+  }
+}
+
+/** Readers with their storage, kept between batches (a few; more are made when needed). */
+const spareReaders: RingBytesReader[] = [];
+const MAX_SPARE_READERS = 8;
+
+function giveBack(reader: RingBytesReader): void {
+  if (spareReaders.length < MAX_SPARE_READERS) spareReaders.push(reader);
 }
 
 const RINGS_KEY = Buffer.from('"rings"', 'latin1');
@@ -268,43 +284,47 @@ export function readRingBatch(body: Buffer): RingBatchBytes | null {
   p = skipSpace(b, p + 1, end);
   if (p >= end || b[p] !== LBRACKET) return null;
   p = skipSpace(b, p + 1, end);
-  const reader = new RingBytesReader();
-  const starts: number[] = [];
-  const ends: number[] = [];
-  let fast = new Uint8Array(1024);
-  if (p < end && b[p] === RBRACKET) p++;
-  else {
+  const reader = spareReaders.pop() ?? new RingBytesReader();
+  reader.startBatch();
+  let n = 0;
+  let closed = false;
+  if (p < end && b[p] === RBRACKET) {
+    p++;
+    closed = true;
+  } else {
     for (;;) {
-      const n = starts.length;
-      if (n === fast.length) {
-        const more = new Uint8Array(n * 2);
-        more.set(fast);
-        fast = more;
-      }
+      reader.spanRoom(n);
       let q = reader.readAt(b, p, end);
       if (q >= 0) {
         reader.save(n);
-        fast[n] = 1;
+        reader.spanFast[n] = 1;
       } else {
         q = objectEnd(b, p, end);
-        if (q < 0) return null;
+        if (q < 0) break;
+        reader.spanFast[n] = 0;
       }
-      starts.push(p);
-      ends.push(q);
+      reader.spanStarts[n] = p;
+      reader.spanEnds[n] = q;
+      n++;
       p = skipSpace(b, q, end);
-      if (p >= end) return null;
+      if (p >= end) break;
       if (b[p] === RBRACKET) {
         p++;
+        closed = true;
         break;
       }
-      if (b[p] !== COMMA) return null;
+      if (b[p] !== COMMA) break;
       p = skipSpace(b, p + 1, end);
     }
   }
-  p = skipSpace(b, p, end);
-  if (p >= end || b[p] !== RBRACE) return null;
-  p = skipSpace(b, p + 1, end);
-  return p === end ? new RingBatchBytes(body, starts, ends, fast.subarray(0, starts.length), reader) : null;
+  if (closed) {
+    p = skipSpace(b, p, end);
+    if (p < end && b[p] === RBRACE && skipSpace(b, p + 1, end) === end) {
+      return new RingBatchBytes(body, reader.spanStarts.subarray(0, n), reader.spanEnds.subarray(0, n), reader.spanFast.subarray(0, n), reader);
+    }
+  }
+  giveBack(reader);
+  return null;
 }
 
 /**
@@ -342,6 +362,10 @@ export class RingBytesReader {
   private savedNums = new Float64Array(8 * 64);
   private savedReadings = new Float64Array(64 * 24);
   private savedTop = 0;
+  /** Where each ring of a batch starts and ends, and whether it was read (1) or only checked (0). */
+  spanStarts = new Int32Array(64);
+  spanEnds = new Int32Array(64);
+  spanFast = new Uint8Array(64);
   private lastUnitBytes: Uint8Array = new Uint8Array(0);
   private lastUnit = '';
   private dayKey = -1;
@@ -566,6 +590,26 @@ export class RingBytesReader {
       if (b[p] !== COMMA) return -1;
       p = skipSpace(b, p + 1, end);
     }
+  }
+
+  /** Starts keeping the rings of a new batch (storage grown for earlier ones is reused). */
+  startBatch(): void {
+    this.savedTop = 0;
+  }
+
+  /** Makes room for ring `slot` of a batch in the span arrays. */
+  spanRoom(slot: number): void {
+    if (slot < this.spanStarts.length) return;
+    const size = this.spanStarts.length * 2;
+    const starts = new Int32Array(size);
+    starts.set(this.spanStarts);
+    this.spanStarts = starts;
+    const ends = new Int32Array(size);
+    ends.set(this.spanEnds);
+    this.spanEnds = ends;
+    const fast = new Uint8Array(size);
+    fast.set(this.spanFast);
+    this.spanFast = fast;
   }
 
   /** Keeps the values of the ring just read as ring `slot` of a batch (slots in increasing order). */

@@ -162,6 +162,7 @@ export async function ingestRoutes(app: FastifyInstance): Promise<void> {
         else if (run.add(v)) await run.flush();
       }
     });
+    if (rings === null) (body as RingBatchBytes).release();
     assertSomethingUsable(tally, 'rings');
     request.log.info({ unitId, accepted: tally.accepted, duplicates: tally.duplicates, rejected: tally.rejectedCount }, 'rings stored');
     return tally;

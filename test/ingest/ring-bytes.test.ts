@@ -248,12 +248,28 @@ describe('the batch scanner', () => {
     expect(taken).toEqual([true, false, true, false, false, false, true, false]);
   });
 
+  it('a batch handed back lends its reader to the next one, which reads its own rings', () => {
+    const ringAt = (hour: number, reading: number) => `{"ts":"2026-03-01T0${hour}:00:00Z","loadMw":21.4,"ambientC":12.5,"ambientKPa":100.9,"speedPct":100,"exhaustC":[${reading},${reading + 1},null,${reading + 2}]}`;
+    const first = readRingBatch(Buffer.from(`{"rings":[${ringAt(1, 500)},${ringAt(2, 510)},${ringAt(3, 520)}]}`))!;
+    first.release();
+    const mv = `{${base},"exhaustMv":[22,22.5,null,23],"coldJunctionC":25}`;
+    const body = Buffer.from(`{"rings":[${mv},${ringAt(4, 600)}]}`);
+    const second = readRingBatch(body)!;
+    expect(second.reader).toBe(first.reader);
+    expect(Array.from(second.fast)).toEqual([0, 1]);
+    second.reader.load(body, 1);
+    expect(second.reader.check(UNIT, ctx())).toBe(true);
+    expect(bits(second.reader.row)).toBe(bits(validateRing(JSON.parse(ringAt(4, 600)), UNIT, ctx()) as RingRow));
+    second.release();
+  });
+
   it('leaves every other body to the general parser', () => {
     for (const body of [
       '', ' ', '{}', '[]', '{"rings":{}}', '{"rings":[1]}', '{"rings":[[]]}', '{"rings":[null]}', '{"rings":[],"x":1}', '{"x":1,"rings":[]}',
       '{"rings":[{"__proto__":{}}]}', '{"rings":[{"constructor":{"prototype":{}}}]}', '{"rings":[{"ts":{"a":1}}]}',
       '{"rings":[{"x":1}]}', '{"rings":[{"t\\u0073":"x"}]}', '\ufeff{"rings":[]}', '{"rings":[]', '{"rings":[]}}', '{"rings":[{}]} {}',
       '{"rings":[{"ts":"a\nb"}]}', '{"rings":[{"ts":"\\x"}]}', '{"rings":[{"loadMw":01}]}', "{'rings':[]}", '{"rings":[{},]}',
+      '{"rings":[{"loadMw":1}}', '{"rings":[{"loadMw":1}', '{"rings":[{"loadMw":1} {"loadMw":2}]}', '{"rings":[{"loadMw":1}],}',
     ]) {
       expect(readRingBatch(Buffer.from(body)), body).toBeNull();
     }
