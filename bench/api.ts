@@ -10,6 +10,9 @@
  * server thread was, its GC and loop delay, requests waiting for a database connection, and the
  * PostgreSQL CPU per request (embedded server only). BENCH_CPU_PROFILE=DIR also writes a V8 CPU
  * profile of the server thread per route (DIR/fleet.cpuprofile, DIR/status.cpuprofile).
+ * BENCH_WRITES_PER_S=N commits N analysis-progress updates per second while each route runs
+ * (the routes' cached answers then go stale as they would with a worker analysing); the default
+ * is none, and the JSON line says which.
  */
 import autocannon from 'autocannon';
 import { readdirSync, readFileSync } from 'node:fs';
@@ -29,6 +32,7 @@ import type { UnitConfig } from '../services/core/types.ts';
 const UNITS = Number(process.env.BENCH_UNITS ?? 1000);
 const CONNECTIONS = 50;
 const DURATION_S = Number(process.env.BENCH_DURATION_S ?? 10);
+const WRITES_PER_S = Number(process.env.BENCH_WRITES_PER_S ?? 0);
 const TREND_RUNS = 20;
 const HOUR = 3_600_000;
 const DAY = 86_400_000;
@@ -92,7 +96,7 @@ async function main(): Promise<void> {
     const now = Date.now();
     const tag = now.toString(36);
     const ids = Array.from({ length: UNITS }, (_, i) => `bench-${tag}-${i}`);
-    log(`api benchmark: ${UNITS} units, ${CONNECTIONS} concurrent clients, ${DURATION_S} s per route`);
+    log(`api benchmark: ${UNITS} units, ${CONNECTIONS} concurrent clients, ${DURATION_S} s per route${WRITES_PER_S ? `, ${WRITES_PER_S} progress updates per second meanwhile` : ''}`);
     let t0 = performance.now();
     const units = createUnitsRepository(pool);
     for (const id of ids) await units.create({ id, name: `Bench unit ${id.split('-').at(-1)}`, site: 'Bench' }, config, 'bench');
@@ -158,7 +162,16 @@ async function main(): Promise<void> {
       await ask({ cmd: 'begin', profile: profileDir ? path.resolve(profileDir, `${name}.cpuprofile`) : null }, 'begun');
       const cpu0 = process.cpuUsage();
       const pg0 = postgresCpuS(server?.dataDir);
+      // BENCH_WRITES_PER_S: meanwhile, commit that many analysis-progress updates per second
+      // (round the units, as the worker's batches do), so cached answers keep going stale.
+      let w = 0;
+      const writer = WRITES_PER_S > 0
+        ? setInterval(() => {
+            pool.query(`UPDATE analysis_progress SET updated_at = now() WHERE unit_id = $1`, [ids[w++ % ids.length]]).catch(() => {});
+          }, 1000 / WRITES_PER_S)
+        : null;
       const r = await load(base, key, paths);
+      if (writer) clearInterval(writer);
       const cpu = process.cpuUsage(cpu0);
       const pg1 = postgresCpuS(server?.dataDir);
       const s = await ask<PhaseStats>({ cmd: 'end' }, 'stats');
@@ -214,6 +227,7 @@ async function main(): Promise<void> {
       units: UNITS,
       connections: CONNECTIONS,
       durationS: DURATION_S,
+      writesPerS: WRITES_PER_S,
       fleet: { p50Ms: fleet.p50, p99Ms: fleet.p99, reqPerS: fleet.rps, errors: fleet.errors + fleet.non2xx, where: fleet.where },
       status: { p50Ms: status.p50, p99Ms: status.p99, reqPerS: status.rps, errors: status.errors + status.non2xx, where: status.where },
       yearTrendMs: { json: trendJson.median, svg: trendSvg.median, jsonMax: trendJson.max, svgMax: trendSvg.max },
