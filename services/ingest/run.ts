@@ -36,9 +36,19 @@ export interface IngestRunOptions {
 
 export const DEFAULT_MAX_LISTED = 1000;
 
+/**
+ * A chunk's write runs while the next chunk is read and encoded (two encoders take turns), so
+ * reading and PostgreSQL work overlap; at most one write is in flight. Its outcome is taken in
+ * before the next write, before any other statement on the connection, and before the commit.
+ */
 export class IngestRun {
-  private readonly enc: RingCopyEncoder;
+  private enc: RingCopyEncoder;
+  private spare: RingCopyEncoder | null = null;
   private write: RingWrite | null = null;
+  private inFlight: Promise<void> | null = null;
+  private pendingError: unknown = null;
+  /** Rings in the write in flight. */
+  private inFlightRings = 0;
   private sinceCommit = 0;
   readonly tally: IngestTally = { accepted: 0, duplicates: 0, rejected: [], rejectedCount: 0 };
   private readonly maxListed: number;
@@ -46,8 +56,12 @@ export class IngestRun {
   committedAccepted = 0;
 
   constructor(private readonly pool: Pool, private readonly opts: IngestRunOptions) {
-    this.enc = new RingCopyEncoder(Math.min(64 << 20, Math.max(1 << 16, opts.chunkRings * 320)));
+    this.enc = this.encoder();
     this.maxListed = opts.maxListed ?? DEFAULT_MAX_LISTED;
+  }
+
+  private encoder(): RingCopyEncoder {
+    return new RingCopyEncoder(Math.min(64 << 20, Math.max(1 << 16, this.opts.chunkRings * 320)));
   }
 
   private async session(): Promise<RingWrite> {
@@ -55,11 +69,26 @@ export class IngestRun {
     return this.write;
   }
 
+  /** Waits for the write in flight, if any; throws its error. */
+  private async settle(): Promise<void> {
+    const p = this.inFlight;
+    if (p !== null) {
+      this.inFlight = null;
+      await p;
+    }
+    if (this.pendingError !== null) {
+      const err = this.pendingError;
+      this.pendingError = null;
+      throw err;
+    }
+  }
+
   /**
    * Configuration versions of a unit, read on this run's own connection so that a run never
    * holds one connection while waiting for a second. [] for an unknown unit.
    */
   async unitVersions(unitId: string): Promise<ConfigVersionRecord[]> {
+    await this.settle();
     const w = await this.session();
     return createUnitsRepository((await w.connection()) as unknown as pg.Pool).versions(unitId);
   }
@@ -75,23 +104,43 @@ export class IngestRun {
     return this.enc.count >= this.opts.chunkRings;
   }
 
+  /** Rings added and not yet written (being encoded, or in the write in flight). */
   get pending(): number {
-    return this.enc.count;
+    return this.enc.count + this.inFlightRings;
   }
 
+  /**
+   * Starts writing the pending rings (after the write before them has finished) and returns;
+   * the next chunk is encoded meanwhile.
+   */
   async flush(): Promise<void> {
     if (this.enc.count === 0) return;
-    const w = await this.session();
-    const n = this.enc.count;
-    const r = await w.write(this.enc);
-    this.enc.reset();
-    this.tally.accepted += r.accepted;
-    this.tally.duplicates += r.duplicates;
-    this.sinceCommit += n;
+    await this.settle();
     if (this.opts.commitEveryRings !== undefined && this.sinceCommit >= this.opts.commitEveryRings) await this.commit();
+    const w = await this.session();
+    const enc = this.enc;
+    this.enc = this.spare ?? this.encoder();
+    this.spare = null;
+    const n = enc.count;
+    this.sinceCommit += n;
+    this.inFlightRings = n;
+    this.inFlight = w.write(enc).then(
+      (r) => {
+        this.inFlightRings = 0;
+        this.tally.accepted += r.accepted;
+        this.tally.duplicates += r.duplicates;
+        enc.reset();
+        this.spare = enc;
+      },
+      (err: unknown) => {
+        this.inFlightRings = 0;
+        this.pendingError = err;
+      },
+    );
   }
 
   private async commit(): Promise<void> {
+    await this.settle();
     const w = this.write;
     this.write = null;
     this.sinceCommit = 0;
@@ -114,6 +163,10 @@ export class IngestRun {
 
   /** Abandons the uncommitted part; nothing of it becomes visible. */
   async abort(): Promise<void> {
+    const p = this.inFlight;
+    this.inFlight = null;
+    this.pendingError = null;
+    if (p !== null) await p; // never rejects: its error was kept, and is dropped with the write
     const w = this.write;
     this.write = null;
     this.enc.reset();
