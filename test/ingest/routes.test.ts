@@ -239,6 +239,19 @@ describe('NDJSON stream', () => {
     expect(res.json().message).toMatch(/No line of the body is JSON/);
   });
 
+  it('a unit first named after a chunk that met stored rings is looked up once that chunk is written; exact counts', async () => {
+    await postBatch(t, 'u7', Array.from({ length: 10 }, (_, i) => ring(6000 + i)));
+    // Chunks of 7: the first two meet stored rings (the slow way) while the next lines are read;
+    // u1 first appears after them, and its configuration is read on the same connection.
+    const lines = [
+      ...Array.from({ length: 16 }, (_, i) => ({ unitId: 'u7', ...ring(6000 + i) })),
+      ...Array.from({ length: 5 }, (_, i) => ({ unitId: 'u1', ...ring(6100 + i) })),
+    ];
+    const res = await postNdjson(t, ndjson(lines));
+    expect(res.json()).toMatchObject({ accepted: 11, duplicates: 10, rejectedCount: 0 });
+    expect(await readRings(t.db.pool, 'u7', tsAt(6000), tsAt(6100), 100)).toHaveLength(16);
+  });
+
   it('a re-sent stream counts every ring as a duplicate', async () => {
     const body = ndjson(Array.from({ length: 30 }, (_, i) => ({ unitId: i % 2 ? 'u5' : 'u6', ...ring(4000 + i) })));
     expect((await postNdjson(t, body)).json()).toMatchObject({ accepted: 30, duplicates: 0 });
