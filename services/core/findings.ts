@@ -62,7 +62,13 @@ export interface Thresholds {
   /** Change in spread between consecutive steady rings: warning / alarm levels. */
   spreadJumpWarningDegC: number;
   spreadJumpAlarmDegC: number;
-  /** Chamber residual below −level (after the baseline and common mode): grades. */
+  /**
+   * Chamber residual below −level (after the baseline and common mode): grades. The warnings
+   * (12 °C cold and hot, engineering judgement) are four times the largest residual healthy
+   * simulated units showed over weeks (about 3 °C: chamber residuals are the map of each
+   * thermocouple's departure from its own normal, ring.ts baselineResiduals), and close to the
+   * 10 °C depth at which a plugging nozzle is worth an engineer's look.
+   */
   chamberColdWarningDegC: number;
   chamberColdAlarmDegC: number;
   chamberColdCriticalDegC: number;
@@ -78,10 +84,12 @@ export interface Thresholds {
    * per cent, seen through the plume fit, departs from the average chamber by up to about 40 °C
    * (healthy base-load spreads of 15–45 °C are common practice), so at 1.5 (a warning at 30 °C)
    * healthy units with one thermocouple per chamber raised chamber warnings whenever they ran at
-   * a load their baseline had no bin for. At 2.5 a warning needs 50 °C and an alarm 100 °C;
-   * a lost flame (order 100 °C and more) is still an alarm or critical at once.
+   * a load their baseline had no bin for. At 2.5 a cold alarm needs 100 °C; a lost flame
+   * (order 100 °C and more) is still an alarm or critical at once.
    */
   noBaselineChamberFactor: number;
+  /** Without a baseline at this load, a chamber warning needs this residual, °C (for the same reason: 50). */
+  chamberNoBaselineWarningDegC: number;
   /** Swirl uncertainty for the runner-up chamber's likelihood, degrees. */
   swirlUncertaintyDeg: number;
   /**
@@ -113,14 +121,15 @@ export const defaultThresholds: Thresholds = {
   spreadCriticalExcessDegC: 40,
   spreadJumpWarningDegC: 15,
   spreadJumpAlarmDegC: 40,
-  chamberColdWarningDegC: 20,
+  chamberColdWarningDegC: 12,
   chamberColdAlarmDegC: 40,
   chamberColdCriticalDegC: 80,
-  chamberHotWarningDegC: 20,
+  chamberHotWarningDegC: 12,
   chamberHotAlarmDegC: 35,
   chamberHotCriticalDegC: 60,
   chamberMinZ: 3,
   noBaselineChamberFactor: 2.5,
+  chamberNoBaselineWarningDegC: 50,
   swirlUncertaintyDeg: 8,
   driftWarningDegCPer30Days: 5,
   driftAlarmDegCPer30Days: 15,
@@ -160,7 +169,7 @@ export interface FindingInput {
    * thermocouple that departs alone) and that thermocouple. Without them a chamber's residual
    * is its deviation less its chamber baseline.
    */
-  residuals?: Pick<BaselineResiduals, 'thermocoupleDegC' | 'chamberDegC' | 'lone'> | null;
+  residuals?: Pick<BaselineResiduals, 'thermocoupleDegC' | 'chamberDegC' | 'chamberUncertaintyDegC' | 'lone'> | null;
   /**
    * The plume kernel's response at each thermocouple's left and right neighbour, relative to
    * its peak (UnitContext.responseLeft / responseRight): how much of a chamber's plume peaking
@@ -337,6 +346,19 @@ function coverageFinding(a: RingAnalysis, t: Thresholds, version: number | null,
   });
 }
 
+/** Spread of the valid readings without thermocouple index `skip`, °C. */
+function spreadWithout(a: RingAnalysis, skip: number): number {
+  let lo = Infinity;
+  let hi = -Infinity;
+  for (let i = 0; i < a.thermocoupleCount; i++) {
+    const d = a.deviationDegC[i];
+    if (i === skip || !Number.isFinite(d)) continue;
+    if (d < lo) lo = d;
+    if (d > hi) hi = d;
+  }
+  return hi - lo;
+}
+
 function spreadFindings(input: FindingInput, t: Thresholds, version: number | null, out: Finding[]): void {
   const dd = (v: number) => differenceText(v, input.temperatureUnit);
   const a = input.analysis;
@@ -344,22 +366,40 @@ function spreadFindings(input: FindingInput, t: Thresholds, version: number | nu
   if (!Number.isFinite(s.spreadDegC) || s.validCount < 2) return;
   const { limitDegC, fromBaseline } = spreadLimitDegC(input.baseline, a.loadFraction, t);
   const excess = s.spreadDegC - limitDegC;
+  // The chamber a spread points at: the one furthest from its normal when residuals are known
+  // (a hot chamber raises the spread from the top), else the coldest on the ring.
+  const mapped = input.baseline ? input.residuals?.chamberDegC ?? null : null;
+  let spreadChamber = a.coldestChamber;
+  if (mapped) {
+    let worst = -1;
+    for (let k = 0; k < mapped.length; k++) if (Number.isFinite(mapped[k]) && (worst < 0 || Math.abs(mapped[k]) > Math.abs(mapped[worst]))) worst = k;
+    if (worst >= 0) spreadChamber = worst + 1;
+  }
   if (excess > 0) {
     const grade: Grade = excess >= t.spreadCriticalExcessDegC ? 'critical' : excess >= t.spreadAlarmExcessDegC ? 'alarm' : 'warning';
-    const tcSuspect = !s.coldestAdjacent && Number.isFinite(s.spreadExcl1DegC) && s.spreadExcl1DegC <= limitDegC;
-    const cold = s.coldestThermocouple;
+    // The sensor that departs alone (residuals.lone), when it is the hottest or the coldest
+    // probe and the spread without it is inside the limit, is the spread's whole cause.
+    const lone = input.baseline ? input.residuals?.lone ?? null : null;
+    const loneCause = lone !== null && (lone.thermocouple === s.hottestThermocouple || lone.thermocouple === s.coldestThermocouple) && spreadWithout(a, lone.thermocouple - 1) <= limitDegC;
+    // With residuals against a baseline, a probe is blamed only on its own departure (above);
+    // without them, when the spread without the coldest probe is inside the limit and the two
+    // coldest are not neighbours (the classic reading of a spread).
+    const tcSuspect = loneCause || (!mapped && !s.coldestAdjacent && Number.isFinite(s.spreadExcl1DegC) && s.spreadExcl1DegC <= limitDegC);
+    const cold = loneCause ? lone!.thermocouple : s.coldestThermocouple;
     const evidence = {
       spreadDegC: r1(s.spreadDegC),
       spreadExcl1DegC: r1(s.spreadExcl1DegC),
       spreadExcl2DegC: r1(s.spreadExcl2DegC),
       limitDegC: r1(limitDegC),
       limitFromBaseline: fromBaseline,
-      coldestThermocouple: cold,
+      coldestThermocouple: s.coldestThermocouple,
+      hottestThermocouple: s.hottestThermocouple,
+      suspectThermocouple: tcSuspect ? cold : null,
       secondColdestThermocouple: s.secondColdestThermocouple,
       coldestAdjacent: s.coldestAdjacent,
       loadFraction: r3(a.loadFraction),
     };
-    const chamber = tcSuspect ? null : a.coldestChamber;
+    const chamber = tcSuspect ? null : spreadChamber;
     out.push({
       kind: 'spread_high',
       grade: tcSuspect ? 'notice' : grade,
@@ -379,7 +419,7 @@ function spreadFindings(input: FindingInput, t: Thresholds, version: number | nu
           ? `compare with the unit's own exhaust spread protection; inspect chamber ${chamber} combustion at the next opportunity`
           : "compare with the unit's own exhaust spread protection readings",
     });
-    if (tcSuspect && cold !== null) {
+    if (tcSuspect && cold !== null && !loneCause) {
       out.push(tcFinding(cold, 'notice', 'isolated_outlier', { spreadDegC: r1(s.spreadDegC), spreadExcl1DegC: r1(s.spreadExcl1DegC), limitDegC: r1(limitDegC) }, version, `thermocouple ${cold} alone makes the spread high`));
     }
   }
@@ -390,7 +430,7 @@ function spreadFindings(input: FindingInput, t: Thresholds, version: number | nu
       out.push({
         kind: 'spread_jump',
         grade: Math.abs(jump) >= t.spreadJumpAlarmDegC ? 'alarm' : 'warning',
-        chamber: a.coldestChamber,
+        chamber: spreadChamber,
         thermocouple: null,
         likelihood: null,
         runnerUpChamber: null,
@@ -428,7 +468,9 @@ function chamberFindings(input: FindingInput, t: Thresholds, version: number | n
   for (let k = 0; k < n; k++) {
     const v = r[k];
     if (!Number.isFinite(v)) continue;
-    const u = a.chamberUncertaintyDegC[k];
+    // With mapped residuals, their own uncertainty: how well the map fits the departures, not
+    // the ring (whose built-in asymmetry the plume kernel fits less well).
+    const u = mapped && input.residuals?.chamberUncertaintyDegC ? input.residuals.chamberUncertaintyDegC[k] : a.chamberUncertaintyDegC[k];
     const sigma = Math.max(Number.isFinite(u) ? u : 0, scale[k]);
     if (Math.abs(v) < t.chamberMinZ * sigma) continue;
     const cold = v < 0;
@@ -436,7 +478,7 @@ function chamberFindings(input: FindingInput, t: Thresholds, version: number | n
     const [w, al, cr] = cold
       ? [t.chamberColdWarningDegC, t.chamberColdAlarmDegC, t.chamberColdCriticalDegC]
       : [t.chamberHotWarningDegC, t.chamberHotAlarmDegC, t.chamberHotCriticalDegC];
-    if (mag < w * factor) continue;
+    if (mag < (usedBaseline ? w : Math.max(w * factor, t.chamberNoBaselineWarningDegC))) continue;
     // Only the deepest chamber of a plume is reported: skip k when a neighbour is deeper in the same sense.
     const l = (k - 1 + n) % n;
     const rr = (k + 1) % n;

@@ -11,6 +11,7 @@ import {
   estimateChambers,
   plumeKernel,
   type ChamberAttribution,
+  type ChamberEstimateOut,
   type ChamberSolver,
   type KernelSpec,
 } from './chambers.ts';
@@ -54,11 +55,23 @@ export interface AnalysisOptions {
   swirlUncertaintyDeg: number;
   /**
    * A thermocouple this far from its own normal while its neighbours hold is reported as a
-   * sensor and left out of the chamber residual map, °C. Engineering judgement: 15 °C is three
-   * times the IEC 60584-1 class 2 tolerance at 600 °C (±4.5 °C), far beyond a healthy
-   * probe's day-to-day wander against its own normal.
+   * sensor and left out of the chamber residual map, °C (measured from the median departure
+   * of all probes). Engineering judgement: 6 °C is well beyond a healthy probe's wander against
+   * its own normal at the same load (its offset is in the normal; what is left is noise of
+   * tenths of a degree and a degree or two of load and ambient effects), and below the chamber
+   * warning (findings.ts, 12 °C) by more than the chamber map amplifies one reading (up to
+   * about 1.6 times with one probe per chamber and narrow plumes), so a sensor is named before
+   * the map could blame a chamber for it.
    */
   loneSensorMinDegC: number;
+  /**
+   * What a neighbour of a lone thermocouple may show besides the plume share, °C: a healthy
+   * probe's ring-to-ring noise against its own normal (about ±0.5 °C in practice and in the
+   * simulator; engineering judgement: 1 °C). Plumes shallower than about 14 °C centred exactly
+   * on a probe, at the narrowest mixing the kernel assumes, can then pass for a sensor until
+   * they deepen; plumes of the usual widths cannot.
+   */
+  loneSensorNoiseDegC: number;
 }
 
 /** Defaults: engineering judgement unless stated in the field's own comment. */
@@ -73,7 +86,8 @@ export const defaultAnalysisOptions: AnalysisOptions = {
   residualFloorDegC: 1,
   minValidForChambers: 3,
   swirlUncertaintyDeg: 8,
-  loneSensorMinDegC: 15,
+  loneSensorMinDegC: 6,
+  loneSensorNoiseDegC: 1,
 };
 
 /** Options that may be given in part; nested groups are merged field by field. */
@@ -482,6 +496,8 @@ export interface BaselineResiduals {
    * (null: too few thermocouples with a residual).
    */
   chamberDegC: Float64Array | null;
+  /** One-σ uncertainty of each chamber residual, from how well the map fits the departures, °C. */
+  chamberUncertaintyDegC: Float64Array | null;
   /**
    * A thermocouple at least `loneSensorMinDegC` from its normal while its neighbours hold
    * (validity.ts loneThermocouple), numbered from 1: a sensor's error, which the chamber map
@@ -497,15 +513,25 @@ export function baselineResiduals(ctx: UnitContext, a: RingAnalysis, baseline: U
     const bb = baseline.thermocouples[i] ? baselineAt(baseline.thermocouples[i], a.loadFraction) : null;
     if (bb) tc[i] = a.deviationDegC[i] - bb.median;
   }
-  const lone = loneThermocouple(tc, ctx.m, ctx.responseLeft, ctx.responseRight, ctx.options.loneSensorMinDegC);
+  // The lone test looks at departures from the ring's common departure (their median): one
+  // probe reading low pulls the ring's centre, and so every other probe's residual, up a little.
+  const finite: number[] = [];
+  for (let i = 0; i < ctx.m; i++) if (Number.isFinite(tc[i])) finite.push(tc[i]);
+  finite.sort((x, y) => x - y);
+  const common = finite.length ? medianOfSorted(finite, finite.length) : 0;
+  const apart = tc.map((v) => v - common);
+  const found = loneThermocouple(apart, ctx.m, ctx.responseLeft, ctx.responseRight, ctx.options.loneSensorMinDegC, 0.5, ctx.options.loneSensorNoiseDegC);
+  const lone = found ? { index: found.index, value: tc[found.index] } : null;
   let mapped: Float64Array = tc;
   if (lone) {
     mapped = tc.slice();
     mapped[lone.index] = NaN;
   }
+  const map = chamberResidualsFromThermocouples(ctx, a.loadFraction, mapped);
   return {
     thermocoupleDegC: tc,
-    chamberDegC: chamberResidualsFromThermocouples(ctx, a.loadFraction, mapped),
+    chamberDegC: map ? map.chamberDeviationDegC : null,
+    chamberUncertaintyDegC: map ? map.chamberUncertaintyDegC : null,
     lone: lone ? { thermocouple: lone.index + 1, residualDegC: lone.value } : null,
   };
 }
@@ -518,9 +544,10 @@ export function baselineResiduals(ctx: UnitContext, a: RingAnalysis, baseline: U
  * whichever thermocouples are usable: leaving a failed or condemned thermocouple out changes
  * how the ring's built-in asymmetry is mapped (so a chamber map less a chamber baseline fitted
  * with every thermocouple would move by degrees), but not how departures from normal are.
- * Returns null when fewer than minValidForChambers thermocouples have a residual.
+ * Returns the chamber residuals with their uncertainties (the ring level is the departures'
+ * common part), or null when fewer than minValidForChambers thermocouples have a residual.
  */
-export function chamberResidualsFromThermocouples(ctx: UnitContext, loadFraction: number, tcResidualDegC: ArrayLike<number>): Float64Array | null {
+export function chamberResidualsFromThermocouples(ctx: UnitContext, loadFraction: number, tcResidualDegC: ArrayLike<number>): ChamberEstimateOut | null {
   const { m, n } = ctx;
   const usable = new Uint8Array(m);
   const values = new Float64Array(m);
@@ -537,5 +564,5 @@ export function chamberResidualsFromThermocouples(ctx: UnitContext, loadFraction
   const solver = solverFor(ctx, loadBinOf(ctx, loadFraction), usable);
   const out = { chamberDeviationDegC: new Float64Array(n), chamberUncertaintyDegC: new Float64Array(n), ringLevelDegC: NaN, fitResidualSdDegC: NaN };
   estimateChambers(solver, values, 0, ctx.options.residualFloorDegC, new Float64Array(m), new Float64Array(n + 1), out);
-  return out.chamberDeviationDegC;
+  return out;
 }

@@ -395,7 +395,8 @@ export function validityReason(code: number): ValidityReason {
  * it (`shareLeft[i]` / `shareRight[i]`: the plume kernel's response at the left / right
  * neighbour of thermocouple i, relative to its peak). Mixing spreads every chamber's plume onto
  * the next thermocouple by at least that share, wherever the swirl puts it; a failing sensor's
- * error stays on the sensor. Null when no candidate, or when a neighbour is unknown (no verdict).
+ * error stays on the sensor. `noise` is added to what a neighbour may show (its own noise).
+ * Null when no candidate, or when a neighbour is unknown (no verdict).
  */
 export function loneThermocouple(
   values: ArrayLike<number>,
@@ -404,6 +405,7 @@ export function loneThermocouple(
   shareRight: ArrayLike<number>,
   minMagnitude: number,
   fraction = 0.5,
+  noise = 0,
 ): { index: number; value: number } | null {
   if (m < 3) return null;
   let best = -1;
@@ -419,6 +421,6 @@ export function loneThermocouple(
   const vr = values[r];
   if (!Number.isFinite(vl) || !Number.isFinite(vr)) return null;
   const mag = Math.abs(v);
-  if (sign * vl >= fraction * shareLeft[best] * mag || sign * vr >= fraction * shareRight[best] * mag) return null;
+  if (sign * vl >= fraction * shareLeft[best] * mag + noise || sign * vr >= fraction * shareRight[best] * mag + noise) return null;
   return { index: best, value: v };
 }

@@ -96,6 +96,19 @@ describe.each([
     }
   });
 
+  it('one thermocouple reading 40 °C high makes the spread high because of that sensor, not a chamber', () => {
+    for (const load of loads) {
+      const ring = healthyRing(config, load, rand);
+      ring[6] += 40;
+      const f = findings(ring, load);
+      // Where the ring's own outlier test already set the reading aside there is no high spread at all.
+      const spread = f.find((x) => x.kind === 'spread_high');
+      if (spread) expect([spread.thermocouple, spread.chamber, spread.grade]).toEqual([7, null, 'notice']);
+      expect(f.filter((x) => x.kind === 'thermocouple_fault').map((x) => x.thermocouple)).toEqual([7]);
+      expect(f.some((x) => x.kind === 'chamber_cold' || x.kind === 'chamber_hot')).toBe(false);
+    }
+  });
+
   it.each([0.5, 0.6, 0.7])('a chamber 45 °C cold with plume width %s of the pitch is that chamber, at every load', (width) => {
     for (const load of loads) {
       const dev = fingerprint(config.chambers.count);

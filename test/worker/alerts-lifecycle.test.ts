@@ -144,7 +144,8 @@ describe('deadband and off-delay', () => {
     expect(t.spreadDefaultLimitDegC).toBe(42);
     expect(t.spreadLimitFloorDegC).toBe(27);
     expect(t.spreadLimitCeilingDegC).toBe(77);
-    expect(t.chamberColdWarningDegC).toBe(17);
+    expect(t.chamberColdWarningDegC).toBe(9);
+    expect(t.chamberNoBaselineWarningDegC).toBe(47);
     expect(t.chamberColdAlarmDegC).toBe(37);
     expect(t.chamberColdCriticalDegC).toBe(77);
     expect(t.chamberHotAlarmDegC).toBe(32);
