@@ -42,16 +42,25 @@ export interface ScorecardRun {
 
 const RINGS_PER_REQUEST = 5_000;
 
-/** Sends one NDJSON body as a gateway would: a 503 (nothing stored) is retried after a pause, a few times. */
+/**
+ * Sends one NDJSON body as a gateway would: a 503 (nothing stored) or a connection broken before
+ * the reply (a kept-alive connection closed by the server as it was reused) is retried after a
+ * pause, a few times. Ingest is idempotent by (unit, time), so a retry never stores a ring twice.
+ */
 async function post(url: string, key: string, body: string): Promise<number> {
-  let res: Response;
-  let reply: { accepted?: number; duplicates?: number; rejected?: unknown[]; message?: string };
+  let res: Response | null = null;
+  let reply: { accepted?: number; duplicates?: number; rejected?: unknown[]; message?: string } = {};
   for (let attempt = 1; ; attempt++) {
-    res = await fetch(`${url}/v1/rings`, { method: 'POST', headers: { authorization: `Bearer ${key}`, 'content-type': 'application/x-ndjson' }, body });
-    reply = (await res.json()) as typeof reply;
-    if (res.status !== 503 || attempt === 5) break;
+    try {
+      res = await fetch(`${url}/v1/rings`, { method: 'POST', headers: { authorization: `Bearer ${key}`, 'content-type': 'application/x-ndjson' }, body });
+      reply = (await res.json()) as typeof reply;
+      if (res.status !== 503 || attempt === 5) break;
+    } catch (err) {
+      if (attempt === 5) throw err;
+    }
     await new Promise((r) => setTimeout(r, 500 * attempt));
   }
+  if (!res) throw new Error('ingest gave no reply');
   if (!res.ok) throw new Error(`ingest answered ${res.status}: ${reply.message ?? ''}`);
   if (reply.rejected && reply.rejected.length) throw new Error(`ingest rejected ${reply.rejected.length} rings, e.g. ${JSON.stringify(reply.rejected[0])}`);
   return reply.accepted ?? 0;
