@@ -449,7 +449,7 @@ export async function lockOwnedUnit(client: pg.ClientBase, unitId: string, worke
  * lockOwnedUnit for several units in one statement (rows locked in unit order); a unit is
  * missing from the result when this worker does not hold it, or workerId is null and it has
  * no progress row (then no lease is checked). With leaseS, a lease of a unit locked that has
- * less than half of leaseS left is extended to leaseS from now (a unit being analysed keeps its
+ * less than two thirds of leaseS left is extended to leaseS from now (a unit being analysed keeps its
  * lease even when the renewal skips its locked row).
  */
 export async function lockUnits(client: pg.ClientBase, unitIds: string[], workerId: string | null, leaseS = 0): Promise<Map<string, UnitProgress>> {
@@ -465,7 +465,7 @@ export async function lockUnits(client: pg.ClientBase, unitIds: string[], worker
                        WHERE c.unit_id = ANY($1::text[]) AND c.worker_id = $2 AND c.lease_until > now()
                        ORDER BY c.unit_id FOR UPDATE OF c),
                 e AS (UPDATE unit_claims c SET lease_until = greatest(c.lease_until, now() + make_interval(secs => $3))
-                        FROM l WHERE c.unit_id = l.unit_id AND $3 > 0 AND c.lease_until < now() + make_interval(secs => $3 / 2.0) RETURNING c.unit_id)
+                        FROM l WHERE c.unit_id = l.unit_id AND $3 > 0 AND c.lease_until < now() + make_interval(secs => $3 * 2 / 3.0) RETURNING c.unit_id)
            SELECT p.unit_id, ${msOf('p.watermark_ts')} AS wm_ms, ${RU_MS('p')}, ${msOf('p.late_checked_from')} AS late_ms, p.rings_analysed, p.late_rings_analysed
              FROM l JOIN analysis_progress p USING (unit_id) ORDER BY p.unit_id`,
           [unitIds, workerId, leaseS],

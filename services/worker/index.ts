@@ -95,20 +95,29 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
 
   /** Units whose last group failed: analysed alone until they succeed, so one cannot hold back others. */
   const solo = new Set<string>();
+  /** Units whose last round left more rings waiting (a backlog, not a live trickle). */
+  const backlog = new Set<string>();
   let groups = 0;
+  /** Groups in flight holding a unit with a backlog: at most `concurrency` (they are mostly analysis). */
+  let heavy = 0;
   const lanes = Math.max(s.concurrency, Math.min(s.concurrency * LANES_PER_SLOT, config.poolMax - RESERVED_CONNECTIONS));
 
-  /** Starts groups of waiting units (up to GROUP_UNITS each) while fewer than `lanes` run. */
+  /**
+   * Starts groups of waiting units (up to GROUP_UNITS each) while fewer than `lanes` run; groups
+   * with a backlogged unit only while fewer than `concurrency` of those run.
+   */
   function pump(): void {
     if (stopped) return;
     while (groups < lanes) {
+      const heavyFree = s.concurrency - heavy;
+      const eligible = (id: string) => !running.has(id) && (heavyFree > 0 || !backlog.has(id));
       let waiting = 0;
-      for (const id of dirty) if (!running.has(id)) waiting++;
-      // Share the waiting units among the free lanes, so a backlog keeps every lane busy.
-      const size = Math.min(GROUP_UNITS, Math.max(1, Math.ceil(waiting / (lanes - groups))));
+      for (const id of dirty) if (eligible(id)) waiting++;
+      // Share the waiting units among the free slots, so a backlog keeps every slot busy.
+      const size = Math.min(GROUP_UNITS, Math.max(1, Math.ceil(waiting / (heavyFree > 0 ? heavyFree : lanes - groups))));
       const group: string[] = [];
       for (const id of dirty) {
-        if (running.has(id)) continue;
+        if (!eligible(id)) continue;
         if (solo.has(id)) {
           if (group.length === 0) group.push(id);
           break;
@@ -119,8 +128,11 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
       if (group.length === 0) break;
       for (const id of group) dirty.delete(id);
       groups++;
+      const isHeavy = group.some((id) => backlog.has(id));
+      if (isHeavy) heavy++;
       const task = runGroup(group).finally(() => {
         groups--;
+        if (isHeavy) heavy--;
         for (const id of group) running.delete(id);
         pump();
         checkSettled();
@@ -161,7 +173,10 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
           continue;
         }
         if (r.rings > 0) log.debug({ unitId, rings: r.rings }, 'rings analysed');
-        if (r.status === 'more') dirty.add(unitId);
+        if (r.status === 'more') {
+          backlog.add(unitId);
+          dirty.add(unitId);
+        } else backlog.delete(unitId);
         await firstBaselineWhenDue(unitId);
       }
     } catch (err) {
