@@ -77,6 +77,12 @@ export function toErrorReply(err: unknown): { status: number; body: ErrorBody } 
   if (isDatabaseUnavailable(err)) {
     return { status: 503, body: { error: 'database_unavailable', message: 'The database is unavailable; nothing was stored. Retry later.' } };
   }
+  // Two writers of the same rows met and PostgreSQL rolled one back (deadlock, serialization
+  // failure): the whole request's transaction is undone, and the same request will go through.
+  const code = (err as { code?: string } | null)?.code;
+  if (code === '40P01' || code === '40001') {
+    return { status: 503, body: { error: 'write_conflict', message: 'A concurrent write to the same rows was in the way; nothing was stored. Retry the request.' } };
+  }
   const status = typeof fe?.statusCode === 'number' && fe.statusCode >= 400 && fe.statusCode < 600 ? fe.statusCode : 500;
   if (status === 429) return { status, body: { error: 'rate_limited', message: fe.message } };
   if (status < 500) return { status, body: { error: 'bad_request', message: fe.message } };

@@ -136,7 +136,8 @@ const ALERT_COLUMNS = `id, unit_id, kind, condition_key, grade, chamber, thermoc
   shelved_until, shelved_at, shelved_by, shelve_reason, raised_at, last_changed_at, cleared_at, closed_at, message, advice, evidence,
   likelihood, runner_up_chamber, runner_up_likelihood, baseline_version, last_seen_at, absent_since, pending_grade, pending_grade_since`;
 
-function alertFromDb(r: Record<string, unknown>): AlertRow {
+/** An alert row as PostgreSQL returns it (snake_case columns) to the AlertRow shape. */
+export function alertFromDb(r: Record<string, unknown>): AlertRow {
   return {
     id: String(r.id),
     unitId: String(r.unit_id),

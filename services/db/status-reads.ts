@@ -9,7 +9,7 @@
 import type pg from 'pg';
 import { GRADES, type Grade } from '../core/findings.ts';
 import type { AlertKind } from './config.ts';
-import { toAlertJson, type AlertJson, type AlertRow } from './alerts.ts';
+import { alertFromDb, toAlertJson, type AlertJson } from './alerts.ts';
 import type { AnalysisProgressInfo, LatestAnalysis } from './analysis.ts';
 import type { StartCountersRecord } from './starts.ts';
 
@@ -65,42 +65,6 @@ SELECT pg_current_snapshot()::text AS snap,
 const n = (v: unknown) => (v === null || v === undefined ? null : Number(v));
 const date = (v: unknown): Date | null => (v === null || v === undefined ? null : v instanceof Date ? v : new Date(String(v)));
 const iso = (v: unknown): string | null => (v instanceof Date ? v.toISOString() : v == null ? null : String(v));
-
-function alertOf(r: Record<string, unknown>): AlertRow {
-  return {
-    id: String(r.id),
-    unitId: String(r.unit_id),
-    kind: r.kind as AlertKind,
-    conditionKey: String(r.condition_key),
-    grade: r.grade as Grade,
-    chamber: n(r.chamber),
-    thermocouple: n(r.thermocouple),
-    active: Boolean(r.active),
-    acknowledged: Boolean(r.acknowledged),
-    ackedAt: date(r.acked_at),
-    ackedBy: (r.acked_by as string | null) ?? null,
-    ackComment: (r.ack_comment as string | null) ?? null,
-    shelvedUntil: date(r.shelved_until),
-    shelvedAt: date(r.shelved_at),
-    shelvedBy: (r.shelved_by as string | null) ?? null,
-    shelveReason: (r.shelve_reason as string | null) ?? null,
-    raisedAt: date(r.raised_at) as Date,
-    lastChangedAt: date(r.last_changed_at) as Date,
-    clearedAt: date(r.cleared_at),
-    closedAt: date(r.closed_at),
-    message: String(r.message),
-    advice: String(r.advice),
-    evidence: (r.evidence as Record<string, unknown>) ?? {},
-    likelihood: n(r.likelihood),
-    runnerUpChamber: n(r.runner_up_chamber),
-    runnerUpLikelihood: n(r.runner_up_likelihood),
-    baselineVersion: n(r.baseline_version),
-    lastSeenAt: date(r.last_seen_at),
-    absentSince: date(r.absent_since),
-    pendingGrade: (r.pending_grade as Grade | null) ?? null,
-    pendingGradeSince: date(r.pending_grade_since),
-  };
-}
 
 function analysisOf(r: Record<string, unknown>): LatestAnalysis | null {
   if (r.a_ts === null || r.a_ts === undefined) return null;
@@ -158,7 +122,7 @@ export async function unitStatusState(q: Queryable, unitId: string, nowMs: numbe
       workerId: r.worker_id ?? null,
       leaseUntil: leaseOk ? r.lease_until : null,
     },
-    alerts: rows.filter((a) => a.id !== null).map((a) => toAlertJson(alertOf(a))),
+    alerts: rows.filter((a) => a.id !== null).map((a) => toAlertJson(alertFromDb(a))),
     starts: {
       firedStarts: Number(r.fired_starts ?? 0),
       failedStarts: Number(r.failed_starts ?? 0),
