@@ -13,7 +13,8 @@
  *       by GET /v1/alerts, p50 and p99.
  * The last line printed is one JSON object.
  *
- *   npm run bench:worker     BENCH_DAYS (default 30), BENCH_UNITS (default 200), BENCH_SECONDS (default 60)
+ *   npm run bench:worker     BENCH_DAYS (default 30), BENCH_UNITS (default 200), BENCH_SECONDS (default 60),
+ *                            BENCH_ONLY (backfill | latency), BENCH_WORKER_NODE_ARGS (node options of the worker process)
  */
 import os from 'node:os';
 import { readFileSync } from 'node:fs';
