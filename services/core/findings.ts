@@ -220,7 +220,12 @@ export function evaluateFindings(input: FindingInput): Finding[] {
   spreadFindings(input, t, version, out);
   chamberFindings(input, t, version, out);
   driftFindings(input, t, version, out);
-  return foldSpreadIntoChamber(out, a.chamberCount, input.temperatureUnit).sort((x, y) => gradeRank(y.grade) - gradeRank(x.grade));
+  if (out.length === 0) return out;
+  return foldSpreadIntoChamber(out, a.chamberCount, input.temperatureUnit).sort(moreSevereFirst);
+}
+
+function moreSevereFirst(x: Finding, y: Finding): number {
+  return gradeRank(y.grade) - gradeRank(x.grade);
 }
 
 /**
@@ -230,22 +235,27 @@ export function evaluateFindings(input: FindingInput): Finding[] {
  * two (ISA-18.2 designed suppression of consequential alarms; a lost flame otherwise raises a
  * chamber alert, a spread alert and a jump alert at once).
  */
+/** Two chambers (numbered from 1) of n are the same or neighbours on the ring. */
+function adjacentOrSame(a: number, b: number, n: number): boolean {
+  return a === b || (a - b + n) % n === 1 || (b - a + n) % n === 1;
+}
+
 function foldSpreadIntoChamber(findings: Finding[], n: number, unit: 'C' | 'F' | undefined): Finding[] {
-  const dd = (v: number) => differenceText(v, unit);
+  let any = false;
+  for (const f of findings) if ((f.kind === 'chamber_cold' || f.kind === 'chamber_hot') && f.chamber !== null) any = true;
+  if (!any) return findings;
   const chambers = findings.filter((f) => (f.kind === 'chamber_cold' || f.kind === 'chamber_hot') && f.chamber !== null);
-  if (chambers.length === 0) return findings;
-  const near = (a: number, b: number) => a === b || (a - b + n) % n === 1 || (b - a + n) % n === 1;
   return findings.filter((f) => {
     if ((f.kind !== 'spread_high' && f.kind !== 'spread_jump') || f.chamber === null) return true;
-    const host = chambers.find((c) => near(c.chamber as number, f.chamber as number));
+    const host = chambers.find((c) => adjacentOrSame(c.chamber as number, f.chamber as number, n));
     if (!host) return true;
     host.grade = maxGrade(host.grade, f.grade);
     if (f.kind === 'spread_high') {
       host.evidence = { ...host.evidence, spreadDegC: f.evidence.spreadDegC, spreadLimitDegC: f.evidence.limitDegC };
-      host.message += `; exhaust spread ${dd(f.evidence.spreadDegC as number)} is over its limit ${dd(f.evidence.limitDegC as number)}`;
+      host.message += `; exhaust spread ${differenceText(f.evidence.spreadDegC as number, unit)} is over its limit ${differenceText(f.evidence.limitDegC as number, unit)}`;
     } else {
       host.evidence = { ...host.evidence, spreadJumpDegC: f.evidence.jumpDegC };
-      host.message += `; exhaust spread changed by ${dd(f.evidence.jumpDegC as number)} since the previous steady ring`;
+      host.message += `; exhaust spread changed by ${differenceText(f.evidence.jumpDegC as number, unit)} since the previous steady ring`;
     }
     return false;
   });
@@ -268,7 +278,7 @@ function tcFinding(tc: number, grade: Grade, reason: ValidityReason, evidence: F
 }
 
 function thermocoupleFindings(input: FindingInput, t: Thresholds, version: number | null, out: Finding[]): void {
-  const dd = (v: number) => differenceText(v, input.temperatureUnit);
+  const unit = input.temperatureUnit;
   const a = input.analysis;
   const h = input.history ?? {};
   const seen = new Set<number>();
@@ -307,7 +317,7 @@ function thermocoupleFindings(input: FindingInput, t: Thresholds, version: numbe
         'drifting_alone',
         { residualDegC: r1(lone.residualDegC), leftNeighbourResidualDegC: r1(res[l]), rightNeighbourResidualDegC: r1(res[r]), loadFraction: r3(a.loadFraction) },
         version,
-        `thermocouple ${tc} reads ${dd(Math.abs(lone.residualDegC))} ${lone.residualDegC < 0 ? 'below' : 'above'} its normal at this load while its neighbours hold: the sensor, not a chamber`,
+        `thermocouple ${tc} reads ${differenceText(Math.abs(lone.residualDegC), unit)} ${lone.residualDegC < 0 ? 'below' : 'above'} its normal at this load while its neighbours hold: the sensor, not a chamber`,
       ),
     );
     seen.add(tc);
@@ -360,7 +370,7 @@ function spreadWithout(a: RingAnalysis, skip: number): number {
 }
 
 function spreadFindings(input: FindingInput, t: Thresholds, version: number | null, out: Finding[]): void {
-  const dd = (v: number) => differenceText(v, input.temperatureUnit);
+  const unit = input.temperatureUnit;
   const a = input.analysis;
   const s = a.spread;
   if (!Number.isFinite(s.spreadDegC) || s.validCount < 2) return;
@@ -411,8 +421,8 @@ function spreadFindings(input: FindingInput, t: Thresholds, version: number | nu
       evidence,
       baselineVersion: fromBaseline ? version : null,
       message: tcSuspect
-        ? `exhaust spread ${dd(s.spreadDegC)} is over the limit ${dd(limitDegC)} only because of thermocouple ${cold}`
-        : `exhaust spread ${dd(s.spreadDegC)} is over the limit ${dd(limitDegC)}`,
+        ? `exhaust spread ${differenceText(s.spreadDegC, unit)} is over the limit ${differenceText(limitDegC, unit)} only because of thermocouple ${cold}`
+        : `exhaust spread ${differenceText(s.spreadDegC, unit)} is over the limit ${differenceText(limitDegC, unit)}`,
       advice: tcSuspect
         ? `check thermocouple ${cold} and its wiring at the next opportunity`
         : chamber !== null
@@ -437,7 +447,7 @@ function spreadFindings(input: FindingInput, t: Thresholds, version: number | nu
         runnerUpLikelihood: null,
         evidence: { spreadDegC: r1(s.spreadDegC), previousSpreadDegC: r1(prev), jumpDegC: r1(jump) },
         baselineVersion: version,
-        message: `exhaust spread changed by ${dd(jump)} between consecutive steady rings`,
+        message: `exhaust spread changed by ${differenceText(jump, unit)} between consecutive steady rings`,
         advice: 'look at the chamber and thermocouple findings raised with it; check the ring plot for a new cold or hot plume',
       });
     }
@@ -445,7 +455,7 @@ function spreadFindings(input: FindingInput, t: Thresholds, version: number | nu
 }
 
 function chamberFindings(input: FindingInput, t: Thresholds, version: number | null, out: Finding[]): void {
-  const dd = (v: number) => differenceText(v, input.temperatureUnit);
+  const unit = input.temperatureUnit;
   const a = input.analysis;
   const n = a.chamberCount;
   const resid = new Float64Array(n);
@@ -505,7 +515,7 @@ function chamberFindings(input: FindingInput, t: Thresholds, version: number | n
         validThermocouples: a.coverage.validCount,
       },
       baselineVersion: usedBaseline ? version : null,
-      message: `chamber ${ch} runs ${dd(mag)} ${cold ? 'colder' : 'hotter'} than its normal at this load`,
+      message: `chamber ${ch} runs ${differenceText(mag, unit)} ${cold ? 'colder' : 'hotter'} than its normal at this load`,
       advice: chamberAdvice(ch, cold, grade),
     });
   }
@@ -518,11 +528,15 @@ function chamberAdvice(ch: number, cold: boolean, grade: Grade): string {
   return `inspect chamber ${ch} fuel nozzle tip for erosion or over-fuelling at the next outage`;
 }
 
+/** A drift state's rate when it is significant, else 0, °C per 30 days. */
+function significantRate(d: ChamberDriftInput | null | undefined): number {
+  return d && d.rate && d.rate.significant ? d.rate.per30DaysDegC : 0;
+}
+
 function driftFindings(input: FindingInput, t: Thresholds, version: number | null, out: Finding[]): void {
-  const dd = (v: number) => differenceText(v, input.temperatureUnit);
+  const unit = input.temperatureUnit;
   const chambers = input.drift?.chambers ?? [];
   const sensors = input.drift?.thermocouples ?? [];
-  const rateOf = (d: ChamberDriftInput | null | undefined) => (d && d.rate && d.rate.significant ? d.rate.per30DaysDegC : 0);
   // A thermocouple drifting alone (its neighbours hold) explains the chamber drift the map makes of it.
   const share = input.plumeShare;
   const m = sensors.length;
@@ -541,7 +555,7 @@ function driftFindings(input: FindingInput, t: Thresholds, version: number | nul
     const d = chambers[k];
     if (!d) continue;
     const rate = d.rate;
-    const mag = Math.abs(rateOf(d));
+    const mag = Math.abs(significantRate(d));
     let grade: Grade | null = null;
     if (mag >= t.driftAlarmDegCPer30Days) grade = 'alarm';
     else if (mag >= t.driftWarningDegCPer30Days) grade = 'warning';
@@ -550,8 +564,8 @@ function driftFindings(input: FindingInput, t: Thresholds, version: number | nul
     // One plume drifting shows on the chambers either side too: only the strongest is reported.
     const n = chambers.length;
     const sign = Math.sign(rate.per30DaysDegC);
-    const l = rateOf(chambers[(k - 1 + n) % n]) * sign;
-    const r = rateOf(chambers[(k + 1) % n]) * sign;
+    const l = significantRate(chambers[(k - 1 + n) % n]) * sign;
+    const r = significantRate(chambers[(k + 1) % n]) * sign;
     if (n > 1 && (l > mag || r > mag)) continue;
     if (lone) {
       explained.push(k + 1);
@@ -579,7 +593,7 @@ function driftFindings(input: FindingInput, t: Thresholds, version: number | nul
         cusumSignal: cusumSide,
       },
       baselineVersion: version,
-      message: `chamber ${ch} is ${cooling ? 'cooling' : 'warming'} against its baseline at ${dd(rate.per30DaysDegC)} per 30 days`,
+      message: `chamber ${ch} is ${cooling ? 'cooling' : 'warming'} against its baseline at ${differenceText(rate.per30DaysDegC, unit)} per 30 days`,
       advice: cooling ? `inspect chamber ${ch} fuel nozzle at the next outage` : `inspect chamber ${ch} fuel nozzle tip for erosion or over-fuelling at the next outage`,
     });
   }
@@ -601,7 +615,7 @@ function driftFindings(input: FindingInput, t: Thresholds, version: number | nul
           chamberDriftExplained: explained.join(',') || null,
         },
         version,
-        `thermocouple ${tc} is drifting ${rate.per30DaysDegC < 0 ? 'down' : 'up'} against its normal at ${dd(rate.per30DaysDegC)} per 30 days while its neighbours hold${explained.length ? `; the drift of chamber ${explained.join(', ')} is this sensor's` : ''}`,
+        `thermocouple ${tc} is drifting ${rate.per30DaysDegC < 0 ? 'down' : 'up'} against its normal at ${differenceText(rate.per30DaysDegC, unit)} per 30 days while its neighbours hold${explained.length ? `; the drift of chamber ${explained.join(', ')} is this sensor's` : ''}`,
       ),
     );
   }

@@ -519,7 +519,8 @@ export function baselineResiduals(ctx: UnitContext, a: RingAnalysis, baseline: U
   for (let i = 0; i < ctx.m; i++) if (Number.isFinite(tc[i])) finite.push(tc[i]);
   finite.sort((x, y) => x - y);
   const common = finite.length ? medianOfSorted(finite, finite.length) : 0;
-  const apart = tc.map((v) => v - common);
+  const apart = new Float64Array(ctx.m);
+  for (let i = 0; i < ctx.m; i++) apart[i] = tc[i] - common;
   const found = loneThermocouple(apart, ctx.m, ctx.responseLeft, ctx.responseRight, ctx.options.loneSensorMinDegC, 0.5, ctx.options.loneSensorNoiseDegC);
   const lone = found ? { index: found.index, value: tc[found.index] } : null;
   let mapped: Float64Array = tc;
