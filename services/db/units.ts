@@ -59,6 +59,15 @@ export function versionInForce(versions: ConfigVersionRecord[], tMs: number): Co
   return best;
 }
 
+/** Every configuration version of a unit, oldest effective first, on a pool or inside a transaction. */
+export async function unitVersions(q: Pick<pg.ClientBase, 'query'>, id: string): Promise<ConfigVersionRecord[]> {
+  const { rows } = await q.query(
+    `SELECT version, effective_from, created_at, config FROM unit_config_versions WHERE unit_id = $1 ORDER BY effective_from`,
+    [id],
+  );
+  return versionsOf(rows);
+}
+
 export function createUnitsRepository(pool: pg.Pool) {
   async function load(ids: string[] | null): Promise<UnitRecord[]> {
     const units = await pool.query(
@@ -117,12 +126,8 @@ export function createUnitsRepository(pool: pg.Pool) {
     },
 
     /** Every configuration version of a unit, oldest effective first; [] for an unknown unit. */
-    async versions(id: string): Promise<ConfigVersionRecord[]> {
-      const { rows } = await pool.query(
-        `SELECT version, effective_from, created_at, config FROM unit_config_versions WHERE unit_id = $1 ORDER BY effective_from`,
-        [id],
-      );
-      return versionsOf(rows);
+    versions(id: string): Promise<ConfigVersionRecord[]> {
+      return unitVersions(pool, id);
     },
 
     /**

@@ -41,7 +41,8 @@ import {
 } from '../db/analysis.ts';
 import { latestBaseline } from '../db/baselines.ts';
 import { driftStateStamp, readDriftStates } from '../db/drift.ts';
-import { createUnitsRepository } from '../db/units.ts';
+import { unitVersions } from '../db/units.ts';
+import type { Queryable } from '../db/alerts.ts';
 import type { ChamberDriftInput } from '../core/findings.ts';
 import { applyAlertObservations, type AlertSettings } from './alerts.ts';
 import { recordStartsForBatch, type BatchObservation } from '../db/starts.ts';
@@ -117,21 +118,25 @@ export function invalidateInputs(pc: PipelineContext, unitId: string): void {
   if (m) m.inputsLoadedAt = 0;
 }
 
-async function loadInputs(pc: PipelineContext, unitId: string, mem: UnitMemory): Promise<AnalyserInputs> {
+/**
+ * The unit's analysis inputs, re-read at most every INPUTS_TTL_MS, on the round's own
+ * connection `q`: a round holds its transaction's connection, so taking more from the pool
+ * would let rounds in flight wait for each other's connections (and the nightly drift's) until
+ * the pool's wait times out.
+ */
+async function loadInputs(pc: PipelineContext, q: Queryable, unitId: string, mem: UnitMemory): Promise<AnalyserInputs> {
   const now = Date.now();
   if (mem.inputs && now - mem.inputsLoadedAt < INPUTS_TTL_MS) return mem.inputs;
   // Spread the re-reads of a fleet's units over time rather than all at once.
   const jitter = Math.floor(Math.random() * (INPUTS_TTL_MS / 3));
-  const [versions, baseline, stamp] = await Promise.all([
-    createUnitsRepository(pc.pool).versions(unitId),
-    latestBaseline(pc.pool, unitId),
-    driftStateStamp(pc.pool, unitId),
-  ]);
+  const versions = await unitVersions(q, unitId);
+  const baseline = await latestBaseline(q, unitId);
+  const stamp = await driftStateStamp(q, unitId);
   if (versions.length === 0) throw new Error(`unit ${unitId} has no configuration`);
   let driftChambers: (ChamberDriftInput | null)[] = mem.inputs?.driftChambers ?? [];
   let driftThermocouples: (ChamberDriftInput | null)[] = mem.inputs?.driftThermocouples ?? [];
   if (stamp !== mem.driftStamp || (baseline?.version ?? null) !== mem.baselineVersion) {
-    const states = baseline ? (await readDriftStates(pc.pool, unitId)).filter((s) => s.baselineVersion === baseline.version) : [];
+    const states = baseline ? (await readDriftStates(q, unitId)).filter((s) => s.baselineVersion === baseline.version) : [];
     driftChambers = [];
     driftThermocouples = [];
     for (const s of states) (s.subject === 'chamber' ? driftChambers : driftThermocouples)[s.idx - 1] = { cusum: s.cusum, rate: s.rate };
@@ -221,7 +226,7 @@ export async function analyseGroup(
       for (const id of held) {
         const mem = memoryOf(pc, id);
         const p = progress.get(id) as UnitProgress;
-        inputs.set(id, await loadInputs(pc, id, mem));
+        inputs.set(id, await loadInputs(pc, client, id, mem));
         if (!mem.analyser || mem.watermarkMs !== p.watermarkMs) {
           mem.analyser = null;
           mem.rollups = null;
@@ -398,7 +403,7 @@ export async function reanalyseSpan(pc: PipelineContext, unitId: string, fromMs:
     const w = pc.config.worker;
     const reachMs = Math.max(w.steadyWindowS * 1000, (w.windowTestMinutes + w.windowTestEveryMinutes) * 60_000);
     const end = Math.min(progress.watermarkMs, toMs + reachMs);
-    const inputs = await loadInputs(pc, unitId, mem);
+    const inputs = await loadInputs(pc, client, unitId, mem);
     const before = fromMs - 0.001;
     const analyser = await primedAnalyser(client, unitId, inputs, before);
     const rings = await readRingsBetween(client, unitId, fromMs, end, 10_000_000);
