@@ -6,7 +6,7 @@
  * and written whole (the caller merges). No analytics here.
  */
 import type pg from 'pg';
-import { CopyBinaryReader, CopyBinaryWriter, copyIn, copyOut, isoMicros } from './pg-binary.ts';
+import { CopyBinaryReader, CopyBinaryWriter, copyIn, copyOut, isoMicros, grownBuffer, writeFloat4ArrayField } from './pg-binary.ts';
 
 type Queryable = pg.Pool | pg.ClientBase;
 
@@ -214,12 +214,8 @@ export class AnalysisEncoder {
 
   private room(n: number): void {
     if (this.p + n <= this.buf.length) return;
-    let size = this.buf.length * 2;
-    while (size < this.p + n) size *= 2;
-    const next = Buffer.alloc(size);
-    this.buf.copy(next, 0, 0, this.p);
-    this.buf = next;
-    this.d = new DataView(next.buffer, next.byteOffset, next.byteLength);
+    this.buf = grownBuffer(this.buf, this.p, this.p + n);
+    this.d = new DataView(this.buf.buffer, this.buf.byteOffset, this.buf.byteLength);
   }
 
   private f4(v: number): void {
@@ -264,35 +260,12 @@ export class AnalysisEncoder {
 
   /** real[] (non-finite elements NULL), or NULL. */
   private f4Array(values: ArrayLike<number> | null): void {
-    const d = this.d;
     if (values === null) {
-      d.setInt32(this.p, -1);
+      this.d.setInt32(this.p, -1);
       this.p += 4;
       return;
     }
-    const lenAt = this.p;
-    const n = values.length;
-    d.setInt32(lenAt + 4, 1);
-    d.setInt32(lenAt + 12, 700);
-    d.setInt32(lenAt + 16, n);
-    d.setInt32(lenAt + 20, 1);
-    let p = lenAt + 24;
-    let hasNull = 0;
-    for (let i = 0; i < n; i++) {
-      const v = values[i];
-      if (v === v && v !== Infinity && v !== -Infinity) {
-        d.setInt32(p, 4);
-        d.setFloat32(p + 4, v);
-        p += 8;
-      } else {
-        d.setInt32(p, -1);
-        p += 4;
-        hasNull = 1;
-      }
-    }
-    d.setInt32(lenAt + 8, hasNull);
-    d.setInt32(lenAt, p - lenAt - 4);
-    this.p = p;
+    this.p = writeFloat4ArrayField(this.d, this.p, values, values.length);
   }
 
   private i2Array(values: ArrayLike<number>): void {

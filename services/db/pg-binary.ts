@@ -16,6 +16,45 @@ const TWO_32 = 4_294_967_296;
 const FLOAT4_OID = 700;
 const INT2_OID = 21;
 
+/** A buffer of at least `need` bytes (doubling `buf`'s size) holding `buf`'s first `used` bytes. */
+export function grownBuffer(buf: Buffer, used: number, need: number): Buffer<ArrayBuffer> {
+  let size = buf.length * 2;
+  while (size < need) size *= 2;
+  const next = Buffer.allocUnsafe(size);
+  buf.copy(next, 0, 0, used);
+  return next;
+}
+
+/**
+ * Writes a real[] field (its length word, a one-dimensional array header and the first n
+ * values, missing and non-finite ones as NULL elements) at `at`, where the caller has made room for
+ * 24 + 8·n bytes. Returns the position after it.
+ */
+export function writeFloat4ArrayField(d: DataView, at: number, values: ArrayLike<number | null>, n: number): number {
+  const start = at + 4;
+  d.setInt32(start, 1);
+  d.setInt32(start + 8, FLOAT4_OID);
+  d.setInt32(start + 12, n);
+  d.setInt32(start + 16, 1);
+  let p = start + 20;
+  let hasNull = 0;
+  for (let i = 0; i < n; i++) {
+    const v = values[i];
+    if (v !== null && v === v && v !== Infinity && v !== -Infinity) {
+      d.setInt32(p, 4);
+      d.setFloat32(p + 4, v);
+      p += 8;
+    } else {
+      d.setInt32(p, -1);
+      p += 4;
+      hasNull = 1;
+    }
+  }
+  d.setInt32(start + 4, hasNull);
+  d.setInt32(at, p - start);
+  return p;
+}
+
 export class CopyBinaryWriter {
   private buf: Buffer;
   private view: DataView;
@@ -38,12 +77,8 @@ export class CopyBinaryWriter {
 
   private room(n: number): void {
     if (this.pos + n <= this.buf.length) return;
-    let size = this.buf.length * 2;
-    while (size < this.pos + n) size *= 2;
-    const next = Buffer.alloc(size);
-    this.buf.copy(next, 0, 0, this.pos);
-    this.buf = next;
-    this.view = new DataView(next.buffer, next.byteOffset, next.byteLength);
+    this.buf = grownBuffer(this.buf, this.pos, this.pos + n);
+    this.view = new DataView(this.buf.buffer, this.buf.byteOffset, this.buf.byteLength);
   }
 
   row(fields: number): void {
@@ -123,31 +158,7 @@ export class CopyBinaryWriter {
   /** real[] of the first n values; non-finite elements are NULL. */
   float4Array(values: ArrayLike<number>, n = values.length): void {
     this.room(4 + 20 + 8 * n);
-    const lenAt = this.pos;
-    const start = this.pos + 4;
-    const d = this.view;
-    d.setInt32(start, 1);
-    const nullAt = start + 4;
-    d.setInt32(start + 8, FLOAT4_OID);
-    d.setInt32(start + 12, n);
-    d.setInt32(start + 16, 1);
-    let p = start + 20;
-    let hasNull = 0;
-    for (let i = 0; i < n; i++) {
-      const v = values[i];
-      if (v === v && v !== Infinity && v !== -Infinity) {
-        d.setInt32(p, 4);
-        d.setFloat32(p + 4, v);
-        p += 8;
-      } else {
-        d.setInt32(p, -1);
-        p += 4;
-        hasNull = 1;
-      }
-    }
-    d.setInt32(nullAt, hasNull);
-    d.setInt32(lenAt, p - start);
-    this.pos = p;
+    this.pos = writeFloat4ArrayField(this.view, this.pos, values, n);
   }
 
   /** smallint[] of the first n values. */

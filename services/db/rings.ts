@@ -6,7 +6,7 @@
 import { once } from 'node:events';
 import pg from 'pg';
 import { from as copyFrom } from 'pg-copy-streams';
-import { isoMicros } from './pg-binary.ts';
+import { grownBuffer, isoMicros, writeFloat4ArrayField } from './pg-binary.ts';
 
 /** LISTEN channel told, after each commit, which units got new rings. */
 export const NEW_RINGS_CHANNEL = 'cansight_new_rings';
@@ -31,7 +31,6 @@ export interface RingRow {
 
 export const RING_COLUMNS = 'unit_id, ts, load_mw, ambient_c, ambient_kpa, speed_pct, cdt_c, cdp_kpa, fuel_flow_kg_s, flame_detected, exhaust_c';
 const FIELD_COUNT = 11;
-const FLOAT4_OID = 700;
 /** Microseconds between 1970-01-01 and PostgreSQL's epoch 2000-01-01 (UTC), in ms. */
 const PG_EPOCH_MS = 946_684_800_000;
 const SIGNATURE = Buffer.from('PGCOPY\n\xff\r\n\0', 'latin1');
@@ -90,12 +89,8 @@ export class RingCopyEncoder {
 
   private room(n: number): void {
     if (this.pos + n <= this.buf.length) return;
-    let size = this.buf.length * 2;
-    while (size < this.pos + n) size *= 2;
-    const next = Buffer.allocUnsafe(size);
-    this.buf.copy(next, 0, 0, this.pos);
-    this.buf = next;
-    this.view = new DataView(next.buffer, next.byteOffset, next.byteLength);
+    this.buf = grownBuffer(this.buf, this.pos, this.pos + n);
+    this.view = new DataView(this.buf.buffer, this.buf.byteOffset, this.buf.byteLength);
   }
 
   private track(unitId: string, tsMs: number): void {
@@ -165,30 +160,7 @@ export class RingCopyEncoder {
       d.setUint8(p + 4, r.flameDetected ? 1 : 0);
       p += 5;
     }
-    // real[]: ndim, has-null flag, element type, then (size, lower bound) and the elements.
-    const lenAt = p;
-    const start = p + 4;
-    d.setInt32(start, 1);
-    d.setInt32(start + 8, FLOAT4_OID);
-    d.setInt32(start + 12, n);
-    d.setInt32(start + 16, 1);
-    p = start + 20;
-    let hasNull = 0;
-    const ex = r.exhaustC;
-    for (let i = 0; i < n; i++) {
-      const v = ex[i];
-      if (v === v && v !== null && v !== undefined) {
-        d.setInt32(p, 4);
-        d.setFloat32(p + 4, v);
-        p += 8;
-      } else {
-        d.setInt32(p, -1);
-        p += 4;
-        hasNull = 1;
-      }
-    }
-    d.setInt32(start + 4, hasNull);
-    d.setInt32(lenAt, p - start);
+    p = writeFloat4ArrayField(d, p, r.exhaustC, n);
     this.pos = p;
     this.count++;
   }
