@@ -238,13 +238,15 @@ export interface AlertObservation {
 /**
  * Applies a unit's observations, in time order, to its alerts, inside the caller's transaction.
  * Every state change writes the alert row, one history row and the outbox rows in that
- * transaction. Returns the changes in the order they happened.
+ * transaction. Returns the changes in the order they happened; `after.idle` tells whether the
+ * unit is left with no condition pending and no alert active.
  */
 export async function applyAlertObservations(
   client: Queryable,
   unitId: string,
   observations: ReadonlyArray<AlertObservation>,
   settings: AlertSettings,
+  after?: { idle: boolean },
 ): Promise<AlertChange[]> {
   if (observations.length === 0) return [];
   const watermark = await lockAlertUnitState(client, unitId);
@@ -400,6 +402,7 @@ export async function applyAlertObservations(
   }
   await savePending(client, unitId, upserts, removed);
   await setAlertWatermark(client, unitId, fresh[fresh.length - 1].ts);
+  if (after) after.idle = pending.size === 0 && activeCount === 0;
   return changes;
 }
 

@@ -319,7 +319,13 @@ export async function analyseGroup(
       for (const { unitId: id } of logged) {
         const observations = observationsByUnit.get(id) as BatchObservation[];
         await recordStartsForBatch(client, id, ringsByUnit.get(id) as RingColumns, (inputs.get(id) as AnalyserInputs).versions, observations);
-        if (observations.length) await applyAlertObservations(client, id, observations, pc.alertSettings);
+        if (observations.length) {
+          const after = { idle: false };
+          await applyAlertObservations(client, id, observations, pc.alertSettings, after);
+          // Only for the rings that follow; a rollback drops the analyser, and a new one starts not idle.
+          const analyser = memoryOf(pc, id).analyser;
+          if (analyser) analyser.alertsIdle = after.idle;
+        }
       }
       const t6 = performance.now();
       pc.logger.debug(

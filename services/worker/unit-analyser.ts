@@ -65,6 +65,13 @@ export class UnitAnalyser {
   private readonly missing = new Int32Array(MAX_M);
   private prevSteadySpread: number | null = null;
   lastTsMs = -Infinity;
+  /**
+   * True while the unit has no alert condition pending or active (as the alert rules last left
+   * it, and no finding since): then a ring without findings at the raise level needs no
+   * findings at the hold level either, since the rules only use them to hold what is active.
+   * False (evaluate both) until the caller says so.
+   */
+  alertsIdle = false;
   private readonly steadyOptions: SteadyStateOptions;
 
   constructor(private inputs: AnalyserInputs) {
@@ -255,7 +262,8 @@ export class UnitAnalyser {
       const drift = { chambers: this.inputs.driftChambers, thermocouples: this.inputs.driftThermocouples };
       const plumeShare = { left: ctx.responseLeft, right: ctx.responseRight };
       raise = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.raise, temperatureUnit: cfg.temperatureUnit });
-      hold = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.hold, temperatureUnit: cfg.temperatureUnit });
+      if (raise.length > 0) this.alertsIdle = false;
+      hold = this.alertsIdle ? [] : evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.hold, temperatureUnit: cfg.temperatureUnit });
     }
     // A spread jump is a change between consecutive steady rings: a ring that is not steady (a
     // start, a stop, a load change) ends the comparison, so the first steady ring after it is not
