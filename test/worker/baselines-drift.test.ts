@@ -42,6 +42,8 @@ afterAll(async () => {
 });
 
 const get = (url: string) => t.app.inject({ method: 'GET', url, headers: bearer(t.keys.viewer) });
+/** POST /v1/units/plug-1/baselines {from, to} as an admin: a refit on request. */
+const refit = (from: string, to: string) => t.app.inject({ method: 'POST', url: '/v1/units/plug-1/baselines', headers: bearer(t.keys.admin), payload: { from, to } });
 
 describe('baselines and drift', () => {
   it('fits the first baseline automatically from the first days of steady data, with bins and counts', async () => {
@@ -83,12 +85,7 @@ describe('baselines and drift', () => {
 
   it('refits on request as a new version and never rewrites the older one or its analysis', async () => {
     const before = await t.db.pool.query(`SELECT count(*)::int AS n FROM ring_analysis WHERE baseline_version = 1`);
-    const res = await t.app.inject({
-      method: 'POST',
-      url: '/v1/units/plug-1/baselines',
-      headers: bearer(t.keys.admin),
-      payload: { from: '2026-05-02T00:00:00Z', to: '2026-05-09T00:00:00Z' },
-    });
+    const res = await refit('2026-05-02T00:00:00Z', '2026-05-09T00:00:00Z');
     expect(res.statusCode, res.body).toBe(201);
     expect(res.json()).toMatchObject({ version: 2, inForce: true, window: { from: '2026-05-02T00:00:00.000Z', to: '2026-05-09T00:00:00.000Z' } });
     const list = (await get('/v1/units/plug-1/baselines')).json().baselines;
@@ -96,23 +93,13 @@ describe('baselines and drift', () => {
     expect(list[1].fittedBy).toBe('automatic');
     const after = await t.db.pool.query(`SELECT count(*)::int AS n FROM ring_analysis WHERE baseline_version = 1`);
     expect(after.rows[0].n).toBe(before.rows[0].n);
-    const thin = await t.app.inject({
-      method: 'POST',
-      url: '/v1/units/plug-1/baselines',
-      headers: bearer(t.keys.admin),
-      payload: { from: '2026-05-02T00:00:00Z', to: '2026-05-02T00:20:00Z' },
-    });
+    const thin = await refit('2026-05-02T00:00:00Z', '2026-05-02T00:20:00Z');
     expect(thin.statusCode).toBe(422);
     expect(thin.json().error).toBe('invalid');
   });
 
   it('accepts a refit over a window not yet analysed (202) and fits it once analysis has passed the window', async () => {
-    const res = await t.app.inject({
-      method: 'POST',
-      url: '/v1/units/plug-1/baselines',
-      headers: bearer(t.keys.admin),
-      payload: { from: '2026-05-20T00:00:00Z', to: '2026-05-27T00:00:00Z' },
-    });
+    const res = await refit('2026-05-20T00:00:00Z', '2026-05-27T00:00:00Z');
     expect(res.statusCode, res.body).toBe(202);
     expect(res.json().state).toBe('pending');
     await writeRings(t.db.pool, pick(rings, (i) => rings.tsMs[i] >= DRIFT_AT + 86_400_000));

@@ -12,7 +12,7 @@ import { analysisTotals } from '../../services/db/analysis.ts';
 import { startWorker } from '../../services/worker/index.ts';
 import { demoFleet, type SimUnit } from '../../services/sim/index.ts';
 import type { Pool } from '../../services/db/pool.ts';
-import { healthyUnit, registerUnit, simulate, testConfig, until, waitForAnalysis, writeRings } from './fixtures.ts';
+import { expectEveryRingAnalysedOnce, healthyUnit, registerUnit, simulate, testConfig, until, waitForAnalysis, writeRings } from './fixtures.ts';
 import { startWorkerProcess, type WorkerProcess } from './processes.ts';
 
 const FROM = '2026-07-01T00:00:00Z';
@@ -98,16 +98,7 @@ describe('a worker killed in the middle of a backlog', () => {
   });
 
   it('every ring is analysed exactly once after another worker takes over', async () => {
-    const t = await analysisTotals(crashed.pool);
-    expect(t.stored).toBe(total);
-    expect(t.analysed).toBe(total);
-    expect(t.inOrderBatchRings).toBe(total);
-    expect(t.inOrderProgress).toBe(total);
-    const { rows } = await crashed.pool.query(`SELECT unit_id, worker_id, from_ts, to_ts FROM analysis_batches WHERE kind = 'in_order' ORDER BY unit_id, from_ts`);
-    for (let i = 1; i < rows.length; i++) {
-      if (rows[i].unit_id !== rows[i - 1].unit_id) continue;
-      expect(rows[i].from_ts.getTime()).toBeGreaterThan(rows[i - 1].to_ts.getTime());
-    }
+    const rows = await expectEveryRingAnalysedOnce(crashed.pool, total);
     // Per unit: A's batches, then B's; never A again after B.
     for (const unit of ['crash-f', 'crash-h']) {
       const seq = rows.filter((r) => r.unit_id === unit).map((r) => r.worker_id).join(',');

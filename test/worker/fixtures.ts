@@ -9,6 +9,7 @@ import { loadConfig, type Config } from '../../services/db/config.ts';
 import { copyBinary, NEW_RINGS_CHANNEL, RingCopyEncoder } from '../../services/db/rings.ts';
 import { createUnitsRepository } from '../../services/db/units.ts';
 import { withTransaction, type Pool } from '../../services/db/pool.ts';
+import { expect } from 'vitest';
 import { analysisTotals } from '../../services/db/analysis.ts';
 
 /** Worker settings for tests: short leases, small batches. */
@@ -96,6 +97,24 @@ export async function waitForAnalysis(pool: Pool, pollMs = 100): Promise<{ store
     if (t.stored > 0 && t.analysed === t.stored) return t;
     await new Promise((r) => setTimeout(r, pollMs));
   }
+}
+
+/**
+ * Every one of `stored` rings analysed exactly once: the analysis, the in-order batch log and
+ * the progress counters all count `stored`, and no unit's logged batches overlap in time.
+ * Returns the in-order batches (unit, worker, span) for further checks.
+ */
+export async function expectEveryRingAnalysedOnce(pool: Pool, stored: number): Promise<{ unit_id: string; worker_id: string; from_ts: Date; to_ts: Date }[]> {
+  const t = await analysisTotals(pool);
+  expect(t.stored).toBe(stored);
+  expect(t.analysed).toBe(stored);
+  expect(t.inOrderBatchRings).toBe(stored);
+  expect(t.inOrderProgress).toBe(stored);
+  const { rows } = await pool.query(`SELECT unit_id, worker_id, from_ts, to_ts FROM analysis_batches WHERE kind = 'in_order' ORDER BY unit_id, from_ts`);
+  for (let i = 1; i < rows.length; i++) {
+    if (rows[i].unit_id === rows[i - 1].unit_id) expect(rows[i].from_ts.getTime()).toBeGreaterThan(rows[i - 1].to_ts.getTime());
+  }
+  return rows;
 }
 
 /** Waits until cond() holds (polling). */

@@ -8,7 +8,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createTestDatabase, type TestDatabase } from '../helpers/db.ts';
 import { analysisTotals } from '../../services/db/analysis.ts';
 import { listClaims } from '../../services/db/claims.ts';
-import { healthyUnit, registerUnit, simulate, until, waitForAnalysis, writeRings } from './fixtures.ts';
+import { expectEveryRingAnalysedOnce, healthyUnit, registerUnit, simulate, until, waitForAnalysis, writeRings } from './fixtures.ts';
 import { startWorkerProcess, type WorkerProcess } from './processes.ts';
 
 const UNITS = ['so-1', 'so-2', 'so-3', 'so-4', 'so-5', 'so-6'].map((id) => healthyUnit(id));
@@ -31,15 +31,7 @@ async function holders(): Promise<Map<string, string[]>> {
 }
 
 async function checkExactlyOnce(): Promise<void> {
-  const t = await analysisTotals(db.pool);
-  expect(t.stored).toBe(stored);
-  expect(t.analysed).toBe(stored);
-  expect(t.inOrderBatchRings).toBe(stored);
-  expect(t.inOrderProgress).toBe(stored);
-  const { rows } = await db.pool.query(`SELECT unit_id, worker_id, from_ts, to_ts FROM analysis_batches WHERE kind = 'in_order' ORDER BY unit_id, from_ts`);
-  for (let i = 1; i < rows.length; i++) {
-    if (rows[i].unit_id === rows[i - 1].unit_id) expect(rows[i].from_ts.getTime()).toBeGreaterThan(rows[i - 1].to_ts.getTime());
-  }
+  await expectEveryRingAnalysedOnce(db.pool, stored);
 }
 
 const start = (id: string) => {
