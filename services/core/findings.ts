@@ -64,8 +64,8 @@ export interface Thresholds {
   spreadJumpAlarmDegC: number;
   /**
    * Chamber residual below −level (after the baseline and common mode): grades. The warnings
-   * (12 °C cold and hot, engineering judgement) are four times the largest residual healthy
-   * simulated units showed over weeks (about 3 °C: chamber residuals are the map of each
+   * (12 °C cold and hot, engineering judgement) are well above the largest residual healthy
+   * simulated units showed over 39 days (4.8 °C in the scorecard fleet; chamber residuals are the map of each
    * thermocouple's departure from its own normal, ring.ts baselineResiduals), and close to the
    * 10 °C depth at which a plugging nozzle is worth an engineer's look.
    */
@@ -533,6 +533,33 @@ function significantRate(d: ChamberDriftInput | null | undefined): number {
   return d && d.rate && d.rate.significant ? d.rate.per30DaysDegC : 0;
 }
 
+/**
+ * The thermocouple drifting alone among the drift states, at a significant rate of at least
+ * `minRate`. The states change once a night while findings run on every ring, so the answer is
+ * kept per set of states, level and ring geometry.
+ */
+const loneDriftSeen = new WeakMap<object, Map<number, { left: ArrayLike<number>; lone: { index: number; value: number } | null }>>();
+function loneDrift(
+  sensors: readonly (ChamberDriftInput | null | undefined)[],
+  share: { left: ArrayLike<number>; right: ArrayLike<number> },
+  minRate: number,
+): { index: number; value: number } | null {
+  let byLevel = loneDriftSeen.get(sensors);
+  if (!byLevel) loneDriftSeen.set(sensors, (byLevel = new Map()));
+  const seen = byLevel.get(minRate);
+  if (seen && seen.left === share.left) return seen.lone;
+  const m = sensors.length;
+  const rates = new Float64Array(m);
+  for (let i = 0; i < m; i++) {
+    const d = sensors[i];
+    rates[i] = d && d.rate ? d.rate.per30DaysDegC : NaN;
+  }
+  let lone = loneThermocouple(rates, m, share.left, share.right, minRate);
+  if (lone && !sensors[lone.index]?.rate?.significant) lone = null;
+  byLevel.set(minRate, { left: share.left, lone });
+  return lone;
+}
+
 function driftFindings(input: FindingInput, t: Thresholds, version: number | null, out: Finding[]): void {
   const unit = input.temperatureUnit;
   const chambers = input.drift?.chambers ?? [];
@@ -540,16 +567,7 @@ function driftFindings(input: FindingInput, t: Thresholds, version: number | nul
   // A thermocouple drifting alone (its neighbours hold) explains the chamber drift the map makes of it.
   const share = input.plumeShare;
   const m = sensors.length;
-  let lone: { index: number; value: number } | null = null;
-  if (share && m >= 3) {
-    const rates = new Float64Array(m);
-    for (let i = 0; i < m; i++) {
-      const d = sensors[i];
-      rates[i] = d && d.rate ? d.rate.per30DaysDegC : NaN;
-    }
-    lone = loneThermocouple(rates, m, share.left, share.right, t.driftWarningDegCPer30Days);
-    if (lone && !sensors[lone.index]?.rate?.significant) lone = null;
-  }
+  const lone = share && m >= 3 ? loneDrift(sensors, share, t.driftWarningDegCPer30Days) : null;
   const explained: number[] = [];
   for (let k = 0; k < chambers.length; k++) {
     const d = chambers[k];
