@@ -66,10 +66,11 @@ export interface AnalysisOptions {
   loneSensorMinDegC: number;
   /**
    * What a neighbour of a lone thermocouple may show besides the plume share, °C: a healthy
-   * probe's ring-to-ring noise against its own normal (about ±0.5 °C in practice and in the
-   * simulator; engineering judgement: 1 °C). Plumes shallower than about 14 °C centred exactly
-   * on a probe, at the narrowest mixing the kernel assumes, can then pass for a sensor until
-   * they deepen; plumes of the usual widths cannot.
+   * probe's ring-to-ring wander against its own normal (under 1 °C in the simulator, whose
+   * noise is 0.35 °C; engineering judgement: 1 °C). With one probe per chamber, a plume
+   * shallower than about 14 °C centred exactly on a probe, at the narrowest mixing the kernel
+   * assumes, can then pass for a sensor until it deepens (by calculation: the neighbour share
+   * is 0.145, half of it is allowed, 0.0725 × 14 ≈ 1 °C).
    */
   loneSensorNoiseDegC: number;
 }
