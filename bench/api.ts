@@ -3,7 +3,8 @@
  * into the worker's tables), open alerts on a fifth of them, and a year of hourly and daily
  * rollups on one unit. Measures GET /v1/fleet and GET /v1/units/:id/status with autocannon at
  * 50 concurrent clients (p50, p99, requests per second), and a year of chamber trend read from
- * the rollups (JSON and SVG). Uses DATABASE_URL if set, else an embedded PostgreSQL in a
+ * the rollups (JSON and SVG). The clients send the Accept-Encoding a browser sends, so the
+ * fleet board comes gzip; the same board uncompressed is measured beside it (not a goal). Uses DATABASE_URL if set, else an embedded PostgreSQL in a
  * temporary directory. The last line printed is one JSON object {"bench":"api",…}.
  * Goals: p99 under 50 ms for both routes; a year of trend under 200 ms.
  * Beside the latencies it prints where the time went during each route's run: how busy the
@@ -51,15 +52,18 @@ function percentile(sorted: number[], q: number): number {
   return sorted[Math.min(sorted.length - 1, Math.floor(q * sorted.length))];
 }
 
-async function load(url: string, key: string, paths: () => string): Promise<{ p50: number; p99: number; rps: number; errors: number; non2xx: number }> {
+/** What a browser or an HTTP client library sends; the fleet board is gzip to such clients. */
+const ACCEPT_ENCODING = 'gzip, deflate, br';
+
+async function load(url: string, key: string, paths: () => string, acceptEncoding: string): Promise<{ p50: number; p99: number; rps: number; errors: number; non2xx: number; bytesPerReq: number }> {
   const result = await autocannon({
     url,
     connections: CONNECTIONS,
     duration: DURATION_S,
-    headers: { authorization: `Bearer ${key}` },
+    headers: { authorization: `Bearer ${key}`, 'accept-encoding': acceptEncoding },
     requests: [{ method: 'GET', setupRequest: (req) => ({ ...req, path: paths() }) }],
   });
-  return { p50: result.latency.p50, p99: result.latency.p99, rps: Math.round(result.requests.average), errors: result.errors, non2xx: result.non2xx };
+  return { p50: result.latency.p50, p99: result.latency.p99, rps: Math.round(result.requests.average), errors: result.errors, non2xx: result.non2xx, bytesPerReq: Math.round(result.throughput.total / Math.max(1, result.requests.total)) };
 }
 
 /** CPU seconds used so far by a PostgreSQL server and its backends (Linux /proc), or null. */
@@ -77,8 +81,10 @@ function postgresCpuS(dataDir: string | undefined): number | null {
         continue;
       }
       const f = stat.slice(stat.lastIndexOf(')') + 2).split(' ');
-      // f[1] = ppid, f[11] = utime, f[12] = stime (fields 4, 14, 15 of proc(5)), in clock ticks.
-      if (Number(d) === postmaster || Number(f[1]) === postmaster) ticks += Number(f[11]) + Number(f[12]);
+      // f[1] = ppid, f[11] = utime, f[12] = stime (fields 4, 14, 15 of proc(5)), in clock ticks;
+      // the postmaster's f[13] = cutime, f[14] = cstime count the backends that have ended.
+      if (Number(d) === postmaster) ticks += Number(f[11]) + Number(f[12]) + Number(f[13]) + Number(f[14]);
+      else if (Number(f[1]) === postmaster) ticks += Number(f[11]) + Number(f[12]);
     }
     return ticks / 100;
   } catch {
@@ -158,7 +164,7 @@ async function main(): Promise<void> {
         serverThread.on('message', on);
         serverThread.postMessage(m);
       });
-    const measured = async (name: string, paths: () => string) => {
+    const measured = async (name: string, paths: () => string, acceptEncoding = ACCEPT_ENCODING) => {
       await ask({ cmd: 'begin', profile: profileDir ? path.resolve(profileDir, `${name}.cpuprofile`) : null }, 'begun');
       const cpu0 = process.cpuUsage();
       const pg0 = postgresCpuS(server?.dataDir);
@@ -170,7 +176,7 @@ async function main(): Promise<void> {
             pool.query(`UPDATE analysis_progress SET updated_at = now() WHERE unit_id = $1`, [ids[w++ % ids.length]]).catch(() => {});
           }, 1000 / WRITES_PER_S)
         : null;
-      const r = await load(base, key, paths);
+      const r = await load(base, key, paths, acceptEncoding);
       if (writer) clearInterval(writer);
       const cpu = process.cpuUsage(cpu0);
       const pg1 = postgresCpuS(server?.dataDir);
@@ -195,7 +201,10 @@ async function main(): Promise<void> {
     };
 
     const fleet = await measured('fleet', () => '/v1/fleet');
-    log(`GET /v1/fleet                p50 ${fleet.p50} ms  p99 ${fleet.p99} ms  ${fleet.rps} req/s  (errors ${fleet.errors}, non-2xx ${fleet.non2xx})`);
+    log(`GET /v1/fleet                p50 ${fleet.p50} ms  p99 ${fleet.p99} ms  ${fleet.rps} req/s  ${fleet.bytesPerReq.toLocaleString('en')} B/reply gzip  (errors ${fleet.errors}, non-2xx ${fleet.non2xx})`);
+    // The same board to clients that take no compression: reported beside, not a goal.
+    const fleetPlain = await measured('fleet-plain', () => '/v1/fleet', 'identity');
+    log(`GET /v1/fleet uncompressed   p50 ${fleetPlain.p50} ms  p99 ${fleetPlain.p99} ms  ${fleetPlain.rps} req/s  ${fleetPlain.bytesPerReq.toLocaleString('en')} B/reply  (errors ${fleetPlain.errors}, non-2xx ${fleetPlain.non2xx})`);
     let n = 0;
     const status = await measured('status', () => `/v1/units/${ids[n++ % ids.length]}/status`);
     log(`GET /v1/units/:id/status     p50 ${status.p50} ms  p99 ${status.p99} ms  ${status.rps} req/s  (errors ${status.errors}, non-2xx ${status.non2xx})`);
@@ -228,7 +237,8 @@ async function main(): Promise<void> {
       connections: CONNECTIONS,
       durationS: DURATION_S,
       writesPerS: WRITES_PER_S,
-      fleet: { p50Ms: fleet.p50, p99Ms: fleet.p99, reqPerS: fleet.rps, errors: fleet.errors + fleet.non2xx, where: fleet.where },
+      fleet: { p50Ms: fleet.p50, p99Ms: fleet.p99, reqPerS: fleet.rps, bytesPerReply: fleet.bytesPerReq, errors: fleet.errors + fleet.non2xx, where: fleet.where },
+      fleetUncompressed: { p50Ms: fleetPlain.p50, p99Ms: fleetPlain.p99, reqPerS: fleetPlain.rps, bytesPerReply: fleetPlain.bytesPerReq, errors: fleetPlain.errors + fleetPlain.non2xx },
       status: { p50Ms: status.p50, p99Ms: status.p99, reqPerS: status.rps, errors: status.errors + status.non2xx, where: status.where },
       yearTrendMs: { json: trendJson.median, svg: trendSvg.median, jsonMax: trendJson.max, svgMax: trendSvg.max },
       goals,

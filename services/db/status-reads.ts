@@ -1,5 +1,5 @@
 /**
- * What GET /v1/units/:unitId/status reads, in one statement: the unit, its latest analysed ring,
+ * What GET /v1/units/:unitId/status reads, in one statement for one unit or many: the unit, its latest analysed ring,
  * how far analysis has come, its active alerts (not shelved), its start counters, the commit
  * snapshot the row was read at (see commitSnapshot in reads.ts), and the next instant at which
  * the clock alone changes the answer (a shelf running out). The same fields as latestAnalysis,
@@ -28,7 +28,7 @@ export interface UnitStatusState {
 
 // Columns of the latest analysis carry an `a_` prefix: alerts have columns of the same names.
 const STATUS_SQL = `
-SELECT pg_current_snapshot()::text AS snap,
+SELECT u.id AS s_unit_id, pg_current_snapshot()::text AS snap,
        (SELECT max(ts) FROM rings WHERE unit_id = u.id) AS last_ring_ts,
        (SELECT count(*) FROM rings WHERE unit_id = u.id AND ts > coalesce(p.watermark_ts, '-infinity'))::bigint AS pending,
        p.watermark_ts, p.rings_analysed, p.late_rings_analysed, c.worker_id, c.lease_until,
@@ -59,8 +59,8 @@ SELECT pg_current_snapshot()::text AS snap,
                      (SELECT * FROM ring_analysis WHERE unit_id = u.id ORDER BY ts DESC LIMIT 1)
                      LIMIT 1) ra ON true
   LEFT JOIN alerts al ON al.unit_id = u.id AND al.active AND (al.shelved_until IS NULL OR al.shelved_until <= $2)
- WHERE u.id = $1
- ORDER BY array_position($3::text[], al.grade) DESC, al.raised_at DESC, al.id DESC`;
+ WHERE u.id = ANY($1::text[])
+ ORDER BY u.id, array_position($3::text[], al.grade) DESC, al.raised_at DESC, al.id DESC`;
 
 const n = (v: unknown) => (v === null || v === undefined ? null : Number(v));
 const date = (v: unknown): Date | null => (v === null || v === undefined ? null : v instanceof Date ? v : new Date(String(v)));
@@ -100,27 +100,45 @@ function analysisOf(r: Record<string, unknown>): LatestAnalysis | null {
 }
 
 /**
- * The status of a unit at instant `nowMs` (shelves are judged against it), or null when there is
- * no such unit. A named statement: planned once per connection, pruned at execution.
+ * The status of each of `unitIds` at instant `nowMs` (shelves are judged against it), by unit;
+ * a unit that does not exist is missing from the map. One named statement for any number of
+ * units: planned once per connection, pruned at execution.
  */
+export async function unitStatusStates(q: Queryable, unitIds: readonly string[], nowMs: number): Promise<Map<string, UnitStatusState>> {
+  const { rows } = await q.query({ name: 'unit_status_states', text: STATUS_SQL, values: [unitIds, new Date(nowMs), GRADES] });
+  const states = new Map<string, UnitStatusState>();
+  // Rows come grouped by unit: one per active alert, or one with null alert columns.
+  for (let i = 0; i < rows.length; ) {
+    let j = i + 1;
+    while (j < rows.length && rows[j].s_unit_id === rows[i].s_unit_id) j++;
+    states.set(rows[i].s_unit_id as string, stateOf(rows.slice(i, j)));
+    i = j;
+  }
+  return states;
+}
+
+/** The status of one unit at instant `nowMs`, or null when there is no such unit. */
 export async function unitStatusState(q: Queryable, unitId: string, nowMs: number): Promise<UnitStatusState | null> {
-  const { rows } = await q.query({ name: 'unit_status_state', text: STATUS_SQL, values: [unitId, new Date(nowMs), GRADES] });
-  if (rows.length === 0) return null;
+  return (await unitStatusStates(q, [unitId], nowMs)).get(unitId) ?? null;
+}
+
+function stateOf(rows: pg.QueryResultRow[]): UnitStatusState {
   const r = rows[0];
-  const leaseOk = r.lease_until instanceof Date && Number.isFinite(r.lease_until.getTime());
+  const lease = r.lease_until;
+  const leaseOk = lease instanceof Date && Number.isFinite(lease.getTime());
   const analysed = Number(r.rings_analysed ?? 0) + Number(r.late_rings_analysed ?? 0);
   const unshelveAt = date(r.unshelve_at);
   return {
     analysis: analysisOf(r),
     progress: {
-      lastRingTs: r.last_ring_ts ?? null,
+      lastRingTs: (r.last_ring_ts as Date | null) ?? null,
       ringsStored: analysed + Number(r.pending),
       ringsAnalysed: analysed,
-      watermarkTs: r.watermark_ts ?? null,
+      watermarkTs: (r.watermark_ts as Date | null) ?? null,
       ringsAnalysedInOrder: Number(r.rings_analysed ?? 0),
       lateRingsAnalysed: Number(r.late_rings_analysed ?? 0),
-      workerId: r.worker_id ?? null,
-      leaseUntil: leaseOk ? r.lease_until : null,
+      workerId: (r.worker_id as string | null) ?? null,
+      leaseUntil: leaseOk ? lease : null,
     },
     alerts: rows.filter((a) => a.id !== null).map((a) => toAlertJson(alertFromDb(a))),
     starts: {

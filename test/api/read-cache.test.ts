@@ -6,13 +6,14 @@
  * repositories read.
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { gunzipSync } from 'node:zlib';
 import pg from 'pg';
 import { bearer, createTestApp, unitBody, type TestApp } from '../helpers/app.ts';
 import { insertAlerts, insertAnalyses } from '../../services/db/synthetic.ts';
 import { analysisProgress, latestAnalysis } from '../../services/db/analysis.ts';
 import { listActiveAlerts } from '../../services/db/alerts.ts';
 import { createStartsRepository } from '../../services/db/starts.ts';
-import { unitStatusState } from '../../services/db/status-reads.ts';
+import { unitStatusState, unitStatusStates } from '../../services/db/status-reads.ts';
 import { statusBody } from '../../services/api/routes/status.ts';
 import { fleetBodyMaker, fleetRows } from '../../services/api/routes/fleet.ts';
 import { coalesced } from '../../services/api/routes/read-common.ts';
@@ -35,7 +36,7 @@ const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
 
 beforeAll(async () => {
   t = await createTestApp();
-  for (const id of ['cache-a', 'cache-b', 'cache-quiet']) {
+  for (const id of ['cache-a', 'cache-b', 'cache-quiet', 'cache-many']) {
     const res = await t.app.inject({ method: 'POST', url: '/v1/units', headers: bearer(t.keys.admin), payload: unitBody(id) });
     expect(res.statusCode).toBe(201);
   }
@@ -73,6 +74,29 @@ describe('the status statement', () => {
     }
     expect(await unitStatusState(t.db.pool, 'cache-none', Date.now())).toBeNull();
     expect((await get('/v1/units/cache-none/status')).statusCode).toBe(404);
+  });
+
+  it('reads many units at once as it reads each alone, each with its own alerts', async () => {
+    await insertAlerts(t.db.pool, 'cache-many', [
+      { kind: 'spread_jump', grade: 'notice', raisedAtMs: Date.now() - 1000, message: 'spread jump' },
+      { kind: 'thermocouple_fault', grade: 'warning', thermocouple: 5, raisedAtMs: Date.now(), message: 'thermocouple 5' },
+    ]);
+    const ids = ['cache-quiet', 'cache-none', 'cache-many', 'cache-a', 'cache-many'];
+    const now = Date.now();
+    const many = await unitStatusStates(t.db.pool, ids, now);
+    expect([...many.keys()].sort()).toEqual(['cache-a', 'cache-many', 'cache-quiet']);
+    for (const id of ['cache-a', 'cache-many', 'cache-quiet']) {
+      const one = await unitStatusState(t.db.pool, id, now);
+      expect(statusBody(id, many.get(id)!)).toEqual(statusBody(id, one!));
+    }
+    expect(many.get('cache-many')!.alerts.map((a) => [a.unitId, a.grade])).toEqual([['cache-many', 'warning'], ['cache-many', 'notice']]);
+    expect(many.get('cache-a')!.alerts.every((a) => a.unitId === 'cache-a')).toBe(true);
+
+    // Requests arriving together are answered from one statement, each with its own unit.
+    const replies = await Promise.all(ids.map((id) => get(`/v1/units/${id}/status`)));
+    expect(replies.map((r) => r.statusCode)).toEqual([200, 404, 200, 200, 200]);
+    for (const [k, r] of replies.entries()) if (r.statusCode === 200) expect(r.json().unitId).toBe(ids[k]);
+    expect(replies[2].json()).toEqual(replies[4].json());
   });
 });
 
@@ -128,6 +152,43 @@ describe('reads after writes', () => {
     await sleep(Math.max(0, untilMs - Date.now()) + 50);
     expect((await status('cache-quiet')).activeAlerts.map((a: { id: string }) => a.id)).toEqual([alertId]);
     expect(await fleetRow('cache-quiet')).toMatchObject({ activeAlerts: 1, shelvedAlerts: 0, worstGrade: 'warning' });
+  });
+});
+
+describe('the fleet board compressed', () => {
+  /** The board without what follows the clock (asOf, dataAgeS), to compare two reads. */
+  const board = (text: string) => {
+    const b = JSON.parse(text) as { units: Array<Record<string, unknown>> };
+    return b.units.map(({ dataAgeS: _age, ...row }) => row);
+  };
+  const read = (acceptEncoding: string) => t.app.inject({ url: '/v1/fleet', headers: { ...bearer(t.keys.viewer), 'accept-encoding': acceptEncoding } });
+
+  it('is gzip to a client that accepts it, the same board as the plain reply, and as fresh', async () => {
+    const plain = await read('identity');
+    expect(plain.headers['content-encoding']).toBeUndefined();
+    expect(plain.headers.vary).toMatch(/accept-encoding/i);
+    const zipped = await read('gzip, deflate, br');
+    expect(zipped.statusCode).toBe(200);
+    expect(zipped.headers['content-encoding']).toBe('gzip');
+    expect(zipped.headers.vary).toMatch(/accept-encoding/i);
+    const unzipped = gunzipSync(zipped.rawPayload).toString('utf8');
+    expect(board(unzipped)).toEqual(board(plain.body));
+    expect(Number(zipped.headers['content-length'])).toBe(zipped.rawPayload.length);
+
+    // A write by another process shows in the very next compressed read, within the same second too.
+    await insertAlerts(other, 'cache-a', [{ kind: 'coverage_degraded', grade: 'critical', raisedAtMs: Date.now(), message: 'coverage degraded' }]);
+    const after = board(gunzipSync((await read('gzip')).rawPayload).toString('utf8'));
+    expect(after.find((u) => u.unitId === 'cache-a')).toMatchObject({ worstGrade: 'critical' });
+    expect(after[0].unitId).toBe('cache-a');
+  });
+
+  it('is plain JSON to a client that refuses gzip or asks for another coding only', async () => {
+    for (const header of ['gzip;q=0', 'br', '']) {
+      const res = await read(header);
+      expect(res.statusCode, header).toBe(200);
+      expect(res.headers['content-encoding'], header).toBeUndefined();
+      expect(board(res.body).length, header).toBe(4);
+    }
   });
 });
 

@@ -3,21 +3,22 @@
  * analysed ring, or null before the first; the latest stored ring), its exhaust spreads and
  * limit, coldest and hottest thermocouples, chamber estimates with the swirl used, invalid
  * thermocouples with their reasons, the active alerts, and how far analysis has come (rings
- * stored and analysed, the watermark, the worker holding the unit). One statement reads it all;
- * the serialized reply is kept per unit and given again while the database's commit snapshot
- * says nothing has been written since.
+ * stored and analysed, the watermark, the worker holding the unit). One statement reads it all,
+ * for all the units asked for at once; the serialized reply is kept per unit and given again
+ * while the database's commit snapshot says nothing has been written since.
  * Also `workerRoutes`: this route and the baselines routes, registered together.
  */
+import DataLoader from 'dataloader';
 import type { FastifyInstance } from 'fastify';
 import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
 import { Type, type Static, type TSchema } from 'typebox';
 import { ADVISORY_CAUTION } from '../../core/findings.ts';
 import { VALIDITY_REASONS } from '../../core/types.ts';
-import { unitStatusState, type UnitStatusState } from '../../db/status-reads.ts';
+import { unitStatusStates, type UnitStatusState } from '../../db/status-reads.ts';
 import { notFound } from '../errors.ts';
 import { ErrorReply, UnitParams } from '../schemas.ts';
 import { baselineRoutes } from './baselines.ts';
-import { coalesced, snapshotOf } from './read-common.ts';
+import { snapshotOf } from './read-common.ts';
 import { StartCounters } from './starts.ts';
 
 const Nullable = <T extends TSchema>(t: T) => Type.Union([t, Type.Null()]);
@@ -136,6 +137,8 @@ export function statusBody(unitId: string, st: UnitStatusState): StatusBody {
 
 /** Units whose status is kept serialized; past this the cache starts again empty. */
 const STATUS_CACHE_UNITS = 20_000;
+/** Most units read by one status statement. */
+const STATUS_BATCH_UNITS = 100;
 
 export async function statusRoutes(base: FastifyInstance): Promise<void> {
   const app = base.withTypeProvider<TypeBoxTypeProvider>();
@@ -144,19 +147,19 @@ export async function statusRoutes(base: FastifyInstance): Promise<void> {
   // request reads the database's commit snapshot (one trivial query, shared by the requests
   // that arrive while one is under way); while it equals the entry's, nothing has been written
   // since and the bytes are exact. A shelf running out ends an entry at that instant. Otherwise
-  // one statement reads the status again, shared by the requests for the same unit that arrive
-  // while it is under way.
+  // the status is read again: the units missed by the requests of one turn of the event loop
+  // are read together in one statement (a board of units opened at once, or every unit after a
+  // write, costs a statement per turn, not one per unit). A batch is sent after every request
+  // in it asked, so each reads what was committed before it asked.
   interface Entry { snapshot: string; validUntilMs: number; body: Buffer }
   const cache = new Map<string, Entry>();
-  const loaders = new Map<string, () => Promise<UnitStatusState | null>>();
-  const loaderOf = (unitId: string) => {
-    let l = loaders.get(unitId);
-    if (!l) {
-      if (loaders.size >= STATUS_CACHE_UNITS) loaders.clear();
-      loaders.set(unitId, (l = coalesced(() => unitStatusState(app.pool, unitId, Date.now()))));
-    }
-    return l;
-  };
+  const loader = new DataLoader<string, UnitStatusState | null>(
+    async (unitIds) => {
+      const states = await unitStatusStates(app.pool, [...new Set(unitIds)], Date.now());
+      return unitIds.map((id) => states.get(id) ?? null);
+    },
+    { cache: false, maxBatchSize: STATUS_BATCH_UNITS, batchScheduleFn: (send) => setImmediate(send) },
+  );
 
   app.get('/v1/units/:unitId/status', {
     schema: {
@@ -172,7 +175,7 @@ export async function statusRoutes(base: FastifyInstance): Promise<void> {
     const snap = await snapshot();
     let e = cache.get(unitId);
     if (!e || e.snapshot !== snap || Date.now() >= e.validUntilMs) {
-      const st = await loaderOf(unitId)();
+      const st = await loader.load(unitId);
       if (!st) {
         cache.delete(unitId);
         throw notFound(`No unit ${unitId}.`);
