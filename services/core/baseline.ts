@@ -114,6 +114,22 @@ export function baselineAt(b: BinnedBaseline, loadFraction: number): BaselineVal
   };
 }
 
+/** baselineAt(b, loadFraction)?.median without building the value: NaN where baselineAt gives null. */
+export function baselineMedianAt(b: BinnedBaseline, loadFraction: number): number {
+  if (!Number.isFinite(loadFraction)) return NaN;
+  const w = b.binWidth;
+  const i = Math.floor((loadFraction - b.loadMin) / w);
+  if (i < 0 || i >= b.bins.length) return NaN;
+  const bin = b.bins[i];
+  if (bin.median === null) return NaN;
+  const centre = b.loadMin + (i + 0.5) * w;
+  const j = loadFraction >= centre ? i + 1 : i - 1;
+  const other = j >= 0 && j < b.bins.length ? b.bins[j] : null;
+  if (!other || other.median === null) return bin.median;
+  const t = Math.abs(loadFraction - centre) / w;
+  return bin.median + t * (other.median - bin.median);
+}
+
 /** One ring's contribution to a unit baseline. Arrays: index 0 = thermocouple / chamber 1. */
 export interface BaselineSample {
   loadFraction: number;

@@ -211,7 +211,7 @@ function r3(v: number): number | null {
 
 /** Evaluates every rule for one analysed ring. Returns findings, most severe first. */
 export function evaluateFindings(input: FindingInput): Finding[] {
-  const t: Thresholds = { ...defaultThresholds, ...input.thresholds };
+  const t = resolvedThresholds(input.thresholds);
   const a = input.analysis;
   const version = input.baseline ? input.baseline.version : null;
   const out: Finding[] = [];
@@ -222,6 +222,19 @@ export function evaluateFindings(input: FindingInput): Finding[] {
   driftFindings(input, t, version, out);
   if (out.length === 0) return out;
   return foldSpreadIntoChamber(out, a.chamberCount, input.temperatureUnit).sort(moreSevereFirst);
+}
+
+/** Threshold objects seen to name every threshold: used as they are, not merged over the defaults. */
+const completeThresholds = new WeakSet<object>();
+const THRESHOLD_KEYS = Object.keys(defaultThresholds);
+
+/** The thresholds over the defaults; a complete set (as the worker passes on every ring) is used as it is. */
+function resolvedThresholds(given: Partial<Thresholds> | undefined): Thresholds {
+  if (given === undefined) return { ...defaultThresholds };
+  if (completeThresholds.has(given)) return given as Thresholds;
+  for (const k of THRESHOLD_KEYS) if (!Object.prototype.hasOwnProperty.call(given, k)) return { ...defaultThresholds, ...given };
+  completeThresholds.add(given);
+  return given as Thresholds;
 }
 
 function moreSevereFirst(x: Finding, y: Finding): number {

@@ -19,7 +19,7 @@ import { arcDistanceDeg, chamberAnglesDeg, chamberPitchDeg, thermocoupleAnglesDe
 import { emptySpread, spreadInto, type SpreadMetrics } from './spread.ts';
 import { madOfSorted, medianOfSorted, sortPrefixInPlace } from './stats.ts';
 import { swirlDeg } from './swirl.ts';
-import { baselineAt, type UnitBaseline } from './baseline.ts';
+import { baselineMedianAt, type UnitBaseline } from './baseline.ts';
 import { checkUnitConfig, MAX_THERMOCOUPLES } from './unit-config.ts';
 import { VALIDITY, VALIDITY_REASONS, type PlumeKernel, type Reading, type UnitConfig, type ValidityReason } from './types.ts';
 import {
@@ -507,33 +507,78 @@ export interface BaselineResiduals {
   lone: { thermocouple: number; residualDegC: number } | null;
 }
 
+/**
+ * Buffers for `baselineResidualsInto`, sized for one unit context: the results (thermocouple
+ * and chamber residuals) and the working arrays, so a ring's residuals allocate nothing.
+ */
+export interface ResidualBuffers {
+  readonly thermocoupleDegC: Float64Array;
+  readonly chamberDegC: Float64Array;
+  readonly chamberUncertaintyDegC: Float64Array;
+  readonly apart: Float64Array;
+  readonly finite: Float64Array;
+  readonly mapped: Float64Array;
+  readonly usable: Uint8Array;
+  readonly values: Float64Array;
+  readonly scratch: Float64Array;
+  readonly fit: Float64Array;
+}
+
+export function createResidualBuffers(m: number, n: number): ResidualBuffers {
+  return {
+    thermocoupleDegC: new Float64Array(m),
+    chamberDegC: new Float64Array(n),
+    chamberUncertaintyDegC: new Float64Array(n),
+    apart: new Float64Array(m),
+    finite: new Float64Array(m),
+    mapped: new Float64Array(m),
+    usable: new Uint8Array(m),
+    values: new Float64Array(m),
+    scratch: new Float64Array(m),
+    fit: new Float64Array(n + 1),
+  };
+}
+
 /** The ring's departures from the baseline: thermocouple residuals, a lone one, and their chamber map. */
 export function baselineResiduals(ctx: UnitContext, a: RingAnalysis, baseline: UnitBaseline): BaselineResiduals {
-  const tc = new Float64Array(ctx.m).fill(NaN);
-  for (let i = 0; i < ctx.m; i++) {
-    const bb = baseline.thermocouples[i] ? baselineAt(baseline.thermocouples[i], a.loadFraction) : null;
-    if (bb) tc[i] = a.deviationDegC[i] - bb.median;
+  return baselineResidualsInto(ctx, a, baseline, createResidualBuffers(ctx.m, ctx.n));
+}
+
+/**
+ * baselineResiduals written into `buf`: the arrays of the result are buf's own, valid until the
+ * next call with the same buffers (copy them to keep them).
+ */
+export function baselineResidualsInto(ctx: UnitContext, a: RingAnalysis, baseline: UnitBaseline, buf: ResidualBuffers): BaselineResiduals {
+  const m = ctx.m;
+  const tc = buf.thermocoupleDegC;
+  const L = a.loadFraction;
+  for (let i = 0; i < m; i++) {
+    const bt = baseline.thermocouples[i];
+    const median = bt ? baselineMedianAt(bt, L) : NaN;
+    tc[i] = median === median ? a.deviationDegC[i] - median : NaN;
   }
   // The lone test looks at departures from the ring's common departure (their median): one
   // probe reading low pulls the ring's centre, and so every other probe's residual, up a little.
-  const finite: number[] = [];
-  for (let i = 0; i < ctx.m; i++) if (Number.isFinite(tc[i])) finite.push(tc[i]);
-  finite.sort((x, y) => x - y);
-  const common = finite.length ? medianOfSorted(finite, finite.length) : 0;
-  const apart = new Float64Array(ctx.m);
-  for (let i = 0; i < ctx.m; i++) apart[i] = tc[i] - common;
-  const found = loneThermocouple(apart, ctx.m, ctx.responseLeft, ctx.responseRight, ctx.options.loneSensorMinDegC, 0.5, ctx.options.loneSensorNoiseDegC);
+  const finite = buf.finite;
+  let nf = 0;
+  for (let i = 0; i < m; i++) if (Number.isFinite(tc[i])) finite[nf++] = tc[i];
+  sortPrefixInPlace(finite, nf);
+  const common = nf ? medianOfSorted(finite, nf) : 0;
+  const apart = buf.apart;
+  for (let i = 0; i < m; i++) apart[i] = tc[i] - common;
+  const found = loneThermocouple(apart, m, ctx.responseLeft, ctx.responseRight, ctx.options.loneSensorMinDegC, 0.5, ctx.options.loneSensorNoiseDegC);
   const lone = found ? { index: found.index, value: tc[found.index] } : null;
   let mapped: Float64Array = tc;
   if (lone) {
-    mapped = tc.slice();
+    mapped = buf.mapped;
+    mapped.set(tc);
     mapped[lone.index] = NaN;
   }
-  const map = chamberResidualsFromThermocouples(ctx, a.loadFraction, mapped);
+  const map = chamberMapInto(ctx, a.loadFraction, mapped, buf);
   return {
     thermocoupleDegC: tc,
-    chamberDegC: map ? map.chamberDeviationDegC : null,
-    chamberUncertaintyDegC: map ? map.chamberUncertaintyDegC : null,
+    chamberDegC: map ? buf.chamberDegC : null,
+    chamberUncertaintyDegC: map ? buf.chamberUncertaintyDegC : null,
     lone: lone ? { thermocouple: lone.index + 1, residualDegC: lone.value } : null,
   };
 }
@@ -550,9 +595,13 @@ export function baselineResiduals(ctx: UnitContext, a: RingAnalysis, baseline: U
  * common part), or null when fewer than minValidForChambers thermocouples have a residual.
  */
 export function chamberResidualsFromThermocouples(ctx: UnitContext, loadFraction: number, tcResidualDegC: ArrayLike<number>): ChamberEstimateOut | null {
-  const { m, n } = ctx;
-  const usable = new Uint8Array(m);
-  const values = new Float64Array(m);
+  return chamberMapInto(ctx, loadFraction, tcResidualDegC, createResidualBuffers(ctx.m, ctx.n));
+}
+
+/** chamberResidualsFromThermocouples into `buf` (the result's arrays are buf's chamber arrays). */
+function chamberMapInto(ctx: UnitContext, loadFraction: number, tcResidualDegC: ArrayLike<number>, buf: ResidualBuffers): ChamberEstimateOut | null {
+  const m = ctx.m;
+  const { usable, values } = buf;
   let count = 0;
   for (let i = 0; i < m; i++) {
     const v = tcResidualDegC[i];
@@ -560,11 +609,14 @@ export function chamberResidualsFromThermocouples(ctx: UnitContext, loadFraction
       usable[i] = 1;
       values[i] = v;
       count++;
+    } else {
+      usable[i] = 0;
+      values[i] = 0;
     }
   }
   if (count < ctx.options.minValidForChambers) return null;
   const solver = solverFor(ctx, loadBinOf(ctx, loadFraction), usable);
-  const out = { chamberDeviationDegC: new Float64Array(n), chamberUncertaintyDegC: new Float64Array(n), ringLevelDegC: NaN, fitResidualSdDegC: NaN };
-  estimateChambers(solver, values, 0, ctx.options.residualFloorDegC, new Float64Array(m), new Float64Array(n + 1), out);
+  const out = { chamberDeviationDegC: buf.chamberDegC, chamberUncertaintyDegC: buf.chamberUncertaintyDegC, ringLevelDegC: NaN, fitResidualSdDegC: NaN };
+  estimateChambers(solver, values, 0, ctx.options.residualFloorDegC, buf.scratch, buf.fit, out);
   return out;
 }

@@ -6,7 +6,7 @@
  * rebuilds it from stored rings and analysis after a restart or a takeover and the next ring
  * is analysed exactly as it would have been without the interruption. No I/O here.
  */
-import { analyseRing, baselineResiduals, prepareUnit, type UnitContext } from '../core/ring.ts';
+import { analyseRing, baselineResidualsInto, createResidualBuffers, prepareUnit, type ResidualBuffers, type UnitContext } from '../core/ring.ts';
 import type { UnitBaseline } from '../core/baseline.ts';
 import { correctedLoadFraction, defaultSteadyStateOptions, steadyState, type SteadyStateOptions } from '../core/correction.ts';
 import { evaluateFindings, gradeRank, spreadLimitDegC, type ChamberDriftInput, type Finding, type Thresholds } from '../core/findings.ts';
@@ -30,6 +30,10 @@ export interface AnalyserInputs {
 }
 
 export interface RingResult {
+  /**
+   * The ring's analysis row. Its arrays other than validity are the analyser's own buffers,
+   * valid until the next call of analyse: write (or copy) the row before analysing the next ring.
+   */
   row: AnalysisRow;
   /** Findings at the normal and the deadband thresholds; null when the unit is not in service (no observation). */
   raise: Finding[] | null;
@@ -42,6 +46,8 @@ const WINDOW_TEST_RINGS = 60;
 
 export class UnitAnalyser {
   private readonly contexts = new Map<number, UnitContext>();
+  /** Residual buffers per prepared context. */
+  private readonly residualBuffers = new Map<UnitContext, ResidualBuffers>();
   private readonly steadyWindowS: number;
   private readonly windowMs: number;
   private readonly slotMs: number;
@@ -89,6 +95,7 @@ export class UnitAnalyser {
     this.inputs = inputs;
     if (changed) {
       this.contexts.clear();
+      this.residualBuffers.clear();
       this.buildSchedule();
     }
   }
@@ -243,7 +250,12 @@ export class UnitAnalyser {
     // Residuals against the baseline at this load: each thermocouple's deviation less its own
     // normal, and the chamber map of that pattern (chamberResidualsFromThermocouples). Findings
     // judge every ring in service by them; the stored analysis keeps them for steady rings.
-    const res = b ? baselineResiduals(ctx, a, b) : null;
+    let res = null;
+    if (b) {
+      let buf = this.residualBuffers.get(ctx);
+      if (!buf) this.residualBuffers.set(ctx, (buf = createResidualBuffers(ctx.m, ctx.n)));
+      res = baselineResidualsInto(ctx, a, b, buf);
+    }
     const tcRes = res ? res.thermocoupleDegC : null;
     const chamberRes = res ? res.chamberDegC : null;
     const tcResidual = st.steady ? tcRes : null;
@@ -294,11 +306,11 @@ export class UnitAnalyser {
       validCount: a.coverage.validCount,
       coverageDegraded: a.coverage.degraded,
       validity,
-      tcDeviation: a.deviationDegC.slice(),
+      tcDeviation: a.deviationDegC,
       tcResidual,
       swirlDeg: a.swirlDeg,
-      chamberDeviation: a.chamberDeviationDegC.slice(),
-      chamberUncertainty: a.chamberUncertaintyDegC.slice(),
+      chamberDeviation: a.chamberDeviationDegC,
+      chamberUncertainty: a.chamberUncertaintyDegC,
       chamberResidual,
       ringLevel: a.ringLevelDegC,
       fitSd: a.fitResidualSdDegC,
