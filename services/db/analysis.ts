@@ -103,6 +103,7 @@ export async function ensureAnalysisPartitions(client: pg.ClientBase, pool: obje
 
 function decodeRings(buf: Buffer): RingColumns {
   const r = new CopyBinaryReader(buf);
+  const arena = r.arena();
   const ts: number[] = [];
   const load: number[] = [];
   const amb: number[] = [];
@@ -115,7 +116,7 @@ function decodeRings(buf: Buffer): RingColumns {
     amb.push(r.float4());
     kpa.push(r.float4());
     speed.push(r.float4());
-    ex.push(r.numberArray() ?? new Float64Array(0));
+    ex.push(r.numberArray(arena) ?? new Float64Array(0));
   }
   return {
     count: ts.length,
@@ -154,6 +155,7 @@ export async function readRingsAfterMany(client: pg.ClientBase, entries: { unitI
       ORDER BY u.unit_id, x.ts`,
   );
   const r = new CopyBinaryReader(body);
+  const arena = r.arena();
   let cur: { id: string; ts: number[]; load: number[]; amb: number[]; kpa: number[]; speed: number[]; ex: Float64Array[] } | null = null;
   const flush = () => {
     if (!cur) return;
@@ -178,7 +180,7 @@ export async function readRingsAfterMany(client: pg.ClientBase, entries: { unitI
     cur.amb.push(r.float4());
     cur.kpa.push(r.float4());
     cur.speed.push(r.float4());
-    cur.ex.push(r.numberArray() ?? new Float64Array(0));
+    cur.ex.push(r.numberArray(arena) ?? new Float64Array(0));
   }
   flush();
   return out;
@@ -633,6 +635,8 @@ const ANALYSIS_READ_COLUMNS = 'ts, load_fraction, steady, spread, spread_excl1, 
 
 function decodeAnalysis(buf: Buffer): AnalysisColumns {
   const r = new CopyBinaryReader(buf);
+  // smallint[] elements take 6 bytes of the body with their length words.
+  const arena = r.arena(6);
   const ts: number[] = [];
   const load: number[] = [];
   const steady: number[] = [];
@@ -653,11 +657,11 @@ function decodeAnalysis(buf: Buffer): AnalysisColumns {
     e1.push(r.float4());
     e2.push(r.float4());
     mean.push(r.float4());
-    validity.push(r.numberArray() ?? new Float64Array(0));
-    tcDev.push(r.numberArray() ?? new Float64Array(0));
-    tcRes.push(r.numberArray());
-    chDev.push(r.numberArray() ?? new Float64Array(0));
-    chRes.push(r.numberArray());
+    validity.push(r.numberArray(arena) ?? new Float64Array(0));
+    tcDev.push(r.numberArray(arena) ?? new Float64Array(0));
+    tcRes.push(r.numberArray(arena));
+    chDev.push(r.numberArray(arena) ?? new Float64Array(0));
+    chRes.push(r.numberArray(arena));
   }
   return {
     count: ts.length,

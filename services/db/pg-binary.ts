@@ -194,6 +194,7 @@ export class CopyBinaryWriter {
 export class CopyBinaryReader {
   private pos: number;
   private end = 0;
+  private view: DataView | undefined;
 
   constructor(private readonly buf: Buffer) {
     if (buf.length < 19 || !buf.subarray(0, 11).equals(SIGNATURE)) throw new Error('not a binary COPY body');
@@ -279,8 +280,12 @@ export class CopyBinaryReader {
     return (hi * TWO_32 + lo) / 1000 + PG_EPOCH_MS;
   }
 
-  /** A one-dimensional numeric array (float4, float8, int2, int4) as Float64Array, NULL → NaN; null for a NULL array. */
-  numberArray(): Float64Array | null {
+  /**
+   * A one-dimensional numeric array (float4, float8, int2, int4) as Float64Array, NULL → NaN;
+   * null for a NULL array. With an arena, the array is a view of the arena's buffer (one
+   * allocation for a whole body's arrays instead of one per row).
+   */
+  numberArray(arena?: Float64Arena): Float64Array | null {
     const len = this.field();
     if (len < 0) return null;
     const b = this.buf;
@@ -292,19 +297,55 @@ export class CopyBinaryReader {
     }
     const n = b.readInt32BE(this.pos + 12);
     let p = this.pos + 12 + 8 * ndim;
-    const out = new Float64Array(n);
-    for (let i = 0; i < n; i++) {
-      const l = b.readInt32BE(p);
-      p += 4;
-      if (l < 0) {
-        out[i] = NaN;
-        continue;
+    const out = arena ? arena.take(n) : new Float64Array(n);
+    if (oid === FLOAT4_OID) {
+      const d = (this.view ??= new DataView(b.buffer, b.byteOffset, b.byteLength));
+      for (let i = 0; i < n; i++) {
+        const l = d.getInt32(p);
+        if (l < 0) {
+          out[i] = NaN;
+          p += 4;
+        } else {
+          out[i] = d.getFloat32(p + 4);
+          p += 4 + l;
+        }
       }
-      out[i] = oid === FLOAT4_OID ? b.readFloatBE(p) : oid === INT2_OID ? b.readInt16BE(p) : l === 8 ? b.readDoubleBE(p) : b.readInt32BE(p);
-      p += l;
+    } else {
+      for (let i = 0; i < n; i++) {
+        const l = b.readInt32BE(p);
+        p += 4;
+        if (l < 0) {
+          out[i] = NaN;
+          continue;
+        }
+        out[i] = oid === INT2_OID ? b.readInt16BE(p) : l === 8 ? b.readDoubleBE(p) : b.readInt32BE(p);
+        p += l;
+      }
     }
     this.pos = this.end;
     return out;
+  }
+
+  /** An arena for the number arrays left in the body: room for one element per bytesPerElement bytes (8: a float4 element with its length word); arrays past that get their own allocation. */
+  arena(bytesPerElement = 8): Float64Arena {
+    return new Float64Arena(Math.max(0, Math.floor((this.buf.length - this.pos) / bytesPerElement)));
+  }
+}
+
+/** Hands out consecutive views of one Float64Array. */
+export class Float64Arena {
+  private readonly all: Float64Array;
+  private used = 0;
+
+  constructor(capacity: number) {
+    this.all = new Float64Array(capacity);
+  }
+
+  take(n: number): Float64Array {
+    if (this.used + n > this.all.length) return new Float64Array(n);
+    const v = this.all.subarray(this.used, this.used + n);
+    this.used += n;
+    return v;
   }
 }
 
