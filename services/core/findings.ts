@@ -8,7 +8,7 @@
 import { baselineAt, type UnitBaseline } from './baseline.ts';
 import { attributeChamber, type ChamberAttribution } from './chambers.ts';
 import type { CusumState, DriftRate } from './drift.ts';
-import { removeCommonMode } from './drift.ts';
+import { medianOfSorted, sortPrefixInPlace } from './stats.ts';
 import type { BaselineResiduals, RingAnalysis } from './ring.ts';
 import { VALIDITY, VALIDITY_REASONS, type ValidityReason } from './types.ts';
 import { loneThermocouple, type WindowVerdict } from './validity.ts';
@@ -471,8 +471,8 @@ function chamberFindings(input: FindingInput, t: Thresholds, version: number | n
   const unit = input.temperatureUnit;
   const a = input.analysis;
   const n = a.chamberCount;
-  const resid = new Float64Array(n);
-  const scale = new Float64Array(n);
+  const resid = chamberScratch(0, n);
+  const scale = chamberScratch(1, n);
   let usedBaseline = false;
   const mapped = input.baseline ? input.residuals?.chamberDegC ?? null : null;
   for (let k = 0; k < n; k++) {
@@ -483,7 +483,7 @@ function chamberFindings(input: FindingInput, t: Thresholds, version: number | n
     scale[k] = b ? b.scale : 0;
   }
   if (mapped) usedBaseline = true;
-  const cm = removeCommonMode(resid);
+  const cm = removeCommonModeInto(resid, n, chamberScratch(2, n), chamberScratch(3, n));
   const r = cm.residualsDegC;
   const factor = usedBaseline ? 1 : t.noBaselineChamberFactor;
   const pitch = 360 / n;
@@ -532,6 +532,34 @@ function chamberFindings(input: FindingInput, t: Thresholds, version: number | n
       advice: chamberAdvice(ch, cold, grade),
     });
   }
+}
+
+/**
+ * Working arrays of chamberFindings, kept between calls (findings run on every ring in
+ * service): four per chamber count, none of them part of what a finding keeps.
+ */
+const chamberScratchByN = new Map<number, Float64Array[]>();
+function chamberScratch(which: number, n: number): Float64Array {
+  let set = chamberScratchByN.get(n);
+  if (!set) chamberScratchByN.set(n, (set = [new Float64Array(n), new Float64Array(n), new Float64Array(n), new Float64Array(n)]));
+  return set[which];
+}
+
+/**
+ * drift.ts removeCommonMode of the first n values into `out`, with `sorted` as room for the
+ * sort: the same common mode (the median of the finite values) and the same residuals.
+ */
+function removeCommonModeInto(values: Float64Array, n: number, sorted: Float64Array, out: Float64Array): { commonModeDegC: number; residualsDegC: Float64Array } {
+  let nf = 0;
+  for (let i = 0; i < n; i++) if (Number.isFinite(values[i])) sorted[nf++] = values[i];
+  sortPrefixInPlace(sorted, nf);
+  const cm = medianOfSorted(sorted, nf);
+  const finiteCm = Number.isFinite(cm);
+  for (let i = 0; i < n; i++) {
+    const v = values[i];
+    out[i] = finiteCm && Number.isFinite(v) ? v - cm : NaN;
+  }
+  return { commonModeDegC: cm, residualsDegC: out };
 }
 
 function chamberAdvice(ch: number, cold: boolean, grade: Grade): string {
