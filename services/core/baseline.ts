@@ -84,7 +84,9 @@ function binStats(vals: number[], lo: number, hi: number, options: BaselineOptio
   const s = Float64Array.from(vals).sort();
   const med = medianOfSorted(s, count);
   const high = quantileOfSorted(s, count, options.highQuantile);
-  const dev = s.map((x) => Math.abs(x - med)).sort();
+  const dev = new Float64Array(count);
+  for (let i = 0; i < count; i++) dev[i] = Math.abs(s[i] - med);
+  dev.sort();
   return { loFraction: lo, hiFraction: hi, count, median: med, mad: medianOfSorted(dev, count), high };
 }
 
