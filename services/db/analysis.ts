@@ -69,6 +69,7 @@ const ANALYSIS_COLUMNS =
 const ANALYSIS_FIELD_COUNT = 35;
 /** ms between 1970-01-01 and PostgreSQL's epoch 2000-01-01 (UTC). */
 const PG_EPOCH_MS = 946_684_800_000;
+const TWO_32 = 4_294_967_296;
 
 const lit = (s: string) => "'" + s.replace(/'/g, "''") + "'";
 const tsLit = (ms: number) => `'${isoMicros(ms)}'::timestamptz`;
@@ -303,8 +304,12 @@ export class AnalysisEncoder {
     d.setInt32(this.p, this.unitBytes.length);
     this.unitBytes.copy(this.buf, this.p + 4);
     this.p += 4 + this.unitBytes.length;
+    // Microseconds since 2000 as two 32-bit words (exact below 2^53; no BigInt per row).
+    const us = Math.round((a.tsMs - PG_EPOCH_MS) * 1000);
+    const hi = Math.floor(us / TWO_32);
     d.setInt32(this.p, 8);
-    d.setBigInt64(this.p + 4, BigInt(Math.round((a.tsMs - PG_EPOCH_MS) * 1000)));
+    d.setInt32(this.p + 4, hi);
+    d.setUint32(this.p + 8, us - hi * TWO_32);
     this.p += 12;
     this.i4(a.configVersion);
     this.i4(a.baselineVersion);
