@@ -703,6 +703,45 @@ export async function readAnalysis(
   return decodeAnalysis(body);
 }
 
+/** What a baseline fit takes from each steady analysed ring. Arrays: index 0 = thermocouple / chamber 1. */
+export interface BaselineSampleColumns {
+  count: number;
+  loadFraction: Float64Array;
+  ringMean: Float64Array;
+  spread: Float64Array;
+  tcDeviation: Float64Array[];
+  chamberDeviation: Float64Array[];
+}
+
+/**
+ * The steady analysed rings of a unit with fromMs ≤ ts < toMs, oldest first, every
+ * sampleEvery-th by the same hash of the time as readAnalysis: only the columns a baseline fit
+ * uses (the database sends two arrays per ring instead of five).
+ */
+export async function readBaselineSamples(client: pg.ClientBase, unitId: string, fromMs: number, toMs: number, sampleEvery = 1): Promise<BaselineSampleColumns> {
+  const k = Math.floor(sampleEvery);
+  const sample = k > 1 ? ` AND abs(hashtext(ts::text)) % ${k} = 0` : '';
+  const body = await copyOut(
+    client,
+    `SELECT load_fraction, ring_mean, spread, tc_deviation, chamber_deviation FROM ring_analysis WHERE unit_id = ${lit(unitId)} AND ts >= ${tsLit(fromMs)} AND ts < ${tsLit(toMs)} AND steady${sample} ORDER BY ts`,
+  );
+  const r = new CopyBinaryReader(body);
+  const arena = r.arena();
+  const load: number[] = [];
+  const mean: number[] = [];
+  const spread: number[] = [];
+  const tcDev: Float64Array[] = [];
+  const chDev: Float64Array[] = [];
+  while (r.nextRow() > 0) {
+    load.push(r.float4());
+    mean.push(r.float4());
+    spread.push(r.float4());
+    tcDev.push(r.numberArray(arena) ?? new Float64Array(0));
+    chDev.push(r.numberArray(arena) ?? new Float64Array(0));
+  }
+  return { count: load.length, loadFraction: Float64Array.from(load), ringMean: Float64Array.from(mean), spread: Float64Array.from(spread), tcDeviation: tcDev, chamberDeviation: chDev };
+}
+
 /** Steady analysed rings of a unit in [fromMs, toMs). */
 export async function countSteady(q: Queryable, unitId: string, fromMs: number, toMs: number): Promise<number> {
   const { rows } = await q.query(`SELECT count(*)::int AS n FROM ring_analysis WHERE unit_id = $1 AND ts >= $2 AND ts < $3 AND steady`, [unitId, isoMicros(fromMs), isoMicros(toMs)]);

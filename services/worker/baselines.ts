@@ -7,7 +7,7 @@
  */
 import { defaultBaselineOptions, fitUnitBaseline, type BaselineOptions, type BaselineSample } from '../core/baseline.ts';
 import type { WorkerConfig } from '../db/config.ts';
-import { countSteady, readAnalysis } from '../db/analysis.ts';
+import { countSteady, readBaselineSamples } from '../db/analysis.ts';
 import { dueBaselineRequests, finishBaselineRequest, insertBaseline, latestBaselineVersion, type BaselineRecord } from '../db/baselines.ts';
 import type { Logger } from '../db/logger.ts';
 import { withTransaction, type Pool } from '../db/pool.ts';
@@ -43,7 +43,7 @@ export async function fitBaseline(
   const client = await pool.connect();
   let samples: BaselineSample[];
   try {
-    const c = await readAnalysis(client, unitId, fromMs, toMs, { steadyOnly: true, sampleEvery });
+    const c = await readBaselineSamples(client, unitId, fromMs, toMs, sampleEvery);
     samples = [];
     for (let i = 0; i < c.count; i++) {
       samples.push({
