@@ -101,8 +101,38 @@ class Slot {
     if (!(this.max[i] >= x)) this.max[i] = x;
   }
 
+  /** add(i, values[i]) for every i: the length grows only to the last finite value, as with add. */
   addAll(values: ArrayLike<number>): void {
-    for (let i = 0; i < values.length; i++) this.add(i, values[i]);
+    const len = values.length;
+    let { n, sum, sumsq, min, max } = this;
+    for (let i = 0; i < len; i++) {
+      const v = values[i];
+      if (!Number.isFinite(v)) continue;
+      const x = Math.fround(v);
+      if (i >= this.len) {
+        this.ensure(i + 1);
+        ({ n, sum, sumsq, min, max } = this);
+      }
+      n[i]++;
+      sum[i] += x;
+      sumsq[i] += x * x;
+      if (!(min[i] <= x)) min[i] = x;
+      if (!(max[i] >= x)) max[i] = x;
+    }
+  }
+
+  /** Per element: 0 where the code is 0 (valid), else 1; the first `len` codes. */
+  addInvalid(codes: ArrayLike<number>, len: number): void {
+    if (len > this.len) this.ensure(len);
+    const { n, sum, sumsq, min, max } = this;
+    for (let i = 0; i < len; i++) {
+      const x = codes[i] === 0 ? 0 : 1;
+      n[i]++;
+      sum[i] += x;
+      sumsq[i] += x;
+      if (!(min[i] <= x)) min[i] = x;
+      if (!(max[i] >= x)) max[i] = x;
+    }
   }
 
   row(metric: string, bucketMs: number): RollupRow {
@@ -201,8 +231,7 @@ export class RollupAccumulator {
     const td = this.slot(slots, M.tc_deviation);
     td.ensure(tcDev.length);
     td.addAll(tcDev);
-    const ti = this.slot(slots, M.tc_invalid);
-    for (let i = 0; i < tcDev.length; i++) ti.add(i, validity[i] === 0 ? 0 : 1);
+    this.slot(slots, M.tc_invalid).addInvalid(validity, tcDev.length);
     if (steady && chRes) this.slot(slots, M.chamber_residual).addAll(chRes);
     if (steady && tcRes) this.slot(slots, M.tc_residual).addAll(tcRes);
   }
