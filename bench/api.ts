@@ -16,7 +16,7 @@
  * is none, and the JSON line says which.
  */
 import autocannon from 'autocannon';
-import { readdirSync, readFileSync } from 'node:fs';
+import { mkdirSync, readdirSync, readFileSync } from 'node:fs';
 import path from 'node:path';
 import { Worker } from 'node:worker_threads';
 import type { PhaseStats } from './api-server.ts';
@@ -154,6 +154,7 @@ async function main(): Promise<void> {
 
     // One route under load, with the server thread's own account of where its time went.
     const profileDir = process.env.BENCH_CPU_PROFILE;
+    if (profileDir) mkdirSync(profileDir, { recursive: true });
     const ask = <T>(m: unknown, field: string) =>
       new Promise<T>((resolve) => {
         const on = (r: Record<string, unknown>) => {
