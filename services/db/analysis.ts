@@ -804,9 +804,41 @@ export async function readRollupBuckets(q: Queryable, unitId: string, period: Ro
   return rows.map(rowFromDb);
 }
 
-/** Stored rollup rows of several units' buckets (any metric), each with its unit. */
-export async function readRollupBucketsMany(q: Queryable, keys: { unitId: string; period: RollupPeriod; bucketMs: number }[]): Promise<{ unitId: string; row: RollupRow }[]> {
+/**
+ * Stored rollup rows of several units' buckets, each with its unit: of any metric, or of the
+ * given metrics only (then each row is one probe of the primary key, instead of a search of
+ * the key's metric column within each bucket).
+ */
+export async function readRollupBucketsMany(
+  q: Queryable,
+  keys: { unitId: string; period: RollupPeriod; bucketMs: number }[],
+  metrics?: readonly string[],
+): Promise<{ unitId: string; row: RollupRow }[]> {
   if (keys.length === 0) return [];
+  if (metrics) {
+    if (metrics.length === 0) return [];
+    // Every (key, metric) pair spelled out: the planner then probes the whole primary key.
+    const units: string[] = [];
+    const periods: string[] = [];
+    const names: string[] = [];
+    const buckets: Date[] = [];
+    for (const k of keys) {
+      const bucket = new Date(k.bucketMs);
+      for (const metric of metrics) {
+        units.push(k.unitId);
+        periods.push(k.period);
+        names.push(metric);
+        buckets.push(bucket);
+      }
+    }
+    const { rows } = await q.query(
+      `SELECT r.unit_id, r.period, r.metric, r.bucket, r.n, r.sum, r.sumsq, r.min, r.max
+         FROM unnest($1::text[], $2::text[], $3::text[], $4::timestamptz[]) AS k(unit_id, period, metric, bucket)
+         JOIN analysis_rollups r ON r.unit_id = k.unit_id AND r.period = k.period AND r.metric = k.metric AND r.bucket = k.bucket`,
+      [units, periods, names, buckets],
+    );
+    return rows.map((r) => ({ unitId: r.unit_id as string, row: rowFromDb(r) }));
+  }
   const { rows } = await q.query(
     `SELECT r.unit_id, r.period, r.metric, r.bucket, r.n, r.sum, r.sumsq, r.min, r.max
        FROM unnest($1::text[], $2::text[], $3::timestamptz[]) AS k(unit_id, period, bucket)

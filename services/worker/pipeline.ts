@@ -46,7 +46,7 @@ import type { Queryable } from '../db/alerts.ts';
 import type { ChamberDriftInput } from '../core/findings.ts';
 import { applyAlertObservations, type AlertSettings } from './alerts.ts';
 import { recordStartsForBatch, type BatchObservation } from '../db/starts.ts';
-import { bucketOf, DAY_MS, daysFromHours, HOUR_MS, RollupAccumulator } from './rollups.ts';
+import { bucketOf, DAY_MS, daysFromHours, HOUR_MS, RollupAccumulator, ROLLUP_METRICS } from './rollups.ts';
 import { UnitAnalyser, type AnalyserInputs } from './unit-analyser.ts';
 
 export interface PipelineContext {
@@ -349,6 +349,8 @@ export async function analyseGroup(
   return results;
 }
 
+const ROLLUP_METRIC_NAMES: readonly string[] = Object.keys(ROLLUP_METRICS);
+
 const rollupKey = (unitId: string, r: { period: string; metric: string; bucketMs: number }) => `${unitId}|${r.period}|${r.metric}|${r.bucketMs}`;
 
 /**
@@ -361,7 +363,8 @@ async function writeRollupsOf(client: Parameters<typeof lockOwnedUnit>[0], accs:
     for (const b of acc.hourBuckets()) keys.push({ unitId: id, period: 'hour', bucketMs: b });
     for (const b of acc.dayBuckets()) keys.push({ unitId: id, period: 'day', bucketMs: b });
   }
-  const stored = await readRollupBucketsMany(client, keys);
+  // Only the accumulator's metrics can merge with its rows (rows of any other metric are left as they are).
+  const stored = await readRollupBucketsMany(client, keys, ROLLUP_METRIC_NAMES);
   const byUnit = new Map<string, RollupRow[]>();
   const exists = new Set<string>();
   for (const { unitId, row } of stored) {
