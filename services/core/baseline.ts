@@ -6,7 +6,7 @@
  * extrapolation. A unit baseline is versioned and serialisable; the fit time and author are
  * parameters, never read from a clock.
  */
-import { MAD_TO_SIGMA, medianOfSorted, quantileOfSorted } from './stats.ts';
+import { MAD_TO_SIGMA } from './stats.ts';
 import type { RingAnalysis } from './ring.ts';
 
 export interface BaselineOptions {
@@ -81,13 +81,72 @@ export function fitBinnedBaseline(
 function binStats(vals: number[], lo: number, hi: number, options: BaselineOptions): BaselineBin {
   const count = vals.length;
   if (count < options.minCount || count === 0) return { loFraction: lo, hiFraction: hi, count, median: null, mad: null, high: null };
-  const s = Float64Array.from(vals).sort();
-  const med = medianOfSorted(s, count);
-  const high = quantileOfSorted(s, count, options.highQuantile);
+  // Order statistics by selection, not a full sort: the same values as medianOfSorted and
+  // quantileOfSorted of the sorted bin (the bins of a month of rings hold thousands of values).
+  const s = Float64Array.from(vals);
+  const med = medianBySelection(s, count);
+  const q = Math.min(Math.max(options.highQuantile, 0), 1) * (count - 1);
+  const qlo = Math.floor(q);
+  const qhi = Math.min(qlo + 1, count - 1);
+  const atLo = selectInPlace(s, count, qlo);
+  const atHi = qhi === qlo ? atLo : minFrom(s, qlo + 1, count);
+  const high = atLo + (q - qlo) * (atHi - atLo);
   const dev = new Float64Array(count);
   for (let i = 0; i < count; i++) dev[i] = Math.abs(s[i] - med);
-  dev.sort();
-  return { loFraction: lo, hiFraction: hi, count, median: med, mad: medianOfSorted(dev, count), high };
+  return { loFraction: lo, hiFraction: hi, count, median: med, mad: medianBySelection(dev, count), high };
+}
+
+/**
+ * The k-th smallest (from 0) of a[0..n), moving it to a[k] with nothing larger before it and
+ * nothing smaller after it (Wirth's selection, median-of-three pivot). a holds finite values.
+ */
+function selectInPlace(a: Float64Array, n: number, k: number): number {
+  let l = 0;
+  let r = n - 1;
+  while (l < r) {
+    const p = a[l];
+    const q = a[(l + r) >> 1];
+    const z = a[r];
+    const x = p < q ? (q < z ? q : p < z ? z : p) : p < z ? p : q < z ? z : q;
+    let i = l;
+    let j = r;
+    do {
+      while (a[i] < x) i++;
+      while (x < a[j]) j--;
+      if (i <= j) {
+        const t = a[i];
+        a[i] = a[j];
+        a[j] = t;
+        i++;
+        j--;
+      }
+    } while (i <= j);
+    if (j < k) l = i;
+    if (k < i) r = j;
+  }
+  return a[k];
+}
+
+/** Smallest of a[from..to). */
+function minFrom(a: Float64Array, from: number, to: number): number {
+  let m = a[from];
+  for (let i = from + 1; i < to; i++) if (a[i] < m) m = a[i];
+  return m;
+}
+
+/** Largest of a[0..to). */
+function maxBefore(a: Float64Array, to: number): number {
+  let m = a[0];
+  for (let i = 1; i < to; i++) if (a[i] > m) m = a[i];
+  return m;
+}
+
+/** medianOfSorted of the sorted first n values of a, by selection (reorders a). */
+function medianBySelection(a: Float64Array, n: number): number {
+  if (n <= 0) return NaN;
+  const h = n >> 1;
+  const upper = selectInPlace(a, n, h);
+  return n % 2 === 1 ? upper : 0.5 * (maxBefore(a, h) + upper);
 }
 
 /**
