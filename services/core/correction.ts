@@ -141,6 +141,17 @@ export function steadyState(
     if (l > hi) hi = l;
     if (t < tFirst) tFirst = t;
   }
+  return steadyStateOfWindow(speedPct, atS, n, lo, hi, tFirst, options);
+}
+
+/**
+ * The steady-state test from a summary of the window's samples (as steadyState gathers it):
+ * n samples with a finite load at times in [atS − windowS, atS], their lowest and highest
+ * load, and the earliest time among them (Infinity, −Infinity, Infinity when n = 0). For
+ * callers that keep the summary as samples arrive instead of scanning the window every time.
+ */
+export function steadyStateOfWindow(speedPct: number, atS: number, n: number, lo: number, hi: number, tFirst: number, options: SteadyStateOptions = defaultSteadyStateOptions): SteadyStateResult {
+  if (!Number.isFinite(speedPct) || !Number.isFinite(atS)) return { steady: false, reason: 'missing_input', loadRatePerMin: NaN };
   const rate = n > 0 ? (hi - lo) / (options.windowS / 60) : NaN;
   if (Math.abs(speedPct - 100) > options.speedTolerancePct) return { steady: false, reason: 'speed_off_synchronous', loadRatePerMin: rate };
   if (n < 2 || atS - tFirst < options.minWindowCoverage * options.windowS) return { steady: false, reason: 'too_few_samples', loadRatePerMin: rate };

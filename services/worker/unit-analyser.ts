@@ -8,7 +8,7 @@
  */
 import { analyseRing, baselineResidualsInto, createResidualBuffers, prepareUnit, type ResidualBuffers, type UnitContext } from '../core/ring.ts';
 import type { UnitBaseline } from '../core/baseline.ts';
-import { correctedLoadFraction, defaultSteadyStateOptions, steadyState, type SteadyStateOptions } from '../core/correction.ts';
+import { correctedLoadFraction, defaultSteadyStateOptions, steadyState, steadyStateOfWindow, type SteadyStateOptions, type SteadyStateResult } from '../core/correction.ts';
 import { evaluateFindings, gradeRank, spreadLimitDegC, type ChamberDriftInput, type Finding, type Thresholds } from '../core/findings.ts';
 import { VALIDITY } from '../core/types.ts';
 import { windowValidity, type WindowVerdict } from '../core/validity.ts';
@@ -31,8 +31,8 @@ export interface AnalyserInputs {
 
 export interface RingResult {
   /**
-   * The ring's analysis row. Its arrays other than validity are the analyser's own buffers,
-   * valid until the next call of analyse: write (or copy) the row before analysing the next ring.
+   * The ring's analysis row. Its arrays are the analyser's own buffers, valid until the next
+   * call of analyse: write (or copy) the row before analysing the next ring.
    */
   row: AnalysisRow;
   /** Findings at the normal and the deadband thresholds; null when the unit is not in service (no observation). */
@@ -51,9 +51,19 @@ export class UnitAnalyser {
   private readonly steadyWindowS: number;
   private readonly windowMs: number;
   private readonly slotMs: number;
-  // Steady-state window: times (s) and corrected loads.
+  // Steady-state window: times (s) and corrected loads from stHead on (older ones are dropped
+  // in bulk), with running minimum and maximum queues of the finite loads (indices into stT /
+  // stL, from minHead / maxHead on) and their count, so a ring's test does not scan the window.
   private stT: number[] = [];
   private stL: number[] = [];
+  private stHead = 0;
+  private stFinite = 0;
+  private minQ: number[] = [];
+  private minHead = 0;
+  private maxQ: number[] = [];
+  private maxHead = 0;
+  /** A sample arrived out of time order: the window is then scanned (steadyState) as it stands. */
+  private stUnordered = false;
   // Window tests: times (ms), readings and corrected loads of the rings in service.
   private wT: number[] = [];
   private wR: Float64Array[] = [];
@@ -125,15 +135,55 @@ export class UnitAnalyser {
 
   /** Steady-state window: add (t, L), drop what is older than the window. */
   private pushLoad(tS: number, load: number): void {
-    this.stT.push(tS);
-    this.stL.push(load);
-    let k = 0;
-    const from = tS - this.steadyWindowS;
-    while (k < this.stT.length && this.stT[k] < from) k++;
-    if (k > 0) {
-      this.stT.splice(0, k);
-      this.stL.splice(0, k);
+    const T = this.stT;
+    const Lw = this.stL;
+    if (T.length > this.stHead && !(tS >= T[T.length - 1])) this.stUnordered = true;
+    const idx = T.length;
+    T.push(tS);
+    Lw.push(load);
+    if (Number.isFinite(load)) {
+      this.stFinite++;
+      const minQ = this.minQ;
+      while (minQ.length > this.minHead && Lw[minQ[minQ.length - 1]] >= load) minQ.pop();
+      minQ.push(idx);
+      const maxQ = this.maxQ;
+      while (maxQ.length > this.maxHead && Lw[maxQ[maxQ.length - 1]] <= load) maxQ.pop();
+      maxQ.push(idx);
     }
+    let k = this.stHead;
+    const from = tS - this.steadyWindowS;
+    while (k < T.length && T[k] < from) {
+      if (Number.isFinite(Lw[k])) this.stFinite--;
+      k++;
+    }
+    this.stHead = k;
+    while (this.minHead < this.minQ.length && this.minQ[this.minHead] < k) this.minHead++;
+    while (this.maxHead < this.maxQ.length && this.maxQ[this.maxHead] < k) this.maxHead++;
+    // Drop the dead front in bulk once it outweighs the live part.
+    if (k > 64 && k > T.length - k) {
+      T.splice(0, k);
+      Lw.splice(0, k);
+      this.minQ = this.minQ.slice(this.minHead).map((i) => i - k);
+      this.maxQ = this.maxQ.slice(this.maxHead).map((i) => i - k);
+      this.stHead = 0;
+      this.minHead = 0;
+      this.maxHead = 0;
+    }
+  }
+
+  /**
+   * steadyState over the window at atS (the time just pushed). With samples in time order every
+   * sample left in the window lies in [atS − windowS, atS], so the running summary is exactly what
+   * steadyState would gather; otherwise the window is scanned.
+   */
+  private steadyAt(speedPct: number, atS: number): SteadyStateResult {
+    const o = this.steadyOptions;
+    if (this.stUnordered) return steadyState(speedPct, this.stT.slice(this.stHead), this.stL.slice(this.stHead), atS, o);
+    const n = this.stFinite;
+    if (n === 0) return steadyStateOfWindow(speedPct, atS, 0, Infinity, -Infinity, Infinity, o);
+    let first = this.stHead;
+    while (!Number.isFinite(this.stL[first])) first++;
+    return steadyStateOfWindow(speedPct, atS, n, this.stL[this.minQ[this.minHead]], this.stL[this.maxQ[this.maxHead]], this.stT[first], o);
   }
 
   /**
@@ -188,18 +238,34 @@ export class UnitAnalyser {
     return speedPct >= s.findingsMinSpeedPct && load >= s.findingsMinLoad;
   }
 
-  /** Recent validity codes: add, count outliers and gaps, drop the oldest beyond recentRings. */
-  private pushCodes(codes: Uint8Array): void {
+  /** Views of the first m entries of the per-thermocouple counters and verdict codes, made once per m. */
+  private views: { m: number; verdictCodes: Uint8Array; outliers: Int32Array; missing: Int32Array } | null = null;
+  private viewsFor(m: number): { verdictCodes: Uint8Array; outliers: Int32Array; missing: Int32Array } {
+    if (this.views === null || this.views.m !== m)
+      this.views = { m, verdictCodes: this.verdictCodes.subarray(0, m), outliers: this.outliers.subarray(0, m), missing: this.missing.subarray(0, m) };
+    return this.views;
+  }
+
+  /**
+   * Recent validity codes: add (a copy of) them, count outliers and gaps, drop the oldest
+   * beyond recentRings. The copy goes into the dropped ring's array when it has the same length.
+   */
+  private pushCodes(src: Uint8Array): void {
     const cap = this.inputs.settings.recentRings;
+    let codes: Uint8Array;
     if (this.codes.length >= cap) {
       const old = this.codes[this.codesHead];
       for (let i = 0; i < Math.min(old.length, MAX_M); i++) {
         if (old[i] === VALIDITY.isolated_outlier) this.outliers[i]--;
         else if (old[i] === VALIDITY.missing) this.missing[i]--;
       }
+      if (old.length === src.length) {
+        old.set(src);
+        codes = old;
+      } else codes = src.slice();
       this.codes[this.codesHead] = codes;
       this.codesHead = (this.codesHead + 1) % cap;
-    } else this.codes.push(codes);
+    } else this.codes.push((codes = src.slice()));
     const m = Math.min(codes.length, MAX_M);
     for (let i = 0; i < m; i++) {
       if (codes[i] === VALIDITY.isolated_outlier) this.outliers[i]++;
@@ -237,13 +303,14 @@ export class UnitAnalyser {
     const speed = rings.speedPct[j];
     const readings = rings.exhaustC[j];
     this.pushLoad(tsMs / 1000, load);
-    const st = steadyState(speed, this.stT, this.stL, tsMs / 1000, this.steadyOptions);
+    const st = this.steadyAt(speed, tsMs / 1000);
     const inService = this.inService(speed, load);
     this.pushReadings(tsMs, readings, load, inService);
     if (inService) this.refreshVerdicts(ctx.m);
     // Thermocouples the window tests condemned are left out of this ring's spread and chamber map.
-    const a = analyseRing(ctx, readings, load, undefined, this.verdictM === ctx.m ? this.verdictCodes.subarray(0, ctx.m) : undefined);
-    const validity = a.validity.slice();
+    const views = this.viewsFor(ctx.m);
+    const a = analyseRing(ctx, readings, load, undefined, this.verdictM === ctx.m ? views.verdictCodes : undefined);
+    const validity = a.validity;
     this.pushCodes(validity);
 
     const b = this.inputs.baseline;
@@ -267,8 +334,8 @@ export class UnitAnalyser {
     if (inService) {
       const history = {
         previousSteadySpreadDegC: this.prevSteadySpread,
-        recentOutlierCounts: this.outliers.subarray(0, ctx.m),
-        recentMissingCounts: this.missing.subarray(0, ctx.m),
+        recentOutlierCounts: views.outliers,
+        recentMissingCounts: views.missing,
         windowVerdicts: this.verdicts,
       };
       const drift = { chambers: this.inputs.driftChambers, thermocouples: this.inputs.driftThermocouples };
