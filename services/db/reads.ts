@@ -149,24 +149,34 @@ export async function fleetRecords(q: Queryable, scope: string[] | null, nowMs: 
 }
 
 /**
- * A cheap fingerprint of everything fleetState reads except the rings and the clock: for each
- * table (open alerts, analysis progress, start state, units, configuration versions) its row
- * count and the sum of its rows' xmin. Every insert, update or delete of a row changes one of
- * them, whichever order the writing transactions committed in; equal fingerprints mean equal
- * records, apart from rings stored but not yet analysed. With the commit snapshot it was read at.
+ * A version of each unit's fleet row, of everything fleetState reads for it except its rings and
+ * the clock: the xmin of its units, analysis_progress and start_state rows, and the row count and
+ * xmin sum of its open alerts and of its configuration versions. Every insert, update or delete
+ * of one of those rows changes the version of that unit alone, whichever order the writing
+ * transactions committed in; an equal version means an equal row, apart from rings stored but not
+ * yet analysed. Read at one commit snapshot, which it returns.
  */
-export async function fleetVersion(q: Queryable): Promise<{ fingerprint: string; snapshot: string }> {
+export async function fleetUnitVersions(q: Queryable, scope: string[] | null): Promise<{ snapshot: string; versions: Map<string, string> }> {
   const { rows } = await q.query({
-    name: 'fleet_version',
-    text: `SELECT concat_ws('|',
-              (SELECT count(*) || '/' || coalesce(sum(xmin::text::bigint), 0) FROM alerts WHERE closed_at IS NULL),
-              (SELECT count(*) || '/' || coalesce(sum(xmin::text::bigint), 0) FROM analysis_progress),
-              (SELECT count(*) || '/' || coalesce(sum(xmin::text::bigint), 0) FROM start_state),
-              (SELECT count(*) || '/' || coalesce(sum(xmin::text::bigint), 0) FROM units),
-              (SELECT count(*) || '/' || coalesce(sum(xmin::text::bigint), 0) FROM unit_config_versions)) AS fingerprint,
-            pg_current_snapshot()::text AS snap`,
+    name: 'fleet_unit_versions',
+    text: `WITH u AS (SELECT id, xmin FROM units WHERE $1::text[] IS NULL OR id = ANY($1)),
+          a AS (SELECT unit_id, count(*) || ':' || sum(xmin::text::bigint) AS v FROM alerts
+                 WHERE closed_at IS NULL AND ($1::text[] IS NULL OR unit_id = ANY($1)) GROUP BY unit_id),
+          c AS (SELECT unit_id, count(*) || ':' || sum(xmin::text::bigint) AS v FROM unit_config_versions
+                 WHERE $1::text[] IS NULL OR unit_id = ANY($1) GROUP BY unit_id),
+          f AS (SELECT u.id, u.xmin || '/' || coalesce(p.xmin::text, '-') || '/' || coalesce(s.xmin::text, '-') || '/' ||
+                       coalesce(a.v, '-') || '/' || coalesce(c.v, '-') AS v
+                  FROM u
+                  LEFT JOIN analysis_progress p ON p.unit_id = u.id
+                  LEFT JOIN start_state s ON s.unit_id = u.id
+                  LEFT JOIN a ON a.unit_id = u.id
+                  LEFT JOIN c ON c.unit_id = u.id)
+     SELECT h.snap, f.id, f.v FROM (SELECT pg_current_snapshot()::text AS snap) h LEFT JOIN f ON true`,
+    values: [scope],
   });
-  return { fingerprint: rows[0].fingerprint, snapshot: rows[0].snap };
+  const versions = new Map<string, string>();
+  for (const r of rows) if (r.id !== null) versions.set(r.id as string, r.v as string);
+  return { snapshot: rows[0].snap as string, versions };
 }
 
 /**
@@ -596,7 +606,7 @@ export function createReadsRepository(pool: pg.Pool) {
   return {
     fleet: (scope: string[] | null, nowMs: number) => fleetRecords(pool, scope, nowMs),
     fleetState: (scope: string[] | null, nowMs: number) => fleetState(pool, scope, nowMs),
-    fleetVersion: () => fleetVersion(pool),
+    fleetUnitVersions: (scope: string[] | null) => fleetUnitVersions(pool, scope),
     commitSnapshot: () => commitSnapshot(pool),
     analysisNear: (unitId: string, atMs: number | null) => analysisNear(pool, unitId, atMs),
     firstAnalysisTs: (unitId: string, sinceMs: number) => firstAnalysisTs(pool, unitId, sinceMs),

@@ -17,7 +17,7 @@ import { unitStatusState, unitStatusStates } from '../../services/db/status-read
 import { statusBody } from '../../services/api/routes/status.ts';
 import { fleetBodyMaker, fleetRows } from '../../services/api/routes/fleet.ts';
 import { coalesced } from '../../services/api/routes/read-common.ts';
-import type { FleetRecord, FleetStarts } from '../../services/db/reads.ts';
+import { fleetState, fleetUnitVersions, type FleetRecord, type FleetStarts } from '../../services/db/reads.ts';
 import { seedUnit, type Seeded } from './read-fixtures.ts';
 
 let t: TestApp;
@@ -243,5 +243,41 @@ describe('coalesced', () => {
     expect(await second).toBe(2);
     expect(await third).toBe(2);
     expect(most).toBe(1);
+  });
+});
+
+describe('the fleet board after writes to a few units', () => {
+  const board = (units: Array<Record<string, unknown>>) => units.map(({ dataAgeS: _age, ...row }) => row);
+
+  it('changes the version of the units written to, and no other', async () => {
+    const before = await fleetUnitVersions(t.db.pool, null);
+    await insertAnalyses(other, 'cache-b', [
+      { tsMs: Date.now() - 30_000, loadFraction: 0.75, spreadC: 25, spreadLimitC: 40, validity: Array(18).fill(0), tcDeviationC: Array(18).fill(0), chamberDeviationC: Array(10).fill(0), swirlDeg: 70 },
+    ]);
+    await insertAlerts(other, 'cache-quiet', [{ kind: 'spread_jump', grade: 'notice', raisedAtMs: Date.now(), message: 'spread jump' }]);
+    const after = await fleetUnitVersions(t.db.pool, null);
+    expect(after.snapshot).not.toBe(before.snapshot);
+    const changed = [...after.versions.keys()].filter((id) => after.versions.get(id) !== before.versions.get(id)).sort();
+    expect(changed).toEqual(['cache-b', 'cache-quiet']);
+    expect((await fleetUnitVersions(t.db.pool, ['cache-b'])).versions.get('cache-b')).toBe(after.versions.get('cache-b'));
+  });
+
+  it('reads as a board read whole from the database, after analysis, alerts, a configuration change and a new unit', async () => {
+    await get('/v1/fleet');
+    await insertAnalyses(other, 'cache-many', [
+      { tsMs: Date.now() - 20_000, loadFraction: 0.9, spreadC: 38, spreadLimitC: 40, validity: [2, ...Array(17).fill(0)], tcDeviationC: Array(18).fill(0), chamberDeviationC: Array(10).fill(0), swirlDeg: 70 },
+    ]);
+    const [id] = await insertAlerts(other, 'cache-b', [{ kind: 'chamber_cold', grade: 'alarm', chamber: 3, raisedAtMs: Date.now(), message: 'chamber 3 cold' }]);
+    expect((await post(`/v1/alerts/${id}/ack`, { by: 'A. Operator' })).statusCode).toBe(200);
+    expect((await t.app.inject({ method: 'PATCH', url: '/v1/units/cache-a', headers: bearer(t.keys.admin), payload: { temperatureUnit: 'F' } })).statusCode).toBe(200);
+    expect((await t.app.inject({ method: 'POST', url: '/v1/units', headers: bearer(t.keys.admin), payload: unitBody('cache-new') })).statusCode).toBe(201);
+
+    const served = (await get('/v1/fleet')).json();
+    const st = await fleetState(t.db.pool, null, Date.now());
+    const whole = fleetRows(st.records, Date.parse(served.asOf), t.config.alerts.unitSilentS, st.starts);
+    expect(board(served.units)).toEqual(board(whole as unknown as Array<Record<string, unknown>>));
+    expect(served.units.find((u: { unitId: string }) => u.unitId === 'cache-new')).toMatchObject({ freshness: 'no_data', lastRingTs: null });
+    expect(served.units.find((u: { unitId: string }) => u.unitId === 'cache-a')).toMatchObject({ temperatureUnit: 'F' });
+    expect(served.units.find((u: { unitId: string }) => u.unitId === 'cache-many')).toMatchObject({ spreadC: 38, coverage: { valid: 17, total: 18 } });
   });
 });

@@ -85,6 +85,12 @@ export function fleetRows(records: FleetRecord[], nowMs: number, silentS: number
 const CLOCK_FIELDS = ',"dataAgeS":0,"freshness":"live"';
 
 /**
+ * Each record's JSON pieces, kept while the record object lives: a board refreshed for a few
+ * changed units serializes those units' rows only. Records are never changed in place.
+ */
+const piecesOf = new WeakMap<FleetRecord, { starts: FleetStarts | undefined; head: string; tail: string }>();
+
+/**
  * The reply body of one set of fleet records at any instant, as the bytes of
  * JSON.stringify({ asOf, units: fleetRows(records, atMs, silentS, starts) }). Each row's JSON is
  * made once, in two pieces around the fields that follow the clock (dataAgeS, freshness), and
@@ -93,10 +99,15 @@ const CLOCK_FIELDS = ',"dataAgeS":0,"freshness":"live"';
  */
 export function fleetBodyMaker(records: FleetRecord[], silentS: number, starts: ReadonlyMap<string, FleetStarts> = new Map()): (atMs: number) => Buffer {
   const pieces = records.map((r) => {
-    const json = JSON.stringify(fleetRow(r, starts.get(r.unitId), { freshness: 'live', ageS: 0 }));
+    const c = starts.get(r.unitId);
+    const known = piecesOf.get(r);
+    if (known && known.starts === c) return known;
+    const json = JSON.stringify(fleetRow(r, c, { freshness: 'live', ageS: 0 }));
     // Keys and quotes inside string values are escaped, so the marker occurs once, where the fields are.
     const at = json.indexOf(CLOCK_FIELDS);
-    return { head: json.slice(0, at) + ',"dataAgeS":', tail: json.slice(at + CLOCK_FIELDS.length) };
+    const made = { starts: c, head: json.slice(0, at) + ',"dataAgeS":', tail: json.slice(at + CLOCK_FIELDS.length) };
+    piecesOf.set(r, made);
+    return made;
   });
   let order: number[] | null = null;
   let silentBefore: boolean[] = [];
@@ -120,10 +131,14 @@ export function fleetBodyMaker(records: FleetRecord[], silentS: number, starts: 
 }
 
 /**
- * After a write elsewhere in the database, fleet records whose fingerprint (fleetVersion) is
- * unchanged are reused for at most this long since they were read.
+ * After a write, the rows of units whose version (fleetUnitVersions) is unchanged are reused, and
+ * only the changed units are read again, for at most this long since every row was last read
+ * (the latest stored ring of a unit changes no version).
  */
 export const FLEET_CACHE_MS = 5_000;
+
+/** More changed units than this share of the fleet (or 50, if more) and every row is read again. */
+const PARTIAL_READ_SHARE = 0.25;
 
 /** What GET /v1/fleet promises about how fresh its rows are (also in README, "The API"). */
 export const FLEET_FRESHNESS =
@@ -143,16 +158,21 @@ export async function fleetRoutes(base: FastifyInstance): Promise<void> {
   const silentS = app.appConfig.alerts.unitSilentS;
   // A wall screen or fifty dashboards polling the board. Each request reads the database's
   // commit snapshot (one trivial query, shared by the requests that arrive while one is under
-  // way): while it equals the snapshot the records were read at, nothing has been written since
-  // and the records are exact. Otherwise one refresh per scope (shared the same way) compares
-  // the fleet's fingerprint: unchanged, the records are kept, from then on for at most
-  // FLEET_CACHE_MS since they were read; changed, they are read again. A shelf running out or a
-  // configuration version taking effect ends the records' validity at that instant. Within one
-  // second every caller gets the same body, with freshness from the clock of that second.
+  // way): while it equals the snapshot the entry holds, nothing has been written since and the
+  // records are exact. Otherwise one refresh per scope (shared the same way) reads each unit's
+  // version: the units whose version changed are read again and their rows replace the old ones
+  // (a worker committing a batch, or an operator acknowledging an alert, costs a read of that
+  // unit); the rest are kept, for at most FLEET_CACHE_MS since every row was read, when all are
+  // read again (with the latest stored rings). A shelf running out or a configuration version
+  // taking effect ends the records' validity at that instant. The versions are read before the
+  // rows, so a row is never older than the version kept for it: a unit that changes in between
+  // is read again next time, never missed. Within one second every caller gets the same body,
+  // with freshness from the clock of that second.
   interface Entry {
+    /** The commit snapshot of `versions`; every record is at least as new. */
     snapshot: string;
-    fingerprint: string;
-    readAtMs: number;
+    versions: Map<string, string>;
+    fullReadAtMs: number;
     validUntilMs: number;
     records: FleetRecord[];
     starts: Map<string, FleetStarts>;
@@ -166,6 +186,52 @@ export async function fleetRoutes(base: FastifyInstance): Promise<void> {
   const cache = new Map<string, Entry>();
   const refreshers = new Map<string, () => Promise<Entry>>();
 
+  const entry = (e: Pick<Entry, 'snapshot' | 'versions' | 'fullReadAtMs' | 'validUntilMs' | 'records' | 'starts'>): Entry =>
+    ({ ...e, make: null, second: -1, body: null, gzipped: null, gzippedSecond: -1 });
+
+  async function fullRead(scope: string[] | null, now: number): Promise<Entry> {
+    const v = await reads.fleetUnitVersions(scope);
+    const st = await reads.fleetState(scope, now);
+    return entry({ snapshot: v.snapshot, versions: v.versions, fullReadAtMs: now, validUntilMs: st.changesAtMs ?? Infinity, records: st.records, starts: st.starts });
+  }
+
+  async function refresh(old: Entry | undefined, scope: string[] | null): Promise<Entry> {
+    const now = Date.now();
+    if (!old || now >= old.validUntilMs || now - old.fullReadAtMs >= FLEET_CACHE_MS) return fullRead(scope, now);
+    const v = await reads.fleetUnitVersions(scope);
+    const changed: string[] = [];
+    for (const [id, version] of v.versions) if (old.versions.get(id) !== version) changed.push(id);
+    const gone = old.records.filter((r) => !v.versions.has(r.unitId)).map((r) => r.unitId);
+    const keptUntil = Math.min(old.validUntilMs, old.fullReadAtMs + FLEET_CACHE_MS);
+    if (changed.length === 0 && gone.length === 0) {
+      // Nothing the rows show has changed: the same records, now known exact at this snapshot.
+      old.snapshot = v.snapshot;
+      old.validUntilMs = keptUntil;
+      return old;
+    }
+    if (changed.length > Math.max(50, PARTIAL_READ_SHARE * v.versions.size)) return fullRead(scope, now);
+    const part = changed.length > 0 ? await reads.fleetState(changed, now) : null;
+    const records = new Map(old.records.map((r) => [r.unitId, r]));
+    const starts = new Map(old.starts);
+    for (const id of [...gone, ...changed]) {
+      records.delete(id);
+      starts.delete(id);
+    }
+    for (const r of part?.records ?? []) {
+      records.set(r.unitId, r);
+      const c = part!.starts.get(r.unitId);
+      if (c) starts.set(r.unitId, c);
+    }
+    return entry({
+      snapshot: v.snapshot,
+      versions: v.versions,
+      fullReadAtMs: old.fullReadAtMs,
+      validUntilMs: Math.min(keptUntil, part?.changesAtMs ?? Infinity),
+      records: [...records.values()],
+      starts,
+    });
+  }
+
   function refresher(key: string, scope: string[] | null): () => Promise<Entry> {
     let r = refreshers.get(key);
     if (r) return r;
@@ -174,29 +240,7 @@ export async function fleetRoutes(base: FastifyInstance): Promise<void> {
       cache.clear();
     }
     r = coalesced(async () => {
-      const now = Date.now();
-      const old = cache.get(key);
-      const v = await reads.fleetVersion();
-      if (old && old.fingerprint === v.fingerprint && now < old.validUntilMs && now - old.readAtMs < FLEET_CACHE_MS) {
-        // Kept on the fingerprint's word: from now on no longer than FLEET_CACHE_MS since read.
-        old.snapshot = v.snapshot;
-        old.validUntilMs = Math.min(old.validUntilMs, old.readAtMs + FLEET_CACHE_MS);
-        return old;
-      }
-      const st = await reads.fleetState(scope, now);
-      const e: Entry = {
-        snapshot: st.snapshot,
-        fingerprint: v.fingerprint,
-        readAtMs: now,
-        validUntilMs: st.changesAtMs ?? Infinity,
-        records: st.records,
-        starts: st.starts,
-        make: null,
-        second: -1,
-        body: null,
-        gzipped: null,
-        gzippedSecond: -1,
-      };
+      const e = await refresh(cache.get(key), scope);
       cache.set(key, e);
       return e;
     });
