@@ -175,6 +175,32 @@ export function baselineAt(b: BinnedBaseline, loadFraction: number): BaselineVal
   };
 }
 
+/**
+ * The median and scale of baselineAt(b, loadFraction) written into `out`, without building the
+ * value; false (out untouched) where baselineAt gives null.
+ */
+export function baselineMedianScaleInto(b: BinnedBaseline, loadFraction: number, out: { median: number; scale: number }): boolean {
+  if (!Number.isFinite(loadFraction)) return false;
+  const w = b.binWidth;
+  const i = Math.floor((loadFraction - b.loadMin) / w);
+  if (i < 0 || i >= b.bins.length) return false;
+  const bin = b.bins[i];
+  if (bin.median === null) return false;
+  const centre = b.loadMin + (i + 0.5) * w;
+  const j = loadFraction >= centre ? i + 1 : i - 1;
+  const other = j >= 0 && j < b.bins.length ? b.bins[j] : null;
+  const ownScale = MAD_TO_SIGMA * (bin.mad as number);
+  if (!other || other.median === null) {
+    out.median = bin.median;
+    out.scale = ownScale;
+    return true;
+  }
+  const t = Math.abs(loadFraction - centre) / w;
+  out.median = bin.median + t * (other.median - bin.median);
+  out.scale = ownScale + t * (MAD_TO_SIGMA * (other.mad as number) - ownScale);
+  return true;
+}
+
 /** baselineAt(b, loadFraction)?.median without building the value: NaN where baselineAt gives null. */
 export function baselineMedianAt(b: BinnedBaseline, loadFraction: number): number {
   if (!Number.isFinite(loadFraction)) return NaN;

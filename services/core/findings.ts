@@ -5,7 +5,7 @@
  * version used and a plain next step. Every limit is in `Thresholds`; nothing is hidden in the
  * code. Stateless: on-delay, deadband and the life of an alert belong to the worker.
  */
-import { baselineAt, type UnitBaseline } from './baseline.ts';
+import { baselineAt, baselineMedianScaleInto, type UnitBaseline } from './baseline.ts';
 import { attributeChamber, type ChamberAttribution } from './chambers.ts';
 import type { CusumState, DriftRate } from './drift.ts';
 import { medianOfSorted, sortPrefixInPlace } from './stats.ts';
@@ -477,7 +477,7 @@ function chamberFindings(input: FindingInput, t: Thresholds, version: number | n
   const mapped = input.baseline ? input.residuals?.chamberDegC ?? null : null;
   for (let k = 0; k < n; k++) {
     const dev = a.chamberDeviationDegC[k];
-    const b = input.baseline && input.baseline.chambers[k] ? baselineAt(input.baseline.chambers[k], a.loadFraction) : null;
+    const b = input.baseline && input.baseline.chambers[k] && baselineMedianScaleInto(input.baseline.chambers[k], a.loadFraction, chamberBaseline) ? chamberBaseline : null;
     if (b) usedBaseline = true;
     resid[k] = mapped ? (Number.isFinite(dev) ? mapped[k] : NaN) : b ? dev - b.median : dev;
     scale[k] = b ? b.scale : 0;
@@ -539,6 +539,8 @@ function chamberFindings(input: FindingInput, t: Thresholds, version: number | n
  * service): four per chamber count, none of them part of what a finding keeps.
  */
 const chamberScratchByN = new Map<number, Float64Array[]>();
+/** One chamber's baseline median and scale at the ring's load, read before the next chamber's. */
+const chamberBaseline = { median: NaN, scale: NaN };
 function chamberScratch(which: number, n: number): Float64Array {
   let set = chamberScratchByN.get(n);
   if (!set) chamberScratchByN.set(n, (set = [new Float64Array(n), new Float64Array(n), new Float64Array(n), new Float64Array(n)]));
