@@ -14,7 +14,8 @@
  * The last line printed is one JSON object.
  *
  *   npm run bench:worker     BENCH_DAYS (default 30), BENCH_UNITS (default 200), BENCH_SECONDS (default 60),
- *                            BENCH_ONLY (backfill | latency), BENCH_WORKER_NODE_ARGS (node options of the worker process)
+ *                            BENCH_ONLY (backfill | latency), BENCH_WORKER_NODE_ARGS (node options of the worker process),
+ *                            BENCH_BATCH (rings per transaction; default the product's), BENCH_CONCURRENCY
  */
 import os from 'node:os';
 import { readFileSync } from 'node:fs';
@@ -172,7 +173,12 @@ async function backfill(adminUrl: string): Promise<{ backfillRingsPerS: number; 
     coreBest = Math.max(coreBest, n / ((performance.now() - t0) / 1000));
   }
 
-  const config = loadConfig({ LOG_LEVEL: process.env.BENCH_LOG_LEVEL ?? 'warn', CANSIGHT_WORKER_BATCH_RINGS: process.env.BENCH_BATCH ?? '5000', CANSIGHT_WORKER_CONCURRENCY: String(Math.max(2, os.cpus().length)) });
+  // The product's defaults, unless BENCH_BATCH / BENCH_CONCURRENCY say otherwise.
+  const config = loadConfig({
+    LOG_LEVEL: process.env.BENCH_LOG_LEVEL ?? 'warn',
+    ...(process.env.BENCH_BATCH ? { CANSIGHT_WORKER_BATCH_RINGS: process.env.BENCH_BATCH } : {}),
+    CANSIGHT_WORKER_CONCURRENCY: process.env.BENCH_CONCURRENCY ?? String(Math.max(2, os.cpus().length)),
+  });
   const logger = createLogger(config.logLevel);
   const t0 = performance.now();
   const cpu0 = process.cpuUsage();

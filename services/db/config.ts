@@ -258,7 +258,7 @@ function workerConfig(env: Env): WorkerConfig {
   if (id !== undefined && !/^[A-Za-z0-9._:-]{1,100}$/.test(id)) throw new ConfigError('CANSIGHT_WORKER_ID', `"${id}" may hold only letters, digits and . _ : - (at most 100)`);
   return {
     id,
-    batchRings: integer(env, 'CANSIGHT_WORKER_BATCH_RINGS', 5_000, 1, 1_000_000),
+    batchRings: integer(env, 'CANSIGHT_WORKER_BATCH_RINGS', 50_000, 1, 1_000_000),
     concurrency: integer(env, 'CANSIGHT_WORKER_CONCURRENCY', 2, 1, 64),
     leaseS,
     claimEveryS,
