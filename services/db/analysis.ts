@@ -6,7 +6,7 @@
  * and written whole (the caller merges). No analytics here.
  */
 import type pg from 'pg';
-import { CopyBinaryReader, CopyBinaryWriter, copyIn, copyOut, isoMicros, grownBuffer, writeFloat4ArrayField } from './pg-binary.ts';
+import { CopyBinaryReader, CopyBinaryWriter, copyIn, copyOut, isoMicros, grownBuffer, writeFloat4ArrayField, type Float64Arena } from './pg-binary.ts';
 
 type Queryable = pg.Pool | pg.ClientBase;
 
@@ -19,6 +19,10 @@ export interface RingColumns {
   ambientKPa: Float64Array;
   speedPct: Float64Array;
   exhaustC: Float64Array[];
+  /** Fuel flow, kg/s (NaN where not sent); read with the rings so start analysis needs no second read. */
+  fuelFlowKgS?: Float64Array;
+  /** Flame detected: 1 yes, 0 no, -1 not sent. */
+  flameDetected?: Int8Array;
 }
 
 /** One analysed ring as stored. Arrays: index 0 = thermocouple / chamber 1; NaN = NULL. */
@@ -102,35 +106,54 @@ export async function ensureAnalysisPartitions(client: pg.ClientBase, pool: obje
   }
 }
 
+/** Ring rows being decoded from a binary COPY, column by column. */
+class RingColumnsBuilder {
+  private ts: number[] = [];
+  private load: number[] = [];
+  private amb: number[] = [];
+  private kpa: number[] = [];
+  private speed: number[] = [];
+  private ex: Float64Array[] = [];
+  private fuel: number[] = [];
+  private flame: number[] = [];
+
+  /** Reads the RING_READ_COLUMNS of the reader's current row. */
+  add(r: CopyBinaryReader, arena: Float64Arena): void {
+    this.ts.push(r.timestamptz());
+    this.load.push(r.float4());
+    this.amb.push(r.float4());
+    this.kpa.push(r.float4());
+    this.speed.push(r.float4());
+    this.ex.push(r.numberArray(arena) ?? new Float64Array(0));
+    this.fuel.push(r.float4());
+    const f = r.bool();
+    this.flame.push(f === null ? -1 : f ? 1 : 0);
+  }
+
+  columns(): RingColumns {
+    return {
+      count: this.ts.length,
+      tsMs: Float64Array.from(this.ts),
+      loadMw: Float64Array.from(this.load),
+      ambientC: Float64Array.from(this.amb),
+      ambientKPa: Float64Array.from(this.kpa),
+      speedPct: Float64Array.from(this.speed),
+      exhaustC: this.ex,
+      fuelFlowKgS: Float64Array.from(this.fuel),
+      flameDetected: Int8Array.from(this.flame),
+    };
+  }
+}
+
 function decodeRings(buf: Buffer): RingColumns {
   const r = new CopyBinaryReader(buf);
   const arena = r.arena();
-  const ts: number[] = [];
-  const load: number[] = [];
-  const amb: number[] = [];
-  const kpa: number[] = [];
-  const speed: number[] = [];
-  const ex: Float64Array[] = [];
-  while (r.nextRow() > 0) {
-    ts.push(r.timestamptz());
-    load.push(r.float4());
-    amb.push(r.float4());
-    kpa.push(r.float4());
-    speed.push(r.float4());
-    ex.push(r.numberArray(arena) ?? new Float64Array(0));
-  }
-  return {
-    count: ts.length,
-    tsMs: Float64Array.from(ts),
-    loadMw: Float64Array.from(load),
-    ambientC: Float64Array.from(amb),
-    ambientKPa: Float64Array.from(kpa),
-    speedPct: Float64Array.from(speed),
-    exhaustC: ex,
-  };
+  const b = new RingColumnsBuilder();
+  while (r.nextRow() > 0) b.add(r, arena);
+  return b.columns();
 }
 
-const RING_READ_COLUMNS = 'ts, load_mw, ambient_c, ambient_kpa, speed_pct, exhaust_c';
+const RING_READ_COLUMNS = 'ts, load_mw, ambient_c, ambient_kpa, speed_pct, exhaust_c, fuel_flow_kg_s, flame_detected';
 
 /** Rings of a unit with ts > afterMs (all when null), oldest first, at most limit. */
 export async function readRingsAfter(client: pg.ClientBase, unitId: string, afterMs: number | null, limit: number): Promise<RingColumns> {
@@ -150,40 +173,25 @@ export async function readRingsAfterMany(client: pg.ClientBase, entries: { unitI
   const wms = entries.map((e) => (e.afterMs === null ? "'-infinity'" : `'${isoMicros(e.afterMs)}'`)).join(',');
   const body = await copyOut(
     client,
-    `SELECT u.unit_id, x.ts, x.load_mw, x.ambient_c, x.ambient_kpa, x.speed_pct, x.exhaust_c
+    `SELECT u.unit_id, x.*
        FROM unnest(ARRAY[${ids}]::text[], ARRAY[${wms}]::timestamptz[]) AS u(unit_id, wm)
        CROSS JOIN LATERAL (SELECT ${RING_READ_COLUMNS} FROM rings r WHERE r.unit_id = u.unit_id AND r.ts > u.wm ORDER BY r.ts LIMIT ${Math.max(0, Math.floor(perUnitLimit))}) x
       ORDER BY u.unit_id, x.ts`,
   );
   const r = new CopyBinaryReader(body);
   const arena = r.arena();
-  let cur: { id: string; ts: number[]; load: number[]; amb: number[]; kpa: number[]; speed: number[]; ex: Float64Array[] } | null = null;
-  const flush = () => {
-    if (!cur) return;
-    out.set(cur.id, {
-      count: cur.ts.length,
-      tsMs: Float64Array.from(cur.ts),
-      loadMw: Float64Array.from(cur.load),
-      ambientC: Float64Array.from(cur.amb),
-      ambientKPa: Float64Array.from(cur.kpa),
-      speedPct: Float64Array.from(cur.speed),
-      exhaustC: cur.ex,
-    });
-  };
+  let id: string | null = null;
+  let b: RingColumnsBuilder | null = null;
   while (r.nextRow() > 0) {
-    const id = r.text() as string;
-    if (!cur || cur.id !== id) {
-      flush();
-      cur = { id, ts: [], load: [], amb: [], kpa: [], speed: [], ex: [] };
+    const next = r.text() as string;
+    if (b === null || next !== id) {
+      if (b !== null) out.set(id as string, b.columns());
+      id = next;
+      b = new RingColumnsBuilder();
     }
-    cur.ts.push(r.timestamptz());
-    cur.load.push(r.float4());
-    cur.amb.push(r.float4());
-    cur.kpa.push(r.float4());
-    cur.speed.push(r.float4());
-    cur.ex.push(r.numberArray(arena) ?? new Float64Array(0));
+    b.add(r, arena);
   }
-  flush();
+  if (b !== null) out.set(id as string, b.columns());
   return out;
 }
 

@@ -386,13 +386,25 @@ async function recordStarts(
     if (row) state.counters = row.state.counters;
     row = { configVersion: version.version, lastMs: row?.lastMs ?? null, state, open: row?.open ?? [] };
   }
-  const extra = await readFuelAndFlame(client, unitId, first, last);
+  // Fuel and flame come with the rings when they were read for analysis; otherwise they are read here.
+  const fuel = rings.fuelFlowKgS;
+  const flame = rings.flameDetected;
+  const extra = fuel && flame ? null : await readFuelAndFlame(client, unitId, first, last);
   const input: StartRing[] = [];
   for (let j = 0; j < rings.count; j++) {
     const t = rings.tsMs[j];
     if (row.lastMs !== null && t <= row.lastMs) continue;
-    const x = extra.get(Math.round(t));
-    input.push({ tMs: t, speedPct: rings.speedPct[j], loadMw: rings.loadMw[j], ambientC: rings.ambientC[j], fuelFlowKgS: x?.fuel ?? null, flameDetected: x?.flame ?? null, exhaustC: rings.exhaustC[j] });
+    let fuelFlowKgS: number | null;
+    let flameDetected: boolean | null;
+    if (extra === null) {
+      fuelFlowKgS = Number.isNaN(fuel![j]) ? null : fuel![j];
+      flameDetected = flame![j] < 0 ? null : flame![j] === 1;
+    } else {
+      const x = extra.get(Math.round(t));
+      fuelFlowKgS = x?.fuel ?? null;
+      flameDetected = x?.flame ?? null;
+    }
+    input.push({ tMs: t, speedPct: rings.speedPct[j], loadMw: rings.loadMw[j], ambientC: rings.ambientC[j], fuelFlowKgS, flameDetected, exhaustC: rings.exhaustC[j] });
   }
   const events = feedStartDetector(analyser, row.state, input);
   const completed = applyStartEvents([], events.filter((e) => e.type === 'start'));
