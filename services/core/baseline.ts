@@ -149,26 +149,42 @@ function medianBySelection(a: Float64Array, n: number): number {
   return n % 2 === 1 ? upper : 0.5 * (maxBefore(a, h) + upper);
 }
 
+/** Where a load falls among the bins (see locate); one per module, filled by each call. */
+const LOC: { bin: BaselineBin; other: BaselineBin | null; t: number } = { bin: null as unknown as BaselineBin, other: null, t: 0 };
+
+/**
+ * Finds L's bin and, when it is fitted too, the neighbouring bin on L's side of the centre, with
+ * the interpolation weight t (0 at the centre, 1 at the neighbour's); false when L is outside the
+ * bins or its bin is thin.
+ */
+function locate(b: BinnedBaseline, loadFraction: number): boolean {
+  if (!Number.isFinite(loadFraction)) return false;
+  const w = b.binWidth;
+  const i = Math.floor((loadFraction - b.loadMin) / w);
+  if (i < 0 || i >= b.bins.length) return false;
+  const bin = b.bins[i];
+  if (bin.median === null) return false;
+  const centre = b.loadMin + (i + 0.5) * w;
+  const j = loadFraction >= centre ? i + 1 : i - 1;
+  const other = j >= 0 && j < b.bins.length ? b.bins[j] : null;
+  LOC.bin = bin;
+  LOC.other = other && other.median !== null ? other : null;
+  LOC.t = Math.abs(loadFraction - centre) / w;
+  return true;
+}
+
 /**
  * The baseline at load L: find L's bin; null if outside the bins or thin. Interpolate linearly
  * towards the neighbouring bin centre on L's side when that bin is fitted too; otherwise the
  * bin's own values. scale = 1.4826·MAD.
  */
 export function baselineAt(b: BinnedBaseline, loadFraction: number): BaselineValue | null {
-  if (!Number.isFinite(loadFraction)) return null;
-  const w = b.binWidth;
-  const i = Math.floor((loadFraction - b.loadMin) / w);
-  if (i < 0 || i >= b.bins.length) return null;
-  const bin = b.bins[i];
-  if (bin.median === null) return null;
-  const centre = b.loadMin + (i + 0.5) * w;
-  const j = loadFraction >= centre ? i + 1 : i - 1;
-  const other = j >= 0 && j < b.bins.length ? b.bins[j] : null;
-  const own = { median: bin.median, scale: MAD_TO_SIGMA * (bin.mad as number), high: bin.high as number, count: bin.count };
-  if (!other || other.median === null) return own;
-  const t = Math.abs(loadFraction - centre) / w;
+  if (!locate(b, loadFraction)) return null;
+  const { bin, other, t } = LOC;
+  const own = { median: bin.median as number, scale: MAD_TO_SIGMA * (bin.mad as number), high: bin.high as number, count: bin.count };
+  if (!other) return own;
   return {
-    median: own.median + t * (other.median - own.median),
+    median: own.median + t * ((other.median as number) - own.median),
     scale: own.scale + t * (MAD_TO_SIGMA * (other.mad as number) - own.scale),
     high: own.high + t * ((other.high as number) - own.high),
     count: Math.min(bin.count, other.count),
@@ -180,41 +196,21 @@ export function baselineAt(b: BinnedBaseline, loadFraction: number): BaselineVal
  * value; false (out untouched) where baselineAt gives null.
  */
 export function baselineMedianScaleInto(b: BinnedBaseline, loadFraction: number, out: { median: number; scale: number }): boolean {
-  if (!Number.isFinite(loadFraction)) return false;
-  const w = b.binWidth;
-  const i = Math.floor((loadFraction - b.loadMin) / w);
-  if (i < 0 || i >= b.bins.length) return false;
-  const bin = b.bins[i];
-  if (bin.median === null) return false;
-  const centre = b.loadMin + (i + 0.5) * w;
-  const j = loadFraction >= centre ? i + 1 : i - 1;
-  const other = j >= 0 && j < b.bins.length ? b.bins[j] : null;
-  const ownScale = MAD_TO_SIGMA * (bin.mad as number);
-  if (!other || other.median === null) {
-    out.median = bin.median;
-    out.scale = ownScale;
-    return true;
-  }
-  const t = Math.abs(loadFraction - centre) / w;
-  out.median = bin.median + t * (other.median - bin.median);
-  out.scale = ownScale + t * (MAD_TO_SIGMA * (other.mad as number) - ownScale);
+  if (!locate(b, loadFraction)) return false;
+  const { bin, other, t } = LOC;
+  const median = bin.median as number;
+  const scale = MAD_TO_SIGMA * (bin.mad as number);
+  out.median = other ? median + t * ((other.median as number) - median) : median;
+  out.scale = other ? scale + t * (MAD_TO_SIGMA * (other.mad as number) - scale) : scale;
   return true;
 }
 
 /** baselineAt(b, loadFraction)?.median without building the value: NaN where baselineAt gives null. */
 export function baselineMedianAt(b: BinnedBaseline, loadFraction: number): number {
-  if (!Number.isFinite(loadFraction)) return NaN;
-  const w = b.binWidth;
-  const i = Math.floor((loadFraction - b.loadMin) / w);
-  if (i < 0 || i >= b.bins.length) return NaN;
-  const bin = b.bins[i];
-  if (bin.median === null) return NaN;
-  const centre = b.loadMin + (i + 0.5) * w;
-  const j = loadFraction >= centre ? i + 1 : i - 1;
-  const other = j >= 0 && j < b.bins.length ? b.bins[j] : null;
-  if (!other || other.median === null) return bin.median;
-  const t = Math.abs(loadFraction - centre) / w;
-  return bin.median + t * (other.median - bin.median);
+  if (!locate(b, loadFraction)) return NaN;
+  const { bin, other, t } = LOC;
+  const median = bin.median as number;
+  return other ? median + t * ((other.median as number) - median) : median;
 }
 
 /** One ring's contribution to a unit baseline. Arrays: index 0 = thermocouple / chamber 1. */
