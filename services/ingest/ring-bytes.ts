@@ -113,6 +113,18 @@ function skipSpace(b: Uint8Array, p: number, end: number): number {
   return p;
 }
 
+/**
+ * After a member's value in an object: past the `,` and the space after it (the next member's
+ * key), or past the closing `}`; -1 for anything else. The caller tells the two by b[p - 1].
+ */
+function afterMember(b: Uint8Array, p: number, end: number): number {
+  p = skipSpace(b, p, end);
+  if (p >= end) return -1;
+  if (b[p] === RBRACE) return p + 1;
+  if (b[p] !== COMMA) return -1;
+  return skipSpace(b, p + 1, end);
+}
+
 /** End of the literal `word` at p, or -1. */
 function literal(b: Uint8Array, p: number, end: number, word: string): number {
   if (p + word.length > end) return -1;
@@ -221,11 +233,8 @@ function objectEnd(b: Uint8Array, p: number, end: number): number {
       p = scalarEnd(b, p, end);
       if (p < 0) return -1;
     }
-    p = skipSpace(b, p, end);
-    if (p >= end) return -1;
-    if (b[p] === RBRACE) return p + 1;
-    if (b[p] !== COMMA) return -1;
-    p = skipSpace(b, p + 1, end);
+    p = afterMember(b, p, end);
+    if (p < 0 || b[p - 1] === RBRACE) return p;
   }
 }
 
@@ -584,11 +593,8 @@ export class RingBytesReader {
           return -1;
       }
       if (p < 0) return -1;
-      p = skipSpace(b, p, end);
-      if (p >= end) return -1;
-      if (b[p] === RBRACE) return p + 1;
-      if (b[p] !== COMMA) return -1;
-      p = skipSpace(b, p + 1, end);
+      p = afterMember(b, p, end);
+      if (p < 0 || b[p - 1] === RBRACE) return p;
     }
   }
 
