@@ -143,11 +143,6 @@ export async function fleetState(q: Queryable, scope: string[] | null, nowMs: nu
   return { records, starts, snapshot: rows[0].snap, changesAtMs };
 }
 
-/** The fleet records alone (see fleetState). */
-export async function fleetRecords(q: Queryable, scope: string[] | null, nowMs: number): Promise<FleetRecord[]> {
-  return (await fleetState(q, scope, nowMs)).records;
-}
-
 /**
  * A version of each unit's fleet row, of everything fleetState reads for it except its rings and
  * the clock: the xmin of its units, analysis_progress and start_state rows, and the row count and
@@ -443,23 +438,6 @@ export async function driftStates(q: Queryable, unitId: string, subject: 'chambe
   }));
 }
 
-/** Daily robust residual aggregates of one chamber or thermocouple over [fromMs, toMs). */
-export async function driftDaily(q: Queryable, unitId: string, subject: 'chamber' | 'thermocouple', index: number, fromMs: number, toMs: number): Promise<Array<{ day: string; n: number; medianC: number; madC: number; meanC: number; baselineVersion: number }>> {
-  const { rows } = await q.query(
-    `SELECT day, n, median, mad, mean, baseline_version FROM drift_daily
-      WHERE unit_id = $1 AND subject = $2 AND idx = $3 AND day >= $4::timestamptz::date AND day < $5::timestamptz::date ORDER BY day LIMIT 4000`,
-    [unitId, subject, index, new Date(fromMs), new Date(toMs)],
-  );
-  return rows.map((r) => ({
-    day: r.day instanceof Date ? r.day.toISOString().slice(0, 10) : String(r.day),
-    n: Number(r.n),
-    medianC: Number(r.median),
-    madC: Number(r.mad),
-    meanC: Number(r.mean),
-    baselineVersion: Number(r.baseline_version),
-  }));
-}
-
 // ---------------------------------------------------------------------------------------------
 // Validity history.
 
@@ -604,10 +582,8 @@ export type ReadsRepository = ReturnType<typeof createReadsRepository>;
 /** The repository object decorated onto the application (same functions, pool bound). */
 export function createReadsRepository(pool: pg.Pool) {
   return {
-    fleet: (scope: string[] | null, nowMs: number) => fleetRecords(pool, scope, nowMs),
     fleetState: (scope: string[] | null, nowMs: number) => fleetState(pool, scope, nowMs),
     fleetUnitVersions: (scope: string[] | null) => fleetUnitVersions(pool, scope),
-    commitSnapshot: () => commitSnapshot(pool),
     analysisNear: (unitId: string, atMs: number | null) => analysisNear(pool, unitId, atMs),
     firstAnalysisTs: (unitId: string, sinceMs: number) => firstAnalysisTs(pool, unitId, sinceMs),
     ringReadings: (unitId: string, tsIso: string) => ringReadings(pool, unitId, tsIso),
@@ -616,7 +592,6 @@ export function createReadsRepository(pool: pg.Pool) {
       rollupSeries(pool, unitId, period, fromMs, toMs, metrics, subject, limit),
     latestBaseline: (unitId: string) => latestBaseline(pool, unitId),
     driftStates: (unitId: string, subject: 'chamber' | 'thermocouple') => driftStates(pool, unitId, subject),
-    driftDaily: (unitId: string, subject: 'chamber' | 'thermocouple', index: number, fromMs: number, toMs: number) => driftDaily(pool, unitId, subject, index, fromMs, toMs),
     validityTally: (unitId: string, fromMs: number, toMs: number) => validityTally(pool, unitId, fromMs, toMs),
     unitAlerts: (unitId: string, fromMs: number, toMs: number, limit?: number) => unitAlerts(pool, unitId, fromMs, toMs, limit),
     fitQuality: (unitId: string, fromMs: number, toMs: number) => fitQuality(pool, unitId, fromMs, toMs),
