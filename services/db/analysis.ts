@@ -19,10 +19,10 @@ export interface RingColumns {
   ambientKPa: Float64Array;
   speedPct: Float64Array;
   exhaustC: Float64Array[];
-  /** Fuel flow, kg/s (NaN where not sent); read with the rings so start analysis needs no second read. */
-  fuelFlowKgS?: Float64Array;
+  /** Fuel flow, kg/s (NaN where not sent), for start analysis. */
+  fuelFlowKgS: Float64Array;
   /** Flame detected: 1 yes, 0 no, -1 not sent. */
-  flameDetected?: Int8Array;
+  flameDetected: Int8Array;
 }
 
 /** One analysed ring as stored. Arrays: index 0 = thermocouple / chamber 1; NaN = NULL. */

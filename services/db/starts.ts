@@ -273,16 +273,6 @@ async function markRunEnd(client: Queryable, unitId: string, e: Extract<StartEve
 }
 
 /** Fuel flow and flame of a unit's rings in [fromMs, toMs], by ring time (ms, rounded). */
-async function readFuelAndFlame(client: pg.ClientBase, unitId: string, fromMs: number, toMs: number): Promise<Map<number, { fuel: number | null; flame: boolean | null }>> {
-  const { rows } = await client.query(
-    `SELECT (extract(epoch FROM ts) * 1000)::float8 AS t, fuel_flow_kg_s, flame_detected FROM rings WHERE unit_id = $1 AND ts >= $2 AND ts <= $3`,
-    [unitId, new Date(fromMs - 1), new Date(toMs + 1)],
-  );
-  const out = new Map<number, { fuel: number | null; flame: boolean | null }>();
-  for (const r of rows) out.set(Math.round(Number(r.t)), { fuel: num(r.fuel_flow_kg_s), flame: r.flame_detected === null ? null : Boolean(r.flame_detected) });
-  return out;
-}
-
 /** The configuration version in force at tMs (versions oldest first; null effectiveFrom = from the beginning). */
 function versionAt(versions: readonly ConfigVersionRecord[], tMs: number): ConfigVersionRecord {
   let v = versions[0];
@@ -375,7 +365,6 @@ async function recordStarts(
   versions: readonly ConfigVersionRecord[],
   observations: BatchObservation[],
 ): Promise<StartRecord[]> {
-  const first = rings.tsMs[0];
   const last = rings.tsMs[rings.count - 1];
   const version = versionAt(versions, last);
   const analyser = analyserFor(unitId, version);
@@ -386,24 +375,12 @@ async function recordStarts(
     if (row) state.counters = row.state.counters;
     row = { configVersion: version.version, lastMs: row?.lastMs ?? null, state, open: row?.open ?? [] };
   }
-  // Fuel and flame come with the rings when they were read for analysis; otherwise they are read here.
-  const fuel = rings.fuelFlowKgS;
-  const flame = rings.flameDetected;
-  const extra = fuel && flame ? null : await readFuelAndFlame(client, unitId, first, last);
   const input: StartRing[] = [];
   for (let j = 0; j < rings.count; j++) {
     const t = rings.tsMs[j];
     if (row.lastMs !== null && t <= row.lastMs) continue;
-    let fuelFlowKgS: number | null;
-    let flameDetected: boolean | null;
-    if (extra === null) {
-      fuelFlowKgS = Number.isNaN(fuel![j]) ? null : fuel![j];
-      flameDetected = flame![j] < 0 ? null : flame![j] === 1;
-    } else {
-      const x = extra.get(Math.round(t));
-      fuelFlowKgS = x?.fuel ?? null;
-      flameDetected = x?.flame ?? null;
-    }
+    const fuelFlowKgS = Number.isNaN(rings.fuelFlowKgS[j]) ? null : rings.fuelFlowKgS[j];
+    const flameDetected = rings.flameDetected[j] < 0 ? null : rings.flameDetected[j] === 1;
     input.push({ tMs: t, speedPct: rings.speedPct[j], loadMw: rings.loadMw[j], ambientC: rings.ambientC[j], fuelFlowKgS, flameDetected, exhaustC: rings.exhaustC[j] });
   }
   const events = feedStartDetector(analyser, row.state, input);

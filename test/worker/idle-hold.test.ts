@@ -38,6 +38,8 @@ function columns(fromMs: number, toMs: number): RingColumns {
     ambientKPa: Float64Array.from(rings, (r) => r.ambientKPa),
     speedPct: Float64Array.from(rings, (r) => r.speedPct),
     exhaustC: rings.map((r) => Float64Array.from(r.exhaustC, (v) => (v === null ? NaN : v))),
+    fuelFlowKgS: Float64Array.from(rings, (r) => r.fuelFlowKgS ?? NaN),
+    flameDetected: Int8Array.from(rings, (r) => (r.flameDetected === undefined || r.flameDetected === null ? -1 : r.flameDetected ? 1 : 0)),
   };
 }
 
@@ -103,6 +105,8 @@ function hovering(count: number): RingColumns {
     ambientKPa: new Float64Array(count).fill(101.325),
     speedPct: new Float64Array(count).fill(100),
     exhaustC,
+    fuelFlowKgS: new Float64Array(count).fill(NaN),
+    flameDetected: new Int8Array(count).fill(-1),
   };
 }
 
