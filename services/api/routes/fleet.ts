@@ -148,7 +148,7 @@ export const FLEET_FRESHNESS =
 
 const gzipAsync = promisify(gzip);
 const ENCODINGS = ['gzip', 'identity'];
-/** zlib's default: a 1,000-unit board (about 480 kB) compresses to about a tenth in a few ms. */
+/** zlib's default level: the 1,000-unit board of the benchmark (482 kB) comes to about 13.5 kB. */
 const GZIP_LEVEL = 6;
 
 export async function fleetRoutes(base: FastifyInstance): Promise<void> {
@@ -267,7 +267,7 @@ export async function fleetRoutes(base: FastifyInstance): Promise<void> {
   }
 
   // The board of a large fleet is hundreds of kilobytes of repetitive JSON; browsers and
-  // gateways accept gzip, which makes it about a tenth. It is compressed once per second (the
+  // gateways accept gzip, which makes it about a thirty-fifth. It is compressed once per second (the
   // body's own lifetime), off the event loop, and shared by every request of that second.
   function gzippedBody(e: Entry, now: number): Promise<Buffer> {
     const plain = body(e, now);
