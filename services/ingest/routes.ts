@@ -22,14 +22,15 @@
  * NDJSON stream a line naming a unit outside the key's scope is rejected by its line number,
  * and the lines for the key's own units are stored.
  */
-import type { FastifyInstance, FastifyRequest } from 'fastify';
+import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
 import type { FastifyValidationResult } from 'fastify/types/schema.js';
 import type { Readable } from 'node:stream';
-import { badRequest, notFound, tooLarge, unprocessable, unsupportedMediaType } from '../api/errors.ts';
-import { keyCoversUnit } from '../api/auth.ts';
-import { ErrorReply } from '../api/schemas.ts';
+import { badRequest, notFound, tooLarge, unprocessable, unsupportedMediaType } from '../http/errors.ts';
+import { keyCoversUnit } from '../http/auth.ts';
+import { ErrorReply } from '../http/schemas.ts';
 import type { Config } from '../db/config.ts';
 import { IngestRun, type IngestTally } from './run.ts';
+import { StreamGate } from './stream-gate.ts';
 import { ingestCsv, ingestNdjson, type StreamIngestOptions } from './streams.ts';
 import { RingBatchBytes, readRingBatch } from './ring-bytes.ts';
 import { isRejection, thermocoupleCounter, validateRing, type ValidationContext } from './validate.ts';
@@ -62,7 +63,7 @@ function validatorCompiler({ httpPart }: { httpPart?: string }): FastifyValidati
   return check;
 }
 
-const errors = { 400: ErrorReply, 401: ErrorReply, 403: ErrorReply, 404: ErrorReply, 413: ErrorReply, 415: ErrorReply, 422: ErrorReply, 503: ErrorReply };
+const errors = { 400: ErrorReply, 401: ErrorReply, 403: ErrorReply, 404: ErrorReply, 408: ErrorReply, 413: ErrorReply, 415: ErrorReply, 422: ErrorReply, 429: ErrorReply, 503: ErrorReply };
 
 /** 422 when rings were sent and not one of them could be stored. */
 function assertSomethingUsable(t: IngestTally, what: string): void {
@@ -99,6 +100,22 @@ async function withRun(config: Config, app: FastifyInstance, work: (run: IngestR
 
 export async function ingestRoutes(app: FastifyInstance): Promise<void> {
   const config = app.appConfig;
+  const gate = new StreamGate(config.ingest.streams);
+  /** Reads a stream body within the gate's limits: a place for its key, and an end to a stalled body. */
+  async function gated<T>(request: FastifyRequest, reply: FastifyReply, stream: Readable, work: (source: AsyncIterable<Buffer | string>) => Promise<T>): Promise<T> {
+    let leave: () => void;
+    try {
+      leave = gate.enter(request.principal?.id ?? 'none');
+    } catch (err) {
+      reply.header('retry-after', '1');
+      throw err;
+    }
+    try {
+      return await work(gate.watched(stream));
+    } finally {
+      leave();
+    }
+  }
 
   // Streamed types: the handler reads the raw request stream itself, a chunk at a time.
   app.addContentTypeParser(STREAM_TYPES, (_request, payload, done) => done(null, payload));
@@ -128,7 +145,7 @@ export async function ingestRoutes(app: FastifyInstance): Promise<void> {
       count = list.length;
     }
     if (count > config.ingest.maxBatchRings) {
-      throw tooLarge(`The batch holds ${count} rings; at most ${config.ingest.maxBatchRings} go in one request. Split it, or stream with application/x-ndjson.`);
+      throw tooLarge(`The batch holds ${count} rings; at most ${config.ingest.maxBatchRings} go in one request (CANSIGHT_MAX_BATCH_RINGS); nothing was stored. Split it into smaller batches, or stream the rings as NDJSON (application/x-ndjson, to POST /v1/rings) or CSV (text/csv), which take any number of rings.`);
     }
     const versions = await app.repos.units.versions(unitId);
     if (versions.length === 0) throw notFound(`No unit ${unitId} is registered.`);
@@ -179,7 +196,7 @@ export async function ingestRoutes(app: FastifyInstance): Promise<void> {
     },
     validatorCompiler,
     config: { access: 'ingest' },
-  }, async (request) => {
+  }, async (request, reply) => {
     const { unitId } = request.params as { unitId: string };
     const type = mediaType(request);
     if (type === 'application/json') return batch(unitId, request.body, request);
@@ -190,11 +207,13 @@ export async function ingestRoutes(app: FastifyInstance): Promise<void> {
     const versions = await app.repos.units.versions(unitId);
     if (versions.length === 0) throw notFound(`No unit ${unitId} is registered.`);
     const isCsv = type === 'text/csv';
-    const tally = await withRun(config, app, async (run) => {
-      const o = { ...streamOptions(config, run), defaultUnitId: unitId };
-      if (isCsv) await ingestCsv(stream, unitId, thermocoupleCounter(versions), o);
-      else await ingestNdjson(stream, o);
-    });
+    const tally = await gated(request, reply, stream, (source) =>
+      withRun(config, app, async (run) => {
+        const o = { ...streamOptions(config, run), defaultUnitId: unitId };
+        if (isCsv) await ingestCsv(source, unitId, thermocoupleCounter(versions), o);
+        else await ingestNdjson(source, o);
+      }),
+    );
     assertSomethingUsable(tally, isCsv ? 'rows' : 'lines');
     request.log.info({ unitId, accepted: tally.accepted, duplicates: tally.duplicates, rejected: tally.rejectedCount }, 'rings stored');
     return tally;
@@ -208,16 +227,18 @@ export async function ingestRoutes(app: FastifyInstance): Promise<void> {
       response: { 200: IngestReply, ...errors },
     },
     config: { access: 'ingest' },
-  }, async (request) => {
+  }, async (request, reply) => {
     const type = mediaType(request);
     if (!NDJSON_TYPES.includes(type) || !isStream(request.body)) {
       throw unsupportedMediaType(`Content type "${type || 'none'}" is not taken here; send application/x-ndjson, one ring per line. (A JSON batch goes to POST /v1/units/:unitId/rings.)`);
     }
     const stream = request.body;
     const principal = request.principal;
-    const tally = await withRun(config, app, async (run) => {
-      await ingestNdjson(stream, { ...streamOptions(config, run), mayWrite: (u) => principal === null || keyCoversUnit(principal, u) });
-    });
+    const tally = await gated(request, reply, stream, (source) =>
+      withRun(config, app, async (run) => {
+        await ingestNdjson(source, { ...streamOptions(config, run), mayWrite: (u) => principal === null || keyCoversUnit(principal, u) });
+      }),
+    );
     assertSomethingUsable(tally, 'lines');
     request.log.info({ accepted: tally.accepted, duplicates: tally.duplicates, rejected: tally.rejectedCount }, 'rings stored');
     return tally;

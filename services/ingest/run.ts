@@ -6,8 +6,7 @@
  */
 import type { Pool } from '../db/pool.ts';
 import { RingCopyEncoder, RingWrite, type RingRow } from '../db/rings.ts';
-import { createUnitsRepository, type ConfigVersionRecord } from '../db/units.ts';
-import type pg from 'pg';
+import { unitVersionsMany, type ConfigVersionRecord } from '../db/units.ts';
 
 export interface RejectedRing {
   /** Position of the ring: array index from 0 (JSON batch), line number from 1 (NDJSON), data row from 1 (CSV). */
@@ -54,6 +53,8 @@ export class IngestRun {
   private readonly maxListed: number;
   /** Rings accepted and already committed (with commitEveryRings, before the end). */
   committedAccepted = 0;
+  private readonly units = new Set<string>();
+  private lastUnit = '';
 
   constructor(private readonly pool: Pool, private readonly opts: IngestRunOptions) {
     this.enc = this.encoder();
@@ -88,9 +89,14 @@ export class IngestRun {
    * holds one connection while waiting for a second. [] for an unknown unit.
    */
   async unitVersions(unitId: string): Promise<ConfigVersionRecord[]> {
+    return (await this.unitVersionsMany([unitId])).get(unitId) ?? [];
+  }
+
+  /** The configuration versions of many units in one statement, on this run's connection; unknown units are missing. */
+  async unitVersionsMany(unitIds: readonly string[]): Promise<Map<string, ConfigVersionRecord[]>> {
     await this.settle();
     const w = await this.session();
-    return createUnitsRepository((await w.connection()) as unknown as pg.Pool).versions(unitId);
+    return unitVersionsMany(await w.connection(), unitIds);
   }
 
   reject(index: number, field: string, reason: string): void {
@@ -101,7 +107,16 @@ export class IngestRun {
   /** Adds a ring; true when the chunk is full and flush() should be awaited before the next. */
   add(ring: RingRow): boolean {
     this.enc.add(ring);
+    if (ring.unitId !== this.lastUnit) {
+      this.lastUnit = ring.unitId;
+      this.units.add(ring.unitId);
+    }
     return this.enc.count >= this.opts.chunkRings;
+  }
+
+  /** The units this run has taken rings for. */
+  get unitIds(): string[] {
+    return [...this.units];
   }
 
   /** Rings added and not yet written (being encoded, or in the write in flight). */

@@ -18,7 +18,7 @@ export const RingInput = Type.Object(
     cdtC: Type.Optional(Type.Union([Type.Number(), Type.Null()], { description: 'compressor discharge temperature, °C' })),
     cdpKPa: Type.Optional(Type.Union([Type.Number(), Type.Null()], { description: 'compressor discharge pressure, kPa' })),
     fuelFlowKgS: Type.Optional(Type.Union([Type.Number(), Type.Null()], { description: 'fuel flow, kg/s' })),
-    flameDetected: Type.Optional(Type.Union([Type.Boolean(), Type.Null()])),
+    flameDetected: Type.Optional(Type.Union([Type.Boolean(), Type.Null()], { description: 'the flame detectors see flame (used to follow starts and trips); null when not known' })),
     exhaustC: Type.Optional(Type.Array(Reading, { description: 'one reading per thermocouple, thermocouple 1 first; null for a missing reading' })),
     exhaustF: Type.Optional(Type.Array(Reading, { description: 'instead of exhaustC: readings in °F' })),
     exhaustMv: Type.Optional(Type.Array(Reading, { description: 'instead of exhaustC: Type K EMF in mV, with coldJunctionC' })),
@@ -45,4 +45,4 @@ export const IngestReply = Type.Object({
   rejectedCount: Type.Integer({ description: 'all rejected rings' }),
 });
 
-export const UnitRingsParams = Type.Object({ unitId: Type.String({ pattern: '^[a-z0-9-]{1,40}$' }) });
+export const UnitRingsParams = Type.Object({ unitId: Type.String({ pattern: '^[a-z0-9-]{1,40}$', description: 'the unit id given at registration' }) });

@@ -4,7 +4,7 @@
  * API.md "Errors"); anything else unexpected is a 500 that says nothing of the internals.
  */
 import { describe, expect, it } from 'vitest';
-import { toErrorReply } from '../../services/api/errors.ts';
+import { toErrorReply } from '../../services/http/errors.ts';
 
 const pgError = (code: string, message: string) => Object.assign(new Error(message), { code });
 

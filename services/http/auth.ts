@@ -43,9 +43,21 @@ export function unitScope(request: FastifyRequest): string[] | null {
   return request.principal?.unitIds ?? null;
 }
 
+/**
+ * The guard is added to each route as it is declared, after the hooks of plugins registered
+ * before it (the rate limit), so those run first. A route that does not say who may call it is
+ * refused at registration: access is never assumed.
+ */
 export const authPlugin = fp(async (app: FastifyInstance) => {
   app.decorateRequest('principal', null);
-  app.addHook('onRequest', async (request) => {
+  app.addHook('onRoute', (route) => {
+    const access = route.config?.access;
+    if (access === undefined) throw new Error(`Route ${String(route.method)} ${route.url} does not say who may call it: set config.access ('public', 'read', 'act', 'admin' or 'ingest')`);
+    if (access === 'public') return;
+    const hooks = route.onRequest === undefined ? [] : Array.isArray(route.onRequest) ? route.onRequest : [route.onRequest];
+    route.onRequest = [...hooks, guard];
+  });
+  async function guard(request: FastifyRequest): Promise<void> {
     const access = request.routeOptions.config?.access ?? 'public';
     if (access === 'public') return;
     const hash = bearerKeyHash(request);
@@ -60,5 +72,5 @@ export const authPlugin = fp(async (app: FastifyInstance) => {
     if (typeof unitId === 'string' && !keyCoversUnit(key, unitId)) {
       throw new HttpError(403, 'forbidden', `This key is limited to units ${key.unitIds!.join(', ')}; it may not reach unit ${unitId}.`);
     }
-  });
+  }
 });

@@ -1,7 +1,7 @@
 /** GET /health (the process answers) and GET /ready (database reachable, migrations current). No key needed. */
 import type { FastifyInstance } from 'fastify';
 import { Type } from 'typebox';
-import { migrationsCurrent } from '../../db/migrate.ts';
+import { migrationsCurrent } from '../db/migrate.ts';
 
 export async function healthRoutes(app: FastifyInstance): Promise<void> {
   app.get('/health', {
