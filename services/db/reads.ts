@@ -7,6 +7,9 @@
  */
 import type pg from 'pg';
 import type { StartCountersRecord } from './starts.ts';
+import { baselineOutlook } from './baselines.ts';
+import { listCalls } from './outcomes.ts';
+import { unitEvents } from './events.ts';
 
 type Queryable = pg.Pool | pg.ClientBase;
 
@@ -272,6 +275,12 @@ export async function analysisNear(q: Queryable, unitId: string, atMs: number | 
   return storedAnalysis(best);
 }
 
+/** Time of the unit's latest stored ring, or null before its first. */
+export async function lastRingMs(q: Queryable, unitId: string): Promise<number | null> {
+  const { rows } = await q.query(`SELECT ts FROM rings WHERE unit_id = $1 ORDER BY ts DESC LIMIT 1`, [unitId]);
+  return rows.length ? (rows[0].ts as Date).getTime() : null;
+}
+
 /** Time of the first analysed ring at or after sinceMs, or null. */
 export async function firstAnalysisTs(q: Queryable, unitId: string, sinceMs: number): Promise<number | null> {
   const { rows } = await q.query(`SELECT ts FROM ring_analysis WHERE unit_id = $1 AND ts >= $2 ORDER BY ts LIMIT 1`, [unitId, new Date(sinceMs)]);
@@ -485,6 +494,25 @@ export async function fitQuality(q: Queryable, unitId: string, fromMs: number, t
   return { rings: Number(r.n), meanFitSdC: num(r.mean_sd), p90FitSdC: num(r.p90_sd), meanWorstLikelihood: num(r.lik) };
 }
 
+/**
+ * The median spread of each unit's steady rings with corrected load in [loFraction, hiFraction],
+ * over the `days` up to that unit's latest analysed ring: spreads of units of one design made
+ * comparable at one load. A unit with no such ring is missing from the map.
+ */
+export async function spreadAtLoad(q: Queryable, unitIds: readonly string[], loFraction: number, hiFraction: number, days: number): Promise<Map<string, { spreadC: number; rings: number }>> {
+  if (unitIds.length === 0) return new Map();
+  const { rows } = await q.query(
+    `SELECT r.unit_id, percentile_cont(0.5) WITHIN GROUP (ORDER BY r.spread)::float8 AS spread, count(*) AS n
+       FROM unnest($1::text[]) AS u(id)
+       CROSS JOIN LATERAL (SELECT max(ts) AS last FROM ring_analysis WHERE unit_id = u.id) l
+       JOIN ring_analysis r ON r.unit_id = u.id AND r.ts > l.last - make_interval(days => $4::int) AND r.ts <= l.last
+      WHERE r.steady AND r.load_fraction BETWEEN $2 AND $3 AND r.spread IS NOT NULL AND r.spread <> 'NaN'::real
+      GROUP BY r.unit_id`,
+    [unitIds, loFraction, hiFraction, days],
+  );
+  return new Map(rows.map((r) => [String(r.unit_id), { spreadC: Number(r.spread), rings: Number(r.n) }]));
+}
+
 // ---------------------------------------------------------------------------------------------
 // Alerts, as the read routes and the review need them.
 
@@ -577,6 +605,36 @@ export async function ringsForCalibration(q: Queryable, unitId: string, fromMs: 
   };
 }
 
+export interface StoredDeviationRing {
+  tsMs: number;
+  loadFraction: number;
+  /** Validity code per thermocouple (0 = valid). */
+  validity: number[];
+  /** Reading − ring centre per thermocouple, °C; null where invalid. */
+  deviationC: (number | null)[];
+}
+
+/**
+ * The steady analysed rings of a window with their thermocouple deviations, thinned evenly to
+ * at most `limit`: what a re-mapping of the chambers needs, without the raw rings.
+ */
+export async function steadyDeviations(q: Queryable, unitId: string, fromMs: number, toMs: number, limit: number): Promise<{ total: number; rings: StoredDeviationRing[] }> {
+  const count = await q.query(`SELECT count(*) AS n FROM ring_analysis WHERE unit_id = $1 AND ts >= $2 AND ts < $3 AND steady AND load_fraction IS NOT NULL`, [unitId, new Date(fromMs), new Date(toMs)]);
+  const total = Number(count.rows[0].n);
+  const stride = Math.max(1, Math.ceil(total / limit));
+  const { rows } = await q.query(
+    `SELECT ts, load_fraction, validity, tc_deviation FROM (
+       SELECT ts, load_fraction, validity, tc_deviation, row_number() OVER (ORDER BY ts) AS k
+         FROM ring_analysis WHERE unit_id = $1 AND ts >= $2 AND ts < $3 AND steady AND load_fraction IS NOT NULL) s
+      WHERE (k - 1) % $4 = 0 ORDER BY ts LIMIT $5`,
+    [unitId, new Date(fromMs), new Date(toMs), stride, limit],
+  );
+  return {
+    total,
+    rings: rows.map((r) => ({ tsMs: (r.ts as Date).getTime(), loadFraction: Number(r.load_fraction), validity: (r.validity as number[]).map(Number), deviationC: numArray(r.tc_deviation) ?? [] })),
+  };
+}
+
 export type ReadsRepository = ReturnType<typeof createReadsRepository>;
 
 /** The repository object decorated onto the application (same functions, pool bound). */
@@ -586,15 +644,21 @@ export function createReadsRepository(pool: pg.Pool) {
     fleetUnitVersions: (scope: string[] | null) => fleetUnitVersions(pool, scope),
     analysisNear: (unitId: string, atMs: number | null) => analysisNear(pool, unitId, atMs),
     firstAnalysisTs: (unitId: string, sinceMs: number) => firstAnalysisTs(pool, unitId, sinceMs),
+    lastRingMs: (unitId: string) => lastRingMs(pool, unitId),
     ringReadings: (unitId: string, tsIso: string) => ringReadings(pool, unitId, tsIso),
     rawSeries: (unitId: string, fromMs: number, toMs: number, bucketS: number, limit: number) => rawSeries(pool, unitId, fromMs, toMs, bucketS, limit),
     rollupSeries: (unitId: string, period: 'hour' | 'day', fromMs: number, toMs: number, metrics: readonly string[], subject: number | null = null, limit?: number) =>
       rollupSeries(pool, unitId, period, fromMs, toMs, metrics, subject, limit),
     latestBaseline: (unitId: string) => latestBaseline(pool, unitId),
+    baselineOutlook: (unitId: string) => baselineOutlook(pool, unitId),
     driftStates: (unitId: string, subject: 'chamber' | 'thermocouple') => driftStates(pool, unitId, subject),
     validityTally: (unitId: string, fromMs: number, toMs: number) => validityTally(pool, unitId, fromMs, toMs),
     unitAlerts: (unitId: string, fromMs: number, toMs: number, limit?: number) => unitAlerts(pool, unitId, fromMs, toMs, limit),
     fitQuality: (unitId: string, fromMs: number, toMs: number) => fitQuality(pool, unitId, fromMs, toMs),
     ringsForCalibration: (unitId: string, fromMs: number, toMs: number, limit: number) => ringsForCalibration(pool, unitId, fromMs, toMs, limit),
+    calls: (unitIds: readonly string[] | null) => listCalls(pool, unitIds),
+    events: (unitId: string, fromMs?: number, toMs?: number) => unitEvents(pool, unitId, fromMs, toMs),
+    steadyDeviations: (unitId: string, fromMs: number, toMs: number, limit: number) => steadyDeviations(pool, unitId, fromMs, toMs, limit),
+    spreadAtLoad: (unitIds: readonly string[], loFraction: number, hiFraction: number, days: number) => spreadAtLoad(pool, unitIds, loFraction, hiFraction, days),
   };
 }

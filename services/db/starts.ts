@@ -1,35 +1,12 @@
 /**
- * Starts: every SQL statement about start-up analysis (tables starts and start_state), and the
- * one step the worker takes per analysed batch, `recordStartsForBatch`: feed the batch's rings
- * to the core's streaming start detector (services/core/starts.ts) with the state kept from the
- * previous batch, store the starts it completes, update the start counters, and hand the
- * start findings (chamber_unlit, start_failed) to the alert rules by adding them to the batch's
- * observations. It runs inside the worker's transaction and never begins or commits one.
- *
- * Start findings are about a start, not about a ring: a chamber_unlit finding stays in force
- * until a later start lights that chamber, a start_failed finding until a later start
- * completes; while in force they are part of every observation of the batch, so the alert life
- * cycle (on-delay, off-delay, acknowledgement) applies to them like to any other finding.
+ * Starts repository: every SQL statement about start-up analysis (tables starts and
+ * start_state). Reads for the API (starts, one start, the counters); writes for the worker
+ * (services/worker/starts.ts), which runs the start detector and hands over what to store: the
+ * detector states and counters, the starts completed and the runs ended, an error. Statements
+ * run in the caller's transaction; none begins or commits one.
  */
 import type pg from 'pg';
-import {
-  applyStartEvents,
-  createStartAnalyser,
-  feedStartDetector,
-  initialStartState,
-  type StartAnalyser,
-  type StartDetectorState,
-  type StartEvent,
-  type StartFinding,
-  type StartOutcome,
-  type StartPhase,
-  type StartRecord,
-  type StartRing,
-} from '../core/starts.ts';
-import type { Finding } from '../core/findings.ts';
-import type { UnitConfig } from '../core/types.ts';
-import type { RingColumns } from './analysis.ts';
-import type { ConfigVersionRecord } from './units.ts';
+import type { StartDetectorState, StartEvent, StartFinding, StartOutcome, StartPhase, StartRecord } from '../core/starts.ts';
 
 type Queryable = pg.Pool | pg.ClientBase;
 
@@ -208,34 +185,48 @@ export function createStartsRepository(pool: Queryable): StartsRepository {
 // ---------------------------------------------------------------------------------------------
 // Writes (worker).
 
-interface OpenFinding {
+/** A start finding in force since a start's end (ms). */
+export interface OpenStartFinding {
   sinceMs: number;
   finding: StartFinding;
 }
 
-interface StateRow {
+/** A unit's start detector as stored: the configuration version it follows, its last ring, its state, the findings in force. */
+export interface StartStateRow {
   configVersion: number | null;
   lastMs: number | null;
   state: StartDetectorState;
-  open: OpenFinding[];
+  open: OpenStartFinding[];
 }
 
-async function loadStateForUpdate(client: pg.ClientBase, unitId: string): Promise<StateRow | null> {
-  const { rows } = await client.query(`SELECT config_version, last_ts, state, open_findings FROM start_state WHERE unit_id = $1 FOR UPDATE`, [unitId]);
-  if (!rows.length) return null;
-  const r = rows[0];
-  return { configVersion: num(r.config_version), lastMs: r.last_ts ? (r.last_ts as Date).getTime() : null, state: r.state as StartDetectorState, open: (r.open_findings as OpenFinding[]) ?? [] };
+/** The detector states of these units, read and locked (in unit order: writers of the same units never deadlock). */
+export async function loadStartStatesForUpdate(client: pg.ClientBase, unitIds: string[]): Promise<Map<string, StartStateRow>> {
+  const { rows } = await client.query(
+    `SELECT unit_id, config_version, last_ts, state, open_findings FROM start_state WHERE unit_id = ANY($1::text[]) ORDER BY unit_id FOR UPDATE`,
+    [unitIds],
+  );
+  return new Map(
+    rows.map((r) => [r.unit_id as string, { configVersion: num(r.config_version), lastMs: r.last_ts ? (r.last_ts as Date).getTime() : null, state: r.state as StartDetectorState, open: (r.open_findings as OpenStartFinding[]) ?? [] }]),
+  );
 }
 
-async function saveState(client: pg.ClientBase, unitId: string, row: StateRow): Promise<void> {
-  const c = row.state.counters;
+/** Writes the detector states and counters of many units in one statement. */
+export async function saveStartStates(client: pg.ClientBase, states: Array<{ unitId: string; row: StartStateRow }>): Promise<void> {
+  if (states.length === 0) return;
+  const payload = states.map(({ unitId, row }) => {
+    const c = row.state.counters;
+    return { unit_id: unitId, config_version: row.configVersion, last_ts: row.lastMs === null ? null : new Date(row.lastMs).toISOString(), state: row.state, open_findings: row.open, fired_starts: c.firedStarts, failed_starts: c.failedStarts, trips: c.trips, fired_seconds: c.firedSeconds };
+  });
   await client.query(
     `INSERT INTO start_state (unit_id, config_version, last_ts, state, open_findings, fired_starts, failed_starts, trips, fired_seconds, updated_at)
-     VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, now())
+     SELECT x.unit_id, x.config_version, x.last_ts, x.state, x.open_findings, x.fired_starts, x.failed_starts, x.trips, x.fired_seconds, now()
+       FROM jsonb_to_recordset($1::jsonb) AS x(unit_id text, config_version integer, last_ts timestamptz, state jsonb, open_findings jsonb,
+            fired_starts integer, failed_starts integer, trips integer, fired_seconds double precision)
+      ORDER BY x.unit_id
      ON CONFLICT (unit_id) DO UPDATE SET config_version = EXCLUDED.config_version, last_ts = EXCLUDED.last_ts, state = EXCLUDED.state,
        open_findings = EXCLUDED.open_findings, fired_starts = EXCLUDED.fired_starts, failed_starts = EXCLUDED.failed_starts,
        trips = EXCLUDED.trips, fired_seconds = EXCLUDED.fired_seconds, updated_at = now()`,
-    [unitId, row.configVersion, row.lastMs === null ? null : new Date(row.lastMs), JSON.stringify(row.state), JSON.stringify(row.open), c.firedStarts, c.failedStarts, c.trips, c.firedSeconds],
+    [JSON.stringify(payload)],
   );
 }
 
@@ -272,146 +263,30 @@ async function markRunEnd(client: Queryable, unitId: string, e: Extract<StartEve
   );
 }
 
-/** Fuel flow and flame of a unit's rings in [fromMs, toMs], by ring time (ms, rounded). */
-/** The configuration version in force at tMs (versions oldest first; null effectiveFrom = from the beginning). */
-function versionAt(versions: readonly ConfigVersionRecord[], tMs: number): ConfigVersionRecord {
-  let v = versions[0];
-  for (const x of versions) if (x.effectiveFrom === null || Date.parse(x.effectiveFrom) <= tMs) v = x;
-  return v;
-}
-
-const ANALYSERS = new Map<string, { version: number; analyser: StartAnalyser }>();
-const MAX_ANALYSERS = 256;
-
-function analyserFor(unitId: string, v: ConfigVersionRecord): StartAnalyser {
-  const had = ANALYSERS.get(unitId);
-  if (had && had.version === v.version) return had.analyser;
-  const analyser = createStartAnalyser(v.config as UnitConfig);
-  ANALYSERS.delete(unitId);
-  ANALYSERS.set(unitId, { version: v.version, analyser });
-  while (ANALYSERS.size > MAX_ANALYSERS) ANALYSERS.delete(ANALYSERS.keys().next().value as string);
-  return analyser;
-}
-
-/** An alert observation as the worker builds them (ring time, findings at raise and hold levels). */
-export interface BatchObservation {
-  ts: Date;
-  raise: Finding[];
-  hold: Finding[];
-}
-
-/** Start findings in force after a start: a later start that lit a chamber clears its chamber_unlit; a completed one clears start_failed. */
-function updateOpenFindings(open: OpenFinding[], s: StartRecord): OpenFinding[] {
-  const failed = s.outcome === 'failed_to_fire' || s.outcome === 'flame_lost_in_warmup' || s.outcome === 'aborted';
-  const litChambers = new Set((s.lighting?.chambers ?? []).filter((c) => c.litAfterS !== null).map((c) => c.chamber));
-  const reported = new Set(s.findings.filter((f) => f.kind === 'chamber_unlit').map((f) => f.chamber));
-  const next = open.filter((o) => {
-    if (o.finding.kind === 'start_failed') return failed;
-    if (o.finding.kind === 'chamber_unlit') return !(litChambers.has(o.finding.chamber!) && !reported.has(o.finding.chamber));
-    return true;
-  });
-  for (const f of s.findings) {
-    const i = next.findIndex((o) => o.finding.kind === f.kind && o.finding.chamber === f.chamber);
-    const entry = { sinceMs: s.endMs, finding: f };
-    if (i >= 0) next[i] = entry;
-    else next.push(entry);
+/**
+ * Stores the starts a batch completed and the runs it ended, under a savepoint: on a failure
+ * nothing of them is kept, the caller's transaction goes on, and the error is thrown.
+ */
+export async function storeStartResults(client: pg.ClientBase, unitId: string, completed: readonly StartRecord[], runEnds: ReadonlyArray<Extract<StartEvent, { type: 'run_end' }>>, configVersion: number | null): Promise<void> {
+  await client.query('SAVEPOINT start_analysis');
+  try {
+    for (const c of completed) await upsertStart(client, unitId, c, configVersion);
+    for (const e of runEnds) await markRunEnd(client, unitId, e);
+    await client.query('RELEASE SAVEPOINT start_analysis');
+  } catch (err) {
+    await client.query('ROLLBACK TO SAVEPOINT start_analysis');
+    throw err;
   }
-  return next;
 }
 
 /**
- * The worker's one step per analysed batch (inside its transaction, before the alert rules
- * run): feeds the batch's rings to the unit's start detector, stores completed starts and run
- * ends, saves the detector state and counters, and adds the start findings in force to the
- * batch's alert observations (plus one observation at the end of each start that has findings).
- * Returns the starts completed in this batch.
+ * Notes that a unit's start analysis of a batch failed (start_state.last_error). A stored
+ * detector state is left as it was; a unit without one gets `fresh`.
  */
-export async function recordStartsForBatch(
-  client: pg.ClientBase,
-  unitId: string,
-  rings: RingColumns,
-  versions: readonly ConfigVersionRecord[],
-  observations: BatchObservation[],
-): Promise<StartRecord[]> {
-  if (rings.count === 0 || versions.length === 0) return [];
-  // Under a savepoint: a failure here loses this batch's start analysis (noted in start_state.last_error), never the ring analysis around it.
-  const before = observations.map((o) => [o.raise, o.hold] as const);
-  const count = observations.length;
-  await client.query('SAVEPOINT start_analysis');
-  try {
-    const out = await recordStarts(client, unitId, rings, versions, observations);
-    await client.query('RELEASE SAVEPOINT start_analysis');
-    return out;
-  } catch (err) {
-    await client.query('ROLLBACK TO SAVEPOINT start_analysis');
-    observations.length = count;
-    before.forEach(([raise, hold], i) => {
-      observations[i].raise = raise;
-      observations[i].hold = hold;
-    });
-    await client.query(
-      `INSERT INTO start_state (unit_id, state, last_error, last_error_at) VALUES ($1, $2, $3, now())
-       ON CONFLICT (unit_id) DO UPDATE SET last_error = EXCLUDED.last_error, last_error_at = now()`,
-      [unitId, JSON.stringify(initialStartState()), `${(err as Error).message ?? String(err)}`.slice(0, 2000)],
-    );
-    return [];
-  }
-}
-
-async function recordStarts(
-  client: pg.ClientBase,
-  unitId: string,
-  rings: RingColumns,
-  versions: readonly ConfigVersionRecord[],
-  observations: BatchObservation[],
-): Promise<StartRecord[]> {
-  const last = rings.tsMs[rings.count - 1];
-  const version = versionAt(versions, last);
-  const analyser = analyserFor(unitId, version);
-  let row = await loadStateForUpdate(client, unitId);
-  if (!row || row.configVersion !== version.version) {
-    // A new configuration: the detector starts afresh; counters and findings in force carry over.
-    const state = initialStartState();
-    if (row) state.counters = row.state.counters;
-    row = { configVersion: version.version, lastMs: row?.lastMs ?? null, state, open: row?.open ?? [] };
-  }
-  const input: StartRing[] = [];
-  for (let j = 0; j < rings.count; j++) {
-    const t = rings.tsMs[j];
-    if (row.lastMs !== null && t <= row.lastMs) continue;
-    const fuelFlowKgS = Number.isNaN(rings.fuelFlowKgS[j]) ? null : rings.fuelFlowKgS[j];
-    const flameDetected = rings.flameDetected[j] < 0 ? null : rings.flameDetected[j] === 1;
-    input.push({ tMs: t, speedPct: rings.speedPct[j], loadMw: rings.loadMw[j], ambientC: rings.ambientC[j], fuelFlowKgS, flameDetected, exhaustC: rings.exhaustC[j] });
-  }
-  const events = feedStartDetector(analyser, row.state, input);
-  const completed = applyStartEvents([], events.filter((e) => e.type === 'start'));
-  for (const s of completed) await upsertStart(client, unitId, s, version.version);
-  for (const e of events) if (e.type === 'run_end') await markRunEnd(client, unitId, e);
-
-  // Start findings in force, merged into the batch's observations in time order.
-  const byTime = completed.slice().sort((a, b) => a.endMs - b.endMs);
-  const sortedObs = observations.slice().sort((a, b) => a.ts.getTime() - b.ts.getTime());
-  let open = row.open;
-  let i = 0;
-  const withOpen = (o: BatchObservation) => {
-    const fs = open.filter((x) => x.sinceMs <= o.ts.getTime()).map((x) => x.finding as unknown as Finding);
-    if (fs.length) {
-      o.raise = [...o.raise, ...fs];
-      o.hold = [...o.hold, ...fs];
-    }
-  };
-  for (const s of byTime) {
-    while (i < sortedObs.length && sortedObs[i].ts.getTime() < s.endMs) withOpen(sortedObs[i++]);
-    open = updateOpenFindings(open, s);
-    // At the end of a start with findings: one observation with every start finding in force.
-    if (s.findings.length) {
-      const fs = open.map((x) => x.finding as unknown as Finding);
-      observations.push({ ts: new Date(s.endMs), raise: fs, hold: fs });
-    }
-  }
-  while (i < sortedObs.length) withOpen(sortedObs[i++]);
-  row.open = open;
-  row.lastMs = Math.max(row.lastMs ?? -Infinity, last);
-  await saveState(client, unitId, row);
-  return completed;
+export async function noteStartError(client: pg.ClientBase, unitId: string, err: unknown, fresh: StartDetectorState): Promise<void> {
+  await client.query(
+    `INSERT INTO start_state (unit_id, state, last_error, last_error_at) VALUES ($1, $2, $3, now())
+     ON CONFLICT (unit_id) DO UPDATE SET last_error = EXCLUDED.last_error, last_error_at = now()`,
+    [unitId, JSON.stringify(fresh), `${(err as Error).message ?? String(err)}`.slice(0, 2000)],
+  );
 }

@@ -9,8 +9,10 @@
 import type pg from 'pg';
 import { GRADES, type Grade } from '../core/findings.ts';
 import type { AlertKind } from './config.ts';
-import { alertFromDb, toAlertJson, type AlertJson } from './alerts.ts';
-import type { AnalysisProgressInfo, LatestAnalysis } from './analysis.ts';
+import { alertFromDb, toAlertJson, type AlertJson } from './alert-rows.ts';
+import { BASELINE_OUTLOOK_COLUMNS, baselineOutlookOf, type BaselineOutlook } from './baselines.ts';
+import type { AnalysisProgressInfo } from './progress.ts';
+import type { LatestAnalysis } from './analysis.ts';
 import type { StartCountersRecord } from './starts.ts';
 
 type Queryable = pg.Pool | pg.ClientBase;
@@ -22,6 +24,8 @@ export interface UnitStatusState {
   alerts: AlertJson[];
   starts: Omit<StartCountersRecord, 'unitId'>;
   snapshot: string;
+  /** How the unit's baseline stands (for what is not judged yet). */
+  baseline: BaselineOutlook;
   /** When the first shelf on an active alert runs out (the alert list changes then), or null. */
   changesAtMs: number | null;
 }
@@ -33,7 +37,7 @@ SELECT u.id AS s_unit_id, pg_current_snapshot()::text AS snap,
        (SELECT count(*) FROM rings WHERE unit_id = u.id AND ts > coalesce(p.watermark_ts, '-infinity'))::bigint AS pending,
        p.watermark_ts, p.rings_analysed, p.late_rings_analysed, c.worker_id, c.lease_until,
        st.fired_starts, st.failed_starts, st.trips, st.fired_seconds, ls.crank_at AS last_start_at, ls.outcome AS last_start_outcome,
-       (SELECT min(shelved_until) FROM alerts WHERE unit_id = u.id AND active AND shelved_until > $2) AS unshelve_at,
+       (SELECT min(shelved_until) FROM alerts WHERE unit_id = u.id AND active AND shelved_until > $2) AS unshelve_at,${BASELINE_OUTLOOK_COLUMNS},
        ra.ts AS a_ts, ra.config_version AS a_config_version, ra.baseline_version AS a_baseline_version, ra.load_fraction AS a_load_fraction,
        ra.steady AS a_steady, ra.spread AS a_spread, ra.spread_excl1 AS a_spread_excl1, ra.spread_excl2 AS a_spread_excl2,
        ra.spread_limit AS a_spread_limit, ra.limit_from_baseline AS a_limit_from_baseline, ra.ring_mean AS a_ring_mean,
@@ -46,7 +50,9 @@ SELECT u.id AS s_unit_id, pg_current_snapshot()::text AS snap,
        al.id, al.unit_id, al.kind, al.condition_key, al.grade, al.chamber, al.thermocouple, al.active, al.acknowledged, al.acked_at, al.acked_by,
        al.ack_comment, al.shelved_until, al.shelved_at, al.shelved_by, al.shelve_reason, al.raised_at, al.last_changed_at, al.cleared_at,
        al.closed_at, al.message, al.advice, al.evidence, al.likelihood, al.runner_up_chamber, al.runner_up_likelihood, al.baseline_version,
-       al.last_seen_at, al.absent_since, al.pending_grade, al.pending_grade_since
+       al.last_seen_at, al.absent_since, al.pending_grade, al.pending_grade_since, al.found_in_history, al.history_announced,
+       p.reanalyse_from, p.reanalysis_from, p.reanalysis_to,
+       (SELECT count(*) FROM rings WHERE unit_id = u.id AND p.reanalysis_to IS NOT NULL AND ts > coalesce(p.watermark_ts, '-infinity') AND ts <= p.reanalysis_to)::bigint AS reanalysis_left
   FROM units u
   LEFT JOIN analysis_progress p ON p.unit_id = u.id
   LEFT JOIN unit_claims c ON c.unit_id = u.id
@@ -139,6 +145,10 @@ function stateOf(rows: pg.QueryResultRow[]): UnitStatusState {
       lateRingsAnalysed: Number(r.late_rings_analysed ?? 0),
       workerId: (r.worker_id as string | null) ?? null,
       leaseUntil: leaseOk ? lease : null,
+      reanalysis:
+        r.reanalysis_to || r.reanalyse_from
+          ? { fromTs: date(r.reanalysis_from), toTs: date(r.reanalysis_to), ringsLeft: Number(r.reanalysis_left ?? 0), askedFromTs: date(r.reanalyse_from) }
+          : null,
     },
     alerts: rows.filter((a) => a.id !== null).map((a) => toAlertJson(alertFromDb(a))),
     starts: {
@@ -149,6 +159,7 @@ function stateOf(rows: pg.QueryResultRow[]): UnitStatusState {
       lastStartAt: iso(r.last_start_at),
       lastStartOutcome: (r.last_start_outcome as StartCountersRecord['lastStartOutcome']) ?? null,
     },
+    baseline: baselineOutlookOf(r),
     snapshot: r.snap as string,
     changesAtMs: unshelveAt && Number.isFinite(unshelveAt.getTime()) ? unshelveAt.getTime() : null,
   };

@@ -8,25 +8,25 @@
  * read back through GET /v1/alerts (with their history) and scored against ground truth
  * (scorecard.ts). Shared by `npm run scorecard` and the scorecard tests.
  */
-import { buildApp } from '../api/app.ts';
+import { buildApp } from '../cli/app.ts';
 import type { Config } from '../db/config.ts';
 import { createKeysRepository } from '../db/keys.ts';
 import type { Logger } from '../db/logger.ts';
 import type { Pool } from '../db/pool.ts';
 import { createUnitsRepository } from '../db/units.ts';
 import { startWorker } from '../worker/index.ts';
-import { simulateUnit } from './generator.ts';
-import { mergeByTime } from './merge.ts';
-import { DAY_MS } from './operation.ts';
-import { fleetTruth, pluggingDepthReachedMs, scoreAlerts, type ScorecardFigures, type ScorecardFleet, type ScoredAlert } from './scorecard.ts';
-import type { GroundTruth } from './types.ts';
+import { simulateUnit } from '../sim/generator.ts';
+import { mergeByTime } from '../sim/merge.ts';
+import { DAY_MS } from '../sim/operation.ts';
+import { fleetTruth, pluggingDepthReachedMs, ringIntervalS, scoreAlerts, type ScorecardFigures, type ScorecardFleet, type ScoredAlert } from './scorecard.ts';
+import type { GroundTruth } from '../sim/types.ts';
 
 export interface ScorecardRunOptions {
   pool: Pool;
   config: Config;
   logger: Logger;
   fleet: ScorecardFleet;
-  /** Seconds between rings in steady running (default 60). */
+  /** Seconds between rings in steady running, for units the fleet gives no rate of its own (default 60). */
   steadyIntervalS?: number;
   /** Progress lines for people (default: none). */
   say?: (line: string) => void;
@@ -100,8 +100,8 @@ export async function runScorecard(o: ScorecardRunOptions): Promise<ScorecardRun
   const steadyIntervalS = o.steadyIntervalS ?? 60;
   const units = createUnitsRepository(pool);
   for (const u of fleet.units) {
-    const { id, name, site, ...cfg } = u.config;
-    await units.create({ id, name, site }, cfg, 'scorecard');
+    const { id, name, site, family, ...cfg } = u.config;
+    await units.create({ id, name, site, family }, cfg, 'scorecard');
   }
   const keys = createKeysRepository(pool);
   const ids = fleet.units.map((u) => u.config.id);
@@ -123,7 +123,7 @@ export async function runScorecard(o: ScorecardRunOptions): Promise<ScorecardRun
     };
     for (let day = fleet.fromMs; day < fleet.toMs; day += DAY_MS) {
       const end = Math.min(day + DAY_MS, fleet.toMs);
-      const sims = fleet.units.map((u) => simulateUnit(u, { from: day, to: end, seed: fleet.seed, steadyIntervalS }));
+      const sims = fleet.units.map((u) => simulateUnit(u, { from: day, to: end, seed: fleet.seed, steadyIntervalS: ringIntervalS(fleet, u.config.id, day, steadyIntervalS) }));
       const lastMs = new Map<string, number>();
       let body = '';
       let n = 0;
