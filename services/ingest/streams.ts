@@ -5,7 +5,7 @@
  * Each ring goes through validateRing and into an IngestRun, which writes in chunks; nothing
  * here touches the database directly.
  */
-import { badRequest, tooLarge, unprocessable } from '../api/errors.ts';
+import { badRequest, tooLarge, unprocessable } from '../http/errors.ts';
 import type { IngestBounds } from '../db/config.ts';
 import { RingBytesReader } from './ring-bytes.ts';
 import { IngestRun } from './run.ts';
@@ -40,7 +40,7 @@ export class LineSplitter {
   constructor(private readonly limit: number) {}
 
   private tooLong(): never {
-    throw tooLarge(`Line ${this.lineNo + 1} is longer than ${this.limit} bytes, the most one line may hold; nothing was stored.`);
+    throw tooLarge(`Line ${this.lineNo + 1} is longer than ${this.limit} bytes, the most one line may hold (CANSIGHT_LINE_LIMIT_BYTES); nothing was stored. Put one ring on each line, ended by a newline.`);
   }
 
   /** Records the line buf[start, end) without its CR, and without a BOM on the first line. */
@@ -156,12 +156,29 @@ class UnitCache {
     return this.units.get(unitId);
   }
   async load(unitId: string): Promise<Counter | null> {
-    const versions = await this.run.unitVersions(unitId);
-    const c = versions.length ? thermocoupleCounter(versions) : null;
-    this.units.set(unitId, c);
-    return c;
+    await this.loadMany([unitId]);
+    return this.units.get(unitId) ?? null;
+  }
+  /** Looks up every unit named in a chunk of NDJSON that is not known yet, in one statement. */
+  async prefetch(chunk: Buffer): Promise<void> {
+    const missing = new Set<string>();
+    for (const m of chunk.toString('latin1').matchAll(UNIT_ID_IN_LINE)) if (!this.units.has(m[1])) missing.add(m[1]);
+    if (missing.size) await this.loadMany([...missing]);
+  }
+  private async loadMany(unitIds: string[]): Promise<void> {
+    const found = await this.run.unitVersionsMany(unitIds);
+    for (const id of unitIds) {
+      const versions = found.get(id);
+      this.units.set(id, versions?.length ? thermocoupleCounter(versions) : null);
+    }
   }
 }
+
+/**
+ * A unit id as lines name it. A hint only: a line written another way (spaces, escapes) or cut
+ * by a chunk boundary has its unit looked up on its own when it is read.
+ */
+const UNIT_ID_IN_LINE = /"unitId"\s*:\s*"([a-z0-9-]{1,40})"/g;
 
 function context(o: StreamIngestOptions, count: Counter): ValidationContext {
   return { nowMs: o.nowMs, futureToleranceS: o.futureToleranceS, bounds: o.bounds, thermocoupleCount: count };
@@ -272,6 +289,9 @@ export async function ingestNdjson(source: AsyncIterable<Buffer | string>, o: St
 
   for await (const chunk of chunks(source)) {
     bytes += chunk.length;
+    // The units a chunk names are looked up together before its lines are read, so a request
+    // for many units costs one lookup per chunk, not one per unit.
+    if (o.overrideUnitId === undefined) await units.prefetch(chunk);
     const sp = splitter.spans(chunk);
     let lineNo = splitter.lineNo - sp.count;
     if (sp.joined !== null) {

@@ -12,11 +12,13 @@ import { AUTH_START_ID, seedStart } from '../starts/fixtures.ts';
 let t: TestApp;
 beforeAll(async () => {
   t = await createTestApp();
-  await t.app.inject({ method: 'POST', url: '/v1/units', headers: bearer(t.keys.admin), payload: unitBody('auth-a') });
+  await t.app.inject({ method: 'POST', url: '/v1/units', headers: bearer(t.keys.admin), payload: unitBody('auth-a', { family: 'auth-family' }) });
   await t.app.inject({ method: 'POST', url: '/v1/units', headers: bearer(t.keys.admin), payload: unitBody('auth-b') });
   await seedAuthFixtures(t.db.pool);
   await seedStart(t.db.pool, 'auth-a');
+  await t.db.pool.query(`INSERT INTO maintenance_events (unit_id, id, kind, at, recorded_by) VALUES ('auth-a', $1, 'compressor_wash', '2026-01-01T00:00:00Z', 'auth matrix')`, [AUTH_EVENT_ID]);
 });
+const AUTH_EVENT_ID = '6f1d2c3b-0000-4000-8000-0000000000ee';
 afterAll(async () => t.close());
 
 interface RouteCase {
@@ -28,6 +30,8 @@ interface RouteCase {
   payload?: () => object | string;
   contentType?: string;
   unitScoped: boolean;
+  /** The URL names an alert, not a unit: a key scoped elsewhere gets 404, as for an unknown alert. */
+  hidesOutOfScope?: boolean;
 }
 
 let n = 0;
@@ -41,10 +45,10 @@ export const ROUTES: RouteCase[] = [
   { method: 'GET', url: '/v1/units/auth-a', path: '/v1/units/{unitId}', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'PATCH', url: '/v1/units/auth-a', path: '/v1/units/{unitId}', allowed: ['admin'], payload: () => ({ name: `renamed ${n++}` }), unitScoped: true },
   { method: 'GET', url: '/v1/alerts?unitId=auth-a', path: '/v1/alerts', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
-  { method: 'GET', url: `/v1/alerts/${AUTH_ALERT_ID}`, path: '/v1/alerts/{id}', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
-  { method: 'POST', url: `/v1/alerts/${AUTH_ALERT_ID}/ack`, path: '/v1/alerts/{id}/ack', allowed: ['operator', 'admin'], payload: () => ({ by: 'Auth Matrix' }), unitScoped: true },
-  { method: 'POST', url: `/v1/alerts/${AUTH_ALERT_ID}/shelve`, path: '/v1/alerts/{id}/shelve', allowed: ['operator', 'admin'], payload: () => ({ by: 'Auth Matrix', until: new Date(Date.now() + 3_600_000).toISOString(), reason: 'auth matrix' }), unitScoped: true },
-  { method: 'POST', url: `/v1/alerts/${AUTH_ALERT_ID}/unshelve`, path: '/v1/alerts/{id}/unshelve', allowed: ['operator', 'admin'], payload: () => ({ by: 'Auth Matrix' }), unitScoped: true },
+  { method: 'GET', url: `/v1/alerts/${AUTH_ALERT_ID}`, path: '/v1/alerts/{id}', allowed: ['viewer', 'operator', 'admin'], unitScoped: true, hidesOutOfScope: true },
+  { method: 'POST', url: `/v1/alerts/${AUTH_ALERT_ID}/ack`, path: '/v1/alerts/{id}/ack', allowed: ['operator', 'admin'], payload: () => ({ by: 'shift operator 1' }), unitScoped: true, hidesOutOfScope: true },
+  { method: 'POST', url: `/v1/alerts/${AUTH_ALERT_ID}/shelve`, path: '/v1/alerts/{id}/shelve', allowed: ['operator', 'admin'], payload: () => ({ by: 'shift operator 1', until: new Date(Date.now() + 3_600_000).toISOString(), reason: 'auth matrix' }), unitScoped: true, hidesOutOfScope: true },
+  { method: 'POST', url: `/v1/alerts/${AUTH_ALERT_ID}/unshelve`, path: '/v1/alerts/{id}/unshelve', allowed: ['operator', 'admin'], payload: () => ({ by: 'shift operator 1' }), unitScoped: true, hidesOutOfScope: true },
   { method: 'POST', url: '/v1/webhooks', path: '/v1/webhooks', allowed: ['admin'], payload: () => ({ url: `https://receiver.example.net/${n++}`, minGrade: 'alarm', secret: 'auth-matrix-secret-0000' }), unitScoped: false },
   { method: 'GET', url: '/v1/webhooks', path: '/v1/webhooks', allowed: ['admin'], unitScoped: false },
   { method: 'GET', url: `/v1/webhooks/${AUTH_WEBHOOK_ID}/deliveries`, path: '/v1/webhooks/{id}/deliveries', allowed: ['admin'], unitScoped: false },
@@ -62,12 +66,23 @@ export const ROUTES: RouteCase[] = [
   { method: 'GET', url: '/v1/units/auth-a/chambers/2/trend', path: '/v1/units/{unitId}/chambers/{chamber}/trend', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'GET', url: '/v1/units/auth-a/thermocouples', path: '/v1/units/{unitId}/thermocouples', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'POST', url: '/v1/units/auth-a/swirl/calibrate', path: '/v1/units/{unitId}/swirl/calibrate', allowed: ['viewer', 'operator', 'admin'], payload: () => ({ from: '2026-01-01T00:00:00Z', to: '2026-01-02T00:00:00Z', chamber: 1 }), unitScoped: true },
+  { method: 'POST', url: '/v1/units/auth-a/swirl/what-if', path: '/v1/units/{unitId}/swirl/what-if', allowed: ['viewer', 'operator', 'admin'], payload: () => ({ from: '2026-01-01T00:00:00Z', to: '2026-01-02T00:00:00Z', curve: [[0.3, 100], [1.0, 60]] }), unitScoped: true },
   { method: 'GET', url: '/v1/units/auth-a/ring.svg', path: '/v1/units/{unitId}/ring.svg', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'GET', url: '/v1/units/auth-a/chambers/2/trend.svg', path: '/v1/units/{unitId}/chambers/{chamber}/trend.svg', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'GET', url: '/v1/units/auth-a/spread.svg', path: '/v1/units/{unitId}/spread.svg', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'GET', url: '/v1/units/auth-a/review', path: '/v1/units/{unitId}/review', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'GET', url: '/v1/units/auth-a/starts', path: '/v1/units/{unitId}/starts', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  { method: 'GET', url: '/v1/units/auth-a/starts/trend.svg', path: '/v1/units/{unitId}/starts/trend.svg', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
   { method: 'GET', url: `/v1/units/auth-a/starts/${AUTH_START_ID}`, path: '/v1/units/{unitId}/starts/{startId}', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  { method: 'POST', url: `/v1/alerts/${AUTH_ALERT_ID}/outcome`, path: '/v1/alerts/{id}/outcome', allowed: ['operator', 'admin'], payload: () => ({ by: 'combustion engineer', outcome: 'not_inspected' }), unitScoped: true, hidesOutOfScope: true },
+  { method: 'GET', url: '/v1/units/auth-a/outcomes', path: '/v1/units/{unitId}/outcomes', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  { method: 'GET', url: '/v1/fleet/outcomes', path: '/v1/fleet/outcomes', allowed: ['viewer', 'operator', 'admin'], unitScoped: false },
+  { method: 'GET', url: '/v1/fleet/families/auth-family', path: '/v1/fleet/families/{family}', allowed: ['viewer', 'operator', 'admin'], unitScoped: false },
+  { method: 'GET', url: '/v1/fleet/families/auth-family/family.svg', path: '/v1/fleet/families/{family}/family.svg', allowed: ['viewer', 'operator', 'admin'], unitScoped: false },
+  { method: 'POST', url: '/v1/units/auth-a/events', path: '/v1/units/{unitId}/events', allowed: ['operator', 'admin'], payload: () => ({ kind: 'compressor_wash', at: '2026-01-02T00:00:00Z', by: 'shift operator 1' }), unitScoped: true },
+  { method: 'GET', url: '/v1/units/auth-a/events', path: '/v1/units/{unitId}/events', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
+  // Deleting succeeds once, so this row is not run again with a key scoped to auth-a (the guard is the one every :unitId route has).
+  { method: 'DELETE', url: `/v1/units/auth-a/events/${AUTH_EVENT_ID}`, path: '/v1/units/{unitId}/events/{eventId}', allowed: ['admin'], unitScoped: false },
   { method: 'GET', url: `/v1/units/auth-a/starts/${AUTH_START_ID}/start.svg`, path: '/v1/units/{unitId}/starts/{startId}/start.svg', allowed: ['viewer', 'operator', 'admin'], unitScoped: true },
 ];
 
@@ -102,12 +117,17 @@ describe('auth matrix', () => {
     });
 
     if (r.unitScoped) {
-      it(`${r.method} ${r.url}: a key scoped to another unit gets 403, one scoped to this unit passes`, async () => {
+      it(`${r.method} ${r.url}: a key scoped to another unit gets ${r.hidesOutOfScope ? 404 : 403}, one scoped to this unit passes`, async () => {
         const role = r.allowed[0];
         const other = await t.key(role, ['auth-b']);
         const res = await call(bearer(other));
-        expect(res.statusCode).toBe(403);
-        expect(res.json().message).toContain('auth-a');
+        if (r.hidesOutOfScope) {
+          expect(res.statusCode).toBe(404);
+          expect(res.json().message).not.toContain('auth-a');
+        } else {
+          expect(res.statusCode).toBe(403);
+          expect(res.json().message).toContain('auth-a');
+        }
         const own = await t.key(role, ['auth-a']);
         expect((await call(bearer(own))).statusCode).toBeLessThan(300);
       });
