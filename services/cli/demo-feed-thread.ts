@@ -26,7 +26,9 @@ export interface DemoFeedJob {
 }
 
 export type DemoFeedMessage =
-  | { type: 'backfilled'; rings: number; seconds: number }
+  /** History sent so far: rings accepted, the history's span, how far it has been sent, and each unit's newest ring sent. */
+  | { type: 'progress'; rings: number; fromMs: number; sentToMs: number; toMs: number; lastMsByUnit: Record<string, number> }
+  | { type: 'backfilled'; rings: number; seconds: number; lastMsByUnit: Record<string, number> }
   | { type: 'failed'; message: string }
   | { type: 'warn'; message: string }
   | { type: 'sent'; rings: number };
@@ -43,24 +45,32 @@ async function send(baseUrl: string, key: string, body: string): Promise<{ accep
   return reply;
 }
 
-/** Sends the rings of `units` in (fromMs, toMs] through the ingest endpoint in NDJSON chunks. */
-async function sendWindow(o: DemoFeedJob, units: SimUnit[], fromMs: number, toMs: number, chunkRings = 20_000): Promise<number> {
+/**
+ * Sends the rings of `units` in (fromMs, toMs] through the ingest endpoint in NDJSON chunks;
+ * `lastMsByUnit` gets each unit's newest ring sent, and `onChunk` hears of every chunk stored.
+ */
+async function sendWindow(o: DemoFeedJob, units: SimUnit[], fromMs: number, toMs: number, lastMsByUnit: Record<string, number>, onChunk: (accepted: number) => void = () => undefined, chunkRings = 20_000): Promise<number> {
   if (toMs <= fromMs) return 0;
   const sims = units.map((u) => simulateUnit(u, { from: fromMs + 1, to: toMs + 1, seed: o.seed, steadyIntervalS: o.steadyIntervalS }));
   let body = '';
   let n = 0;
   let total = 0;
+  let pending: Record<string, number> = {};
+  const flush = async () => {
+    const accepted = (await send(o.baseUrl, o.key, body)).accepted;
+    Object.assign(lastMsByUnit, pending);
+    total += accepted;
+    onChunk(accepted);
+    body = '';
+    n = 0;
+    pending = {};
+  };
   for (const ring of mergeByTime(sims)) {
     body += JSON.stringify(ring) + '\n';
-    n++;
-    if (n >= chunkRings) {
-      const r = await send(o.baseUrl, o.key, body);
-      total += r.accepted;
-      body = '';
-      n = 0;
-    }
+    pending[ring.unitId] = Date.parse(ring.ts);
+    if (++n >= chunkRings) await flush();
   }
-  if (n > 0) total += (await send(o.baseUrl, o.key, body)).accepted;
+  if (n > 0) await flush();
   return total;
 }
 
@@ -80,14 +90,18 @@ async function run(job: DemoFeedJob): Promise<void> {
   let last = job.lastMs;
   const t0 = Date.now();
   let rings = 0;
+  const lastMsByUnit: Record<string, number> = {};
   try {
     while (!stopped) {
       const to = Math.min(Date.now(), last + 3 * DAY_MS);
-      rings += await sendWindow(job, units, last, to);
+      await sendWindow(job, units, last, to, lastMsByUnit, (accepted) => {
+        rings += accepted;
+        tell({ type: 'progress', rings, fromMs: job.lastMs, sentToMs: Math.max(job.lastMs, ...Object.values(lastMsByUnit)), toMs: Date.now(), lastMsByUnit: { ...lastMsByUnit } });
+      });
       last = to;
       if (to >= Date.now() - 1000) break;
     }
-    tell({ type: 'backfilled', rings, seconds: Math.round((Date.now() - t0) / 100) / 10 });
+    tell({ type: 'backfilled', rings, seconds: Math.round((Date.now() - t0) / 100) / 10, lastMsByUnit: { ...lastMsByUnit } });
   } catch (err) {
     if (!stopped) tell({ type: 'failed', message: (err as Error).message });
     port.close();
@@ -101,7 +115,7 @@ async function run(job: DemoFeedJob): Promise<void> {
     if (stopped) break;
     const to = Math.floor(Date.now() / 1000) * 1000;
     try {
-      const n = await sendWindow(job, units, last, to);
+      const n = await sendWindow(job, units, last, to, lastMsByUnit);
       last = to;
       if (n) tell({ type: 'sent', rings: n });
     } catch (err) {

@@ -34,7 +34,7 @@ const scratch = new Stream();
 const knotCache = new Map<number, { i: number; a: number; b: number }>();
 
 /** Smooth value noise: hashed unit-variance values at knots every knotMs, eased in between. */
-function valueNoise(key: number, tMs: number, knotMs: number): number {
+export function valueNoise(key: number, tMs: number, knotMs: number): number {
   const x = tMs / knotMs;
   const i = Math.floor(x);
   const f = x - i;

@@ -8,7 +8,7 @@
 /**
  * Coefficients derived once from the UCI Machine Learning Repository "Gas Turbine CO and NOx
  * Emission Data Set" (Kaya, Tüfekci, Uzun, Turkish J. of Electrical Engineering & Computer
- * Sciences 27 (2019) 4783–4796; CC BY 4.0), shared/reference/uci-gas-turbine-co-nox-2011-2015.csv,
+ * Sciences 27 (2019) 4783–4796; CC BY 4.0), test/reference/uci-gas-turbine-co-nox-2011-2015.csv,
  * 36,733 hourly rows, by fitUciExhaustResponse() below (ordinary least squares); the test
  * test/sim/exhaust-model.test.ts re-derives them from the CSV and checks they agree.
  *

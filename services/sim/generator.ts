@@ -1,16 +1,17 @@
 /**
  * The ring generator: from a simulated unit and a time window, the exhaust rings a plant
  * gateway would send, and the ground truth of what really happened. Per ring: the operating
- * point from the timeline (operation.ts), each chamber's heat share (fingerprint and faults),
+ * point from the timeline (operation.ts), each chamber's heat share (fingerprint, its slow
+ * wander, and faults),
  * each chamber's plume carried round by the true swirl (core swirl.ts) and spread by mixing (a
  * circular kernel), the ring mean from the exhaust model (exhaust-model.ts), then every
- * thermocouple's reading with its fixed calibration offset and noise inside IEC 60584-1 class 2,
- * and thermocouple faults. Hot path on typed arrays; nothing allocated per reading.
+ * thermocouple's reading with its fixed calibration offset (a replaced probe's new one from its
+ * replacement date) and noise inside IEC 60584-1 class 2, and thermocouple faults. Hot path on typed arrays; nothing allocated per reading.
  */
 import { chamberAnglesDeg, thermocoupleAnglesDeg } from '../core/geometry.ts';
 import { plumeAngleDeg, swirlDeg } from '../core/swirl.ts';
 import { typeKToleranceC } from '../core/temperature.ts';
-import { ambientC, ambientKPa } from './ambient.ts';
+import { ambientC, ambientKPa, valueNoise } from './ambient.ts';
 import { baseLoadFraction, combustionRiseAtExhaustC, fuelFractionAtLoad, ringMeanC } from './exhaust-model.ts';
 import {
   buildTimeline, coolingExhaustC, COAST_SPEED_TAU_S, DAY_MS, findSegment, localDay, MINUTE_MS, runSetpoint,
@@ -59,6 +60,9 @@ export function resolvePhysics(unit: SimUnit): UnitPhysics {
     plumeRetention: p.plumeRetention ?? 0.5,
     fingerprintPct: p.fingerprintPct,
     fingerprintSigmaPct: p.fingerprintSigmaPct ?? 4,
+    fingerprintWanderPct: p.fingerprintWanderPct ?? 0,
+    fingerprintWanderDays: p.fingerprintWanderDays ?? 5,
+    probeReplacements: p.probeReplacements ?? [],
     placementBiasFrac: p.placementBiasFrac ?? 0.012,
     exhaustOffsetC: p.exhaustOffsetC ?? 0,
     noiseSigmaC: p.noiseSigmaC ?? 0.35,
@@ -92,7 +96,7 @@ export function plumeKernel(chamberCount: number, widthFrac: number): Float64Arr
 }
 
 interface ChamberFault { k: number; kind: 'nozzle_plugging' | 'hot_chamber' | 'flame_loss'; at: number; end: number; amount: number; rampMs: number }
-interface TcFault { i: number; kind: 'tc_open' | 'tc_drift' | 'tc_erratic' | 'tc_frozen'; at: number; end: number; value: number; }
+interface TcFault { i: number; kind: 'tc_open' | 'tc_drift' | 'tc_erratic' | 'tc_frozen' | 'tc_replaced'; at: number; end: number; value: number; }
 
 /** Ambient-corrected load (similarity group P/(δ·√θ) over rating), as the swirl curve expects. */
 function correctedLoad(loadFraction: number, ambC: number, ambKPa: number): number {
@@ -122,6 +126,11 @@ export class UnitSimulation {
   private readonly chAngle: Float64Array;
   private readonly fingerprint: Float64Array; // fraction
   private readonly probeOffsetFrac: Float64Array;
+  /** Per thermocouple: when it was replaced (Infinity = never) and the new probe's offset fraction. */
+  private readonly replacedAt: Float64Array;
+  private readonly replacedFrac: Float64Array;
+  private readonly wanderKey: Int32Array;
+  private readonly wanderMs: number;
   private readonly placementBias: Float64Array;
   private readonly kernel: Float64Array;
   private readonly chamberFaults: ChamberFault[] = [];
@@ -173,6 +182,20 @@ export class UnitSimulation {
       this.placementBias[i] = clippedNormal(fixed, this.physics.placementBiasFrac, 2.5);
     }
     this.kernel = plumeKernel(this.n, this.physics.mixingWidthFrac);
+    this.wanderKey = new Int32Array(this.n);
+    for (let k = 0; k < this.n; k++) this.wanderKey[k] = combineKeys(this.unitKey, 0xf9a0 + k);
+    this.wanderMs = this.physics.fingerprintWanderDays * DAY_MS;
+    if (this.physics.fingerprintWanderPct > 0 && !(this.wanderMs > 0)) throw new Error(`fingerprintWanderDays must be a positive number of days, got ${this.physics.fingerprintWanderDays}`);
+    this.replacedAt = new Float64Array(this.m).fill(Infinity);
+    this.replacedFrac = new Float64Array(this.m);
+    for (const r of this.physics.probeReplacements) {
+      const i = this.checkTc(r.thermocouple, 'probe replacement') - 1;
+      if (!(Math.abs(r.stepFrac) <= 1)) throw new Error(`probe replacement of thermocouple ${r.thermocouple}: stepFrac ${r.stepFrac} is outside ±1 (the step is at most the class-2 tolerance)`);
+      if (this.replacedAt[i] !== Infinity) throw new Error(`probe replacement: thermocouple ${r.thermocouple} is replaced twice on ${cfg.id}`);
+      this.replacedAt[i] = toMs(r.at, 'probe replacement at');
+      const old = this.probeOffsetFrac[i];
+      this.replacedFrac[i] = Math.abs(old + r.stepFrac) <= 1 ? old + r.stepFrac : old - r.stepFrac;
+    }
 
     // Faults.
     const faults = unit.faults ?? [];
@@ -230,7 +253,7 @@ export class UnitSimulation {
     const at = toMs(f.at, `${f.kind}.at`);
     const base = { unitId: id, at: isoTime(at) };
     switch (f.kind) {
-      case 'tc_open': case 'tc_drift': case 'tc_erratic': case 'tc_frozen': {
+      case 'tc_open': case 'tc_drift': case 'tc_erratic': case 'tc_frozen': case 'tc_replaced': {
         const i = this.checkTc(f.thermocouple, f.kind) - 1;
         const end = f.until === undefined ? Infinity : toMs(f.until, `${f.kind}.until`);
         let value = 0;
@@ -238,6 +261,7 @@ export class UnitSimulation {
         if (f.kind === 'tc_open') { value = f.readsC === null ? NaN : f.readsC ?? -40; params.readsC = f.readsC === null ? null : value; }
         if (f.kind === 'tc_drift') { value = f.ratePerDayC; params.ratePerDayC = value; }
         if (f.kind === 'tc_erratic') { value = f.sigmaC; params.sigmaC = value; }
+        if (f.kind === 'tc_replaced') { value = f.offsetC; params.offsetC = value; }
         if (f.kind === 'tc_frozen') { value = this.cleanReadingAt(at, i); params.frozenAtC = Math.round(value * 10) / 10; }
         this.tcFaults.push({ i, kind: f.kind, at, end, value });
         this.faultTruth.push({ ...base, kind: f.kind, thermocouple: i + 1, until: Number.isFinite(end) ? isoTime(end) : undefined, params, thermocoupleAngleDeg: this.tcAngle[i] });
@@ -282,6 +306,12 @@ export class UnitSimulation {
     return this.field[i];
   }
 
+  /** Chamber k's fingerprint at t, as a fraction: the fixed value plus its slow wander. */
+  private fingerprintAt(k: number, t: number): number {
+    const w = this.physics.fingerprintWanderPct;
+    return w > 0 ? this.fingerprint[k] + (w / 100) * valueNoise(this.wanderKey[k], t, this.wanderMs) : this.fingerprint[k];
+  }
+
   /** Chamber k's heat-share factor from chamber faults at t. */
   private chamberFactor(k: number, t: number): number {
     let f = 1;
@@ -319,7 +349,7 @@ export class UnitSimulation {
         mean = ringMeanC(load, ambC, ambK, ph.exhaustOffsetC);
         rise = combustionRiseAtExhaustC(load, ambC, mean);
         swirlLoad = correctedLoad(load, ambC, ambK);
-        for (let k = 0; k < n; k++) heat[k] = (1 + this.fingerprint[k]) * this.chamberFactor(k, t);
+        for (let k = 0; k < n; k++) heat[k] = (1 + this.fingerprintAt(k, t)) * this.chamberFactor(k, t);
         break;
       }
       case 'start': {
@@ -333,7 +363,7 @@ export class UnitSimulation {
         const sinceFiring = (t - p.firingAt) / 1000;
         for (let k = 0; k < n; k++) {
           const lit = sinceFiring - p.lightS[k];
-          heat[k] = lit > 0 ? (1 - Math.exp(-lit / START_VALUES.chamberLightLagS)) * (1 + this.fingerprint[k]) * this.chamberFactor(k, t) : 0;
+          heat[k] = lit > 0 ? (1 - Math.exp(-lit / START_VALUES.chamberLightLagS)) * (1 + this.fingerprintAt(k, t)) * this.chamberFactor(k, t) : 0;
         }
         break;
       }
@@ -344,7 +374,7 @@ export class UnitSimulation {
         mean = trackValue(p.track.meanC, p.track.t0, t);
         flame = true;
         rise = combustionRiseAtExhaustC(0, ambC, mean, speed);
-        for (let k = 0; k < n; k++) heat[k] = (1 + this.fingerprint[k]) * this.chamberFactor(k, t);
+        for (let k = 0; k < n; k++) heat[k] = (1 + this.fingerprintAt(k, t)) * this.chamberFactor(k, t);
         break;
       }
       case 'coast': {
@@ -386,7 +416,8 @@ export class UnitSimulation {
         for (let k = 0; k < n; k++) acc += heat[k] * g[(ti - pk[k]) % KERNEL_LEN];
       }
       const gas = mean + rise * (beta * acc + (1 - beta) * hbar - 1 + this.placementBias[i]);
-      out[i] = gas + this.probeOffsetFrac[i] * typeKToleranceC(gas, 2) + tol0 * s.bounded();
+      const offsetFrac = t >= this.replacedAt[i] ? this.replacedFrac[i] : this.probeOffsetFrac[i];
+      out[i] = gas + offsetFrac * typeKToleranceC(gas, 2) + tol0 * s.bounded();
     }
     if (withTcFaults) {
       const tf = this.tcFaults;
@@ -398,6 +429,7 @@ export class UnitSimulation {
           case 'tc_drift': out[f.i] += (f.value * (t - f.at)) / DAY_MS; break;
           case 'tc_erratic': out[f.i] += f.value * s.normal(); break;
           case 'tc_frozen': out[f.i] = f.value; break;
+          case 'tc_replaced': out[f.i] += f.value; break;
         }
       }
     }
@@ -522,13 +554,16 @@ export class UnitSimulation {
    */
   gasTemperaturesAt(t: TimeInput): Float64Array | null {
     const saveOff = this.probeOffsetFrac.slice();
+    const saveNew = this.replacedFrac.slice();
     const saveNoise = this.physics.noiseSigmaC;
     this.probeOffsetFrac.fill(0);
+    this.replacedFrac.fill(0);
     (this.physics as { noiseSigmaC: number }).noiseSigmaC = 0;
     try {
       return this.healthyReadingsAt(t);
     } finally {
       this.probeOffsetFrac.set(saveOff);
+      this.replacedFrac.set(saveNew);
       (this.physics as { noiseSigmaC: number }).noiseSigmaC = saveNoise;
     }
   }
@@ -577,6 +612,14 @@ export class UnitSimulation {
       faults.unshift({
         kind: 'wrong_swirl', unitId: id, at: isoTime(this.fromMs),
         params: { configured: cfg.swirl, true: ts },
+      });
+    }
+    for (let i = 0; i < this.m; i++) {
+      if (this.replacedAt[i] === Infinity) continue;
+      faults.push({
+        kind: 'probe_replaced', unitId: id, at: isoTime(this.replacedAt[i]), thermocouple: i + 1,
+        params: { offsetFracBefore: Math.round(this.probeOffsetFrac[i] * 1000) / 1000, offsetFracAfter: this.replacedFrac[i] },
+        thermocoupleAngleDeg: this.tcAngle[i],
       });
     }
     return {

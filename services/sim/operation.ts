@@ -23,7 +23,7 @@ export const SYNC_LOAD = 0.05;
 
 // Start-up values. Firing near 20 % speed, warm-up at about half the firing fuel flow for a
 // couple of minutes and starter drop-out near 70 % speed are common practice for an older
-// heavy-duty unit (no written source; shared/reference/README.md). The other durations and
+// heavy-duty unit (no written source; common practice). The other durations and
 // flows below are from memory, order of magnitude only.
 export const START_VALUES = {
   firingSpeedPct: [19, 21.5],

@@ -3,7 +3,7 @@
  * Each one shows one thing clearly (a healthy unit, a plugging nozzle, a flame loss, sensor
  * faults, start-ups, a wrong swirl curve), or the whole demo fleet.
  */
-import { DEFAULT_DEMO_END, DEMO_SITES, demoFleet } from './fleet.ts';
+import { DEFAULT_DEMO_END, DEMO_SITES, HARBOUR_POINT_TYPE, demoFleet } from './fleet.ts';
 import { toMs } from './generator.ts';
 import { DAY_MS, HOUR_MS } from './operation.ts';
 import type { SimUnit, TimeInput } from './types.ts';
@@ -29,13 +29,12 @@ interface ScenarioDef {
   build: (from: number, to: number, days: number) => SimUnit[];
 }
 
-/** A ten-chamber, eighteen-thermocouple unit, like the demo's Harbour Point units. */
-function tenCanUnit(id: string, name: string): SimUnit {
+/** An eleven-chamber, twenty-thermocouple unit of the demo's Harbour Point type. */
+function harbourPointUnit(id: string, name: string): SimUnit {
   return {
     config: {
-      id, name, site: 'Harbour Point', ratedPowerMw: 42,
-      thermocouples: { count: 18, firstAngleDeg: 10 }, chambers: { count: 10, firstAngleDeg: 0 },
-      swirl: { sense: 1, curve: [[0.2, 88], [0.6, 70], [1.0, 52]], startupDeg: 100 }, temperatureUnit: 'C', view: 'upstream',
+      id, name, site: 'Harbour Point', ...HARBOUR_POINT_TYPE,
+      swirl: { sense: 1, curve: [[0.2, 88], [0.6, 70], [1.0, 52]], startupDeg: 100 },
     },
     climate: DEMO_SITES['Harbour Point'],
     dispatch: { profile: 'base', tripsPerYear: 0 },
@@ -51,24 +50,32 @@ export const SCENARIOS: Record<string, ScenarioDef> = {
     build: (_from, to) => demoFleet(to),
   },
   healthy: {
-    description: 'one healthy ten-chamber unit at base load, no trips',
+    description: 'one healthy eleven-chamber unit at base load, no trips',
     defaultDays: 14,
-    build: () => [tenCanUnit('sim-healthy', 'Healthy unit')],
+    build: () => [harbourPointUnit('sim-healthy', 'Healthy unit')],
   },
   plugging: {
     description: 'a cycling unit whose chamber 4 fuel nozzle plugs over two weeks (15 % less fuel), starting on day 3',
     defaultDays: 21,
     build: (from) => [{
-      ...tenCanUnit('sim-plugging', 'Plugging unit'),
+      ...harbourPointUnit('sim-plugging', 'Plugging unit'),
       dispatch: { profile: 'cycling', tripsPerYear: 0 },
       faults: [{ kind: 'nozzle_plugging', chamber: 4, at: iso(from + 2 * DAY_MS), days: 14, depthPct: 15 }],
+    }],
+  },
+  'plugging-year': {
+    description: 'a base-load unit over a year at one ring a minute, whose chamber 4 fuel nozzle plugs\nover two weeks (25 % less fuel) in its last quarter',
+    defaultDays: 365,
+    build: (from, _to, days) => [{
+      ...harbourPointUnit('sim-year', 'Year unit'),
+      faults: [{ kind: 'nozzle_plugging', chamber: 4, at: iso(from + Math.round(days * 0.8) * DAY_MS), days: 14, depthPct: 25 }],
     }],
   },
   'flame-loss': {
     description: 'a base-load unit that loses the flame in chamber 6 for three hours at noon on day 2',
     defaultDays: 4,
     build: (from) => [{
-      ...tenCanUnit('sim-flame-loss', 'Flame loss unit'),
+      ...harbourPointUnit('sim-flame-loss', 'Flame loss unit'),
       faults: [{ kind: 'flame_loss', chamber: 6, at: iso(from + DAY_MS + 12 * HOUR_MS), durationH: 3 }],
     }],
   },
@@ -76,7 +83,7 @@ export const SCENARIOS: Record<string, ScenarioDef> = {
     description: 'a base-load unit whose chamber 7 runs hot (12 % more fuel) over five days from day 2',
     defaultDays: 10,
     build: (from) => [{
-      ...tenCanUnit('sim-hot', 'Hot chamber unit'),
+      ...harbourPointUnit('sim-hot', 'Hot chamber unit'),
       faults: [{ kind: 'hot_chamber', chamber: 7, at: iso(from + DAY_MS), excessPct: 12, rampDays: 5 }],
     }],
   },
@@ -84,7 +91,7 @@ export const SCENARIOS: Record<string, ScenarioDef> = {
     description: 'a base-load unit with four thermocouple faults: 3 opens on day 2, 8 drifts from day 3, 12 turns erratic on day 5, 15 freezes on day 7',
     defaultDays: 10,
     build: (from) => [{
-      ...tenCanUnit('sim-tc-faults', 'Thermocouple faults unit'),
+      ...harbourPointUnit('sim-tc-faults', 'Thermocouple faults unit'),
       faults: [
         { kind: 'tc_open', thermocouple: 3, at: iso(from + DAY_MS + 9 * HOUR_MS) },
         { kind: 'tc_drift', thermocouple: 8, at: iso(from + 2 * DAY_MS), ratePerDayC: -2 },
@@ -97,7 +104,7 @@ export const SCENARIOS: Record<string, ScenarioDef> = {
     description: 'a peaking unit with daily starts; on day 3 chamber 5 lights 40 s late, on day 6 chamber 8 never lights and the start trips',
     defaultDays: 10,
     build: (from) => [{
-      ...tenCanUnit('sim-starts', 'Peaking unit'),
+      ...harbourPointUnit('sim-starts', 'Peaking unit'),
       dispatch: { profile: 'peaking', tripsPerYear: 0, weekendRunChance: 1 },
       faults: [
         { kind: 'crossfire_failure', chamber: 5, at: iso(from + 2 * DAY_MS), lateLightS: 40 },
@@ -109,7 +116,7 @@ export const SCENARIOS: Record<string, ScenarioDef> = {
     description: 'a unit whose configured swirl curve is 25° short of the true one, with chamber 2 plugging so the cold plume lands where the configuration does not expect it',
     defaultDays: 21,
     build: (from) => {
-      const u = tenCanUnit('sim-wrong-swirl', 'Wrong swirl unit');
+      const u = harbourPointUnit('sim-wrong-swirl', 'Wrong swirl unit');
       return [{
         ...u,
         dispatch: { profile: 'cycling', tripsPerYear: 0 },

@@ -13,6 +13,8 @@ export interface SimUnitConfig extends UnitConfig {
   id: string;
   name: string;
   site: string;
+  /** Configuration family the unit is registered with (units of one design compared side by side). */
+  family?: string;
 }
 
 export interface SwirlTruth {
@@ -20,6 +22,19 @@ export interface SwirlTruth {
   curve: SwirlPoint[];
   /** Swirl while the shaft is below about 95 % speed (low flow during starts and stops). */
   startupDeg?: number;
+}
+
+/**
+ * A thermocouple replaced by a new one: from `at` on its fixed calibration offset steps by
+ * stepFrac times its IEC 60584-1 class 2 tolerance (|stepFrac| ≤ 1), in the direction given
+ * unless that would put the new probe outside class 2, then the other way. Not a fault: the unit
+ * stays healthy.
+ */
+export interface ProbeReplacement {
+  /** From 1. */
+  thermocouple: number;
+  at: TimeInput;
+  stepFrac: number;
 }
 
 /** The physical truth of a unit, which Cansight never sees directly. */
@@ -34,6 +49,15 @@ export interface UnitPhysics {
   fingerprintPct?: number[];
   /** Standard deviation of the fingerprint when drawn, %. */
   fingerprintSigmaPct: number;
+  /**
+   * Slow wander of each chamber's fingerprint about its fixed value (wear, fuel quality, valve
+   * settling), standard deviation, % (0 = fixed fingerprints).
+   */
+  fingerprintWanderPct: number;
+  /** Time scale of the fingerprint wander, days (smooth noise with knots this far apart). */
+  fingerprintWanderDays: number;
+  /** Thermocouples replaced during the window: from `at` on, the probe reads with a new calibration offset. */
+  probeReplacements: ProbeReplacement[];
   /** Per-position gas temperature asymmetry (struts, flow), standard deviation as a fraction of the combustion rise. */
   placementBiasFrac: number;
   /** Shift of the whole ring-mean curve, °C (machines differ). */
@@ -70,6 +94,8 @@ export type TimeInput = number | string | Date;
 export type FaultSpec =
   | { kind: 'tc_open'; thermocouple: number; at: TimeInput; until?: TimeInput; /** reading while open; null = not sent */ readsC?: number | null }
   | { kind: 'tc_drift'; thermocouple: number; at: TimeInput; until?: TimeInput; ratePerDayC: number }
+  /** The probe is replaced at `at`: the new one reads offsetC off the old (within its class tolerance). Not a fault of the machine; a maintenance event. */
+  | { kind: 'tc_replaced'; thermocouple: number; at: TimeInput; until?: TimeInput; offsetC: number }
   | { kind: 'tc_erratic'; thermocouple: number; at: TimeInput; until?: TimeInput; sigmaC: number }
   | { kind: 'tc_frozen'; thermocouple: number; at: TimeInput; until?: TimeInput }
   /** Fuel share of the chamber falls linearly from 100 % to (100 − depthPct) % over `days`, then stays. */
@@ -184,7 +210,7 @@ export interface StopTruth {
 
 /** A fault as it really happened, numbered from 1, with what the rings should show. */
 export interface FaultTruth {
-  kind: FaultSpec['kind'] | 'wrong_swirl';
+  kind: FaultSpec['kind'] | 'wrong_swirl' | 'probe_replaced';
   unitId: string;
   at: string;
   until?: string;

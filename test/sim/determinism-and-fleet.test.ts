@@ -92,7 +92,7 @@ describe('determinism', () => {
     const u = fleet[0];
     expect(() => simulateUnit(u, { from: T0, to: T0 - 1 })).toThrow(/must be after/);
     expect(() => simulateUnit(u, { from: 'yesterday', to: T0 })).toThrow(/not a time/);
-    expect(() => simulateUnit({ ...u, faults: [{ kind: 'flame_loss', chamber: 11, at: T0 }] }, { from: T0, to: T0 + DAY })).toThrow(/chamber 11 does not exist.*1–10/);
+    expect(() => simulateUnit({ ...u, faults: [{ kind: 'flame_loss', chamber: 12, at: T0 }] }, { from: T0, to: T0 + DAY })).toThrow(/chamber 12 does not exist.*1–11/);
     expect(() => simulateUnit({ ...u, faults: [{ kind: 'tc_open', thermocouple: 0, at: T0 }] }, { from: T0, to: T0 + DAY })).toThrow(/thermocouple 0/);
   });
 });

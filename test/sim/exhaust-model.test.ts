@@ -1,7 +1,7 @@
 /**
  * The ring mean's response to ambient and load: the constants in services/sim/exhaust-model.ts
  * are re-derived from the UCI gas turbine data set (Kaya, Tüfekci, Uzun 2019, CC BY 4.0;
- * shared/reference/uci-gas-turbine-co-nox-2011-2015.csv), the regression is checked against the
+ * test/reference/uci-gas-turbine-co-nox-2011-2015.csv), the regression is checked against the
  * NIST StRD "Norris" certified values, and simulated rings are checked to follow the fitted
  * sensitivities.
  */
@@ -12,7 +12,7 @@ import {
 import { simulateUnit } from '../../services/sim/generator.ts';
 import { DEMO_SITES } from '../../services/sim/fleet.ts';
 import type { SimUnit } from '../../services/sim/types.ts';
-import { referenceText } from './helpers.ts';
+import { referenceText } from '../helpers/reference.ts';
 
 describe('least squares used for the UCI fit', () => {
   it('reproduces NIST StRD Norris certified coefficients (B0 = −0.262323073774029, B1 = 1.00211681802045)', () => {

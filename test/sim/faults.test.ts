@@ -5,11 +5,10 @@
  */
 import { describe, expect, it } from 'vitest';
 import { thermocoupleAnglesDeg } from '../../services/core/geometry.ts';
-import { plumeAngleDeg } from '../../services/core/swirl.ts';
 import { simulateUnit } from '../../services/sim/generator.ts';
 import { buildScenario } from '../../services/sim/scenarios.ts';
 import type { RingBatch } from '../../services/sim/types.ts';
-import { arcDeg, coldCentreDeg, mean, std } from './helpers.ts';
+import { arcDeg, coldCentreDeg, mean, plumeByHandDeg, std } from './helpers.ts';
 
 function column(b: RingBatch, tc: number): Float64Array {
   const m = b.thermocoupleCount;
@@ -98,6 +97,10 @@ describe('chamber faults', () => {
     const twin = simulateUnit({ ...unit, faults: [] }, { from: s.from, to: s.to, seed: 8 });
     const f = sim.truth.faults[0];
     expect(f.kind).toBe('flame_loss');
+    // Chamber 6 of 11, first at 0°: 5 × 32.727° = 163.64°, plus the swirl (sense +1) off this curve.
+    expect(unit.config.chambers).toEqual({ count: 11, firstAngleDeg: 0 });
+    expect(unit.config.swirl.curve).toEqual([[0.2, 88], [0.6, 70], [1, 52]]);
+    expect(f.chamber).toBe(6);
     const at = Date.parse(f.at), until = Date.parse(f.until!);
     const b = sim.batch(), h = twin.batch();
     const m = b.thermocoupleCount;
@@ -120,7 +123,7 @@ describe('chamber faults', () => {
       expect(Math.abs(a - c) === 1 || Math.abs(a - c) === m - 1).toBe(true);
       const op = sim.operatingPointAt(t);
       const lc = op.loadMw / unit.config.ratedPowerMw / ((op.ambientKPa / 101.325) * Math.sqrt((op.ambientC + 273.15) / 288.15));
-      expect(arcDeg(coldCentreDeg(angles, dev), plumeAngleDeg(unit.config, f.chamber! - 1, lc))).toBeLessThan(5);
+      expect(arcDeg(coldCentreDeg(angles, dev), plumeByHandDeg(0, 11, 5, 1, [[0.2, 88], [0.6, 70], [1, 52]], lc))).toBeLessThan(5);
     }
     expect(inside).toBe(180); // three hours of rings at one a minute
   });
@@ -141,7 +144,11 @@ describe('chamber faults', () => {
     const late = peak(new Date(at + 6 * 86_400_000).toISOString());
     expect(late.max).toBeGreaterThan(10);
     expect(early.max).toBeLessThan(late.max * 0.4);
-    expect(arcDeg(late.centre, f.plumeAngleDegAtBase!.true)).toBeLessThan(8);
+    // Chamber 7 of 11, first at 0°, at base load (swirl 52°, sense +1): 6 × 360/11 + 52 = 248.36°.
+    expect(unit.config.chambers).toEqual({ count: 11, firstAngleDeg: 0 });
+    expect(unit.config.swirl.curve.at(-1)).toEqual([1, 52]);
+    expect(f.chamber).toBe(7);
+    expect(arcDeg(late.centre, 248.36)).toBeLessThan(8);
   });
 
   it('nozzle plugging: the plume deepens over the recorded days, then holds', () => {

@@ -1,11 +1,5 @@
 /** Small helpers shared by the simulator tests. */
-import { readFileSync } from 'node:fs';
-import { fileURLToPath } from 'node:url';
-
-/** Text of a file in the shared reference folder (../shared/reference beside the repository). */
-export function referenceText(name: string): string {
-  return readFileSync(fileURLToPath(new URL(`../../../shared/reference/${name}`, import.meta.url)), 'utf8');
-}
+export { plumeByHandDeg } from '../core/helpers.ts';
 
 export function mean(xs: ArrayLike<number>): number {
   let s = 0, n = 0;

@@ -1,16 +1,26 @@
 /**
- * The thermocouple model against IEC 60584-1 class 2, and the plume geometry against the forward
- * swirl model of services/core/swirl.ts (plume of chamber k at φₖ + s·ψ(L)).
+ * The thermocouple model against IEC 60584-1 class 2 (the tolerance written below, not the
+ * project's own function), and the plume geometry against the forward swirl model (plume of
+ * chamber k at φₖ + s·ψ(L)) worked out in the test.
  */
 import { describe, expect, it } from 'vitest';
 import { thermocoupleAnglesDeg } from '../../services/core/geometry.ts';
-import { plumeAngleDeg } from '../../services/core/swirl.ts';
-import { typeKToleranceC } from '../../services/core/temperature.ts';
 import { simulateUnit } from '../../services/sim/generator.ts';
 import { buildScenario } from '../../services/sim/scenarios.ts';
 import { demoFleet } from '../../services/sim/fleet.ts';
 import type { SimUnit } from '../../services/sim/types.ts';
-import { arcDeg, coldCentreDeg, std } from './helpers.ts';
+import { class2ByStandardC } from '../core/helpers.ts';
+import { arcDeg, coldCentreDeg, plumeByHandDeg, std } from './helpers.ts';
+
+/**
+ * IEC 60584-1 class 2 tolerance of a Type K thermocouple (class2ByStandardC: ±2.5 °C or
+ * ±0.0075·|t|, whichever is greater), which the standard gives from −40 to 1200 °C (from memory).
+ */
+function class2InRangeC(tC: number): number {
+  expect(tC).toBeGreaterThanOrEqual(-40);
+  expect(tC).toBeLessThanOrEqual(1200);
+  return class2ByStandardC(tC);
+}
 
 describe('thermocouple readings', () => {
   it('every reading of a healthy unit lies within IEC 60584-1 class 2 (±2.5 °C or ±0.0075·|t|) of the gas temperature at the probe, in steady running and in starts', () => {
@@ -25,7 +35,7 @@ describe('thermocouple readings', () => {
       const gas = sim.gasTemperaturesAt(b.tsMs[r])!;
       for (let i = 0; i < m; i++) {
         const e = b.exhaustC[r * m + i] - gas[i];
-        worstFrac = Math.max(worstFrac, Math.abs(e) / typeKToleranceC(gas[i], 2));
+        worstFrac = Math.max(worstFrac, Math.abs(e) / class2InRangeC(gas[i]));
         errs.push(e);
         checked++;
       }
@@ -75,11 +85,11 @@ describe('a plugging chamber’s plume lands where the forward swirl model says'
   const cases: { name: string; unit: SimUnit; chamber: number }[] = [];
   const fleet = demoFleet('2026-03-01T00:00:00Z');
   const hp2 = fleet.find((u) => u.config.id === 'hp-2')!;
-  cases.push({ name: 'ten chambers, sense +1 (hp-2, chamber 4)', unit: hp2, chamber: 4 });
+  cases.push({ name: 'eleven chambers, 20 thermocouples, sense +1 (hp-2, chamber 4)', unit: hp2, chamber: 4 });
   const kf1 = fleet.find((u) => u.config.id === 'kf-1')!;
-  cases.push({ name: 'fourteen chambers, sense −1 (kf-1, chamber 6)', unit: { ...kf1, faults: [{ kind: 'nozzle_plugging', chamber: 6, at: '2026-01-01T00:00:00Z', days: 10, depthPct: 15 }] }, chamber: 6 });
+  cases.push({ name: 'twelve chambers, 23 thermocouples, sense −1 (kf-1, chamber 6)', unit: { ...kf1, faults: [{ kind: 'nozzle_plugging', chamber: 6, at: '2026-01-01T00:00:00Z', days: 10, depthPct: 15 }] }, chamber: 6 });
   const mr2 = fleet.find((u) => u.config.id === 'mr-2')!;
-  cases.push({ name: 'eight chambers, sense +1 (mr-2, chamber 3)', unit: { ...mr2, faults: [{ kind: 'nozzle_plugging', chamber: 3, at: '2026-01-01T00:00:00Z', days: 10, depthPct: 15 }] }, chamber: 3 });
+  cases.push({ name: 'nine chambers, 17 thermocouples, sense +1 (mr-2, chamber 3)', unit: { ...mr2, faults: [{ kind: 'nozzle_plugging', chamber: 3, at: '2026-01-01T00:00:00Z', days: 10, depthPct: 15 }] }, chamber: 3 });
 
   for (const c of cases) {
     it(c.name, () => {
@@ -91,7 +101,8 @@ describe('a plugging chamber’s plume lands where the forward swirl model says'
         const { dev, op } = faultProfile(c.unit, at);
         if (op.segment !== 'run') continue;
         const lc = correctedLoad(op.loadMw, c.unit.config.ratedPowerMw, op.ambientC, op.ambientKPa);
-        const expected = plumeAngleDeg(c.unit.config, c.chamber - 1, lc);
+        const { chambers, swirl } = c.unit.config;
+        const expected = plumeByHandDeg(chambers.firstAngleDeg, chambers.count, c.chamber - 1, swirl.sense, swirl.curve as [number, number][], lc);
         const found = coldCentreDeg(angles, dev);
         expect(arcDeg(found, expected), `at ${at}, load ${lc.toFixed(2)}`).toBeLessThan(4);
         // And it is a real cold plume: several degrees deep.
@@ -110,8 +121,12 @@ describe('a plugging chamber’s plume lands where the forward swirl model says'
     const { dev, op } = faultProfile(unit, at);
     const lc = correctedLoad(op.loadMw, unit.config.ratedPowerMw, op.ambientC, op.ambientKPa);
     const found = coldCentreDeg(angles, dev);
-    const trueAngle = plumeAngleDeg({ chambers: unit.config.chambers, swirl: unit.physics!.trueSwirl! }, 1, lc);
-    const configured = plumeAngleDeg(unit.config, 1, lc);
+    // Chamber 2 of 11 (first at 0°, pitch 32.73°), sense +1: the true curve is the configured one plus 25°.
+    expect(unit.config.chambers).toEqual({ count: 11, firstAngleDeg: 0 });
+    expect(unit.config.swirl.curve).toEqual([[0.2, 88], [0.6, 70], [1, 52]]);
+    expect(unit.physics!.trueSwirl!.curve).toEqual([[0.2, 113], [0.6, 95], [1, 77]]);
+    const trueAngle = plumeByHandDeg(0, 11, 1, 1, [[0.2, 113], [0.6, 95], [1, 77]], lc);
+    const configured = plumeByHandDeg(0, 11, 1, 1, [[0.2, 88], [0.6, 70], [1, 52]], lc);
     expect(arcDeg(found, trueAngle)).toBeLessThan(4);
     expect(arcDeg(found, configured)).toBeGreaterThan(18);
   });

@@ -1,13 +1,12 @@
 /**
  * Start-ups: the recorded phase instants and the rings agree, and the sequence has the values of
- * common practice for an older heavy-duty unit (no written source; shared/reference/README.md):
+ * common practice for an older heavy-duty unit (no written source; common practice):
  * firing near 20 % speed, warm-up at about half the firing fuel flow for a couple of minutes,
  * starter drop-out near 70 % speed. A chamber that fails to crossfire leaves its sector cold
  * through warm-up; the start then trips or the chamber lights late, as recorded.
  */
 import { describe, expect, it } from 'vitest';
 import { thermocoupleAnglesDeg } from '../../services/core/geometry.ts';
-import { plumeAngleDeg } from '../../services/core/swirl.ts';
 import { simulateUnit } from '../../services/sim/generator.ts';
 import { buildScenario } from '../../services/sim/scenarios.ts';
 import { demoFleet } from '../../services/sim/fleet.ts';
@@ -125,14 +124,18 @@ describe('a chamber that fails to crossfire (scenario starts)', () => {
   });
 
   it('its sector stays cold through warm-up, at the chamber’s start-up plume angle, while a normal start is uniform', () => {
-    const startupCfg = { chambers: unit.config.chambers, swirl: { sense: unit.config.swirl.sense, curve: [[0, unit.config.swirl.startupDeg!]] as [number, number][] } };
+    // Below full speed the swirl is the start-up value, 100°, sense +1; 11 chambers from 0°:
+    // chamber 8 lands at 7 × 32.727° + 100° = 329.09°, chamber 5 at 4 × 32.727° + 100° = 230.91°.
+    expect(unit.config.chambers).toEqual({ count: 11, firstAngleDeg: 0 });
+    expect(unit.config.swirl.sense).toBe(1);
+    expect(unit.config.swirl.startupDeg).toBe(100);
     for (const sec of [25, 60, 90]) {
       const c = coldAt(never, sec);
-      expect(arcDeg(c.centre, plumeAngleDeg(startupCfg, 7, 0))).toBeLessThan(8);
+      expect(arcDeg(c.centre, 329.09)).toBeLessThan(8);
       expect(c.spread).toBeGreaterThan(3 * coldAt(normal, sec).spread);
     }
     // The late chamber is cold before it lights and the ring evens out after.
-    expect(arcDeg(coldAt(late, 25).centre, plumeAngleDeg(startupCfg, 4, 0))).toBeLessThan(8);
+    expect(arcDeg(coldAt(late, 25).centre, 230.91)).toBeLessThan(8);
     expect(coldAt(late, 25).spread).toBeGreaterThan(3 * coldAt(late, 80).spread);
   });
 

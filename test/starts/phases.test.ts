@@ -31,8 +31,8 @@ function run(name: string, unit: SimUnit, from: string | number, to: string | nu
 const scenario = buildScenario('starts');
 const cases: Case[] = [
   run('scenario starts', scenario.units[0], scenario.from, scenario.to, 21),
-  run('kf-2 (14 chambers, sense −1)', demoFleet().find((u) => u.config.id === 'kf-2')!, '2026-01-01T00:00:00Z', '2026-01-21T00:00:00Z', 3),
-  run('mr-1 (8 chambers)', demoFleet().find((u) => u.config.id === 'mr-1')!, '2026-01-01T00:00:00Z', '2026-01-21T00:00:00Z', 4),
+  run('kf-2 (12 chambers, sense −1)', demoFleet().find((u) => u.config.id === 'kf-2')!, '2026-01-01T00:00:00Z', '2026-01-21T00:00:00Z', 3),
+  run('mr-1 (9 chambers)', demoFleet().find((u) => u.config.id === 'mr-1')!, '2026-01-01T00:00:00Z', '2026-01-21T00:00:00Z', 4),
 ];
 
 const TOLERANCE_S: Record<StartPhase, number> = {

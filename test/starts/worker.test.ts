@@ -10,8 +10,8 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { XMLParser } from 'fast-xml-parser';
 import { defaultThresholds } from '../../services/core/findings.ts';
-import { detectStarts } from '../../services/core/starts.ts';
-import { ensureProgressRows } from '../../services/db/analysis.ts';
+import { detectStarts } from '../../services/core/start-detector.ts';
+import { ensureProgressRows } from '../../services/db/progress.ts';
 import { createLogger } from '../../services/db/logger.ts';
 import { createStartsRepository } from '../../services/db/starts.ts';
 import { buildScenario } from '../../services/sim/scenarios.ts';
@@ -139,7 +139,7 @@ describe('start routes', () => {
     const d = res.json();
     expect(d.phases.map((p: { phase: string }) => p.phase)).toEqual(['cranking', 'firing', 'flame_established', 'warm_up', 'acceleration', 'starter_disengaged', 'full_speed_no_load', 'synchronised', 'loading']);
     expect(d.crossfireCompleteS).toBeGreaterThan(30);
-    expect(d.lighting.chambers.length).toBe(10);
+    expect(d.lighting.chambers.length).toBe(unit.config.chambers.count);
     expect(d.lighting.lateChambers[0].chamber).toBe(5);
     expect(d.findings[0].kind).toBe('chamber_unlit');
     expect(d.findings[0].chamber).toBe(5);
@@ -164,7 +164,7 @@ describe('start routes', () => {
     expect(body).toContain('class="speed"');
     expect(body).toContain('class="fuel"');
     expect(body).toContain('class="spread"');
-    expect([...body.matchAll(/class="chamber(?: unlit)?" data-chamber="(\d+)"/g)].length).toBe(10);
+    expect([...body.matchAll(/class="chamber(?: unlit)?" data-chamber="(\d+)"/g)].length).toBe(unit.config.chambers.count);
     expect(body).toMatch(/class="chamber unlit" data-chamber="8"/);
   });
 });

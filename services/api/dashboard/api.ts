@@ -3,6 +3,7 @@
  * sessionStorage, so it is gone when the tab closes), and every refusal arrives as an ApiError
  * with the server's own sentence.
  */
+import type { StartCountersRecord, StartDetail as StoredStartDetail, StartSummary } from '../../db/starts.ts';
 
 const KEY_SLOT = 'cansight.key';
 const NAME_SLOT = 'cansight.name';
@@ -68,7 +69,7 @@ export type Grade = 'notice' | 'warning' | 'alarm' | 'critical';
 
 export interface Who {
   role: string;
-  prefix: string;
+  keyId: string;
   units: string[] | null;
   canAct: boolean;
 }
@@ -137,3 +138,16 @@ export interface ThermocoupleRow {
   invalidReasons: Record<string, number>;
   replace: boolean;
 }
+
+/** Starts as the /v1/units/:unitId/starts routes serve them: the read repository's shapes, without the trace. */
+export type { StartSummary } from '../../db/starts.ts';
+
+export interface StartList {
+  unitId: string;
+  from: string;
+  to: string;
+  counters: Omit<StartCountersRecord, 'unitId'>;
+  starts: StartSummary[];
+}
+
+export type StartDetail = Omit<StoredStartDetail, 'trace'> & { unitId: string; caution: string };

@@ -1,11 +1,13 @@
 /**
  * Entry point of the dashboard in the browser: the key form, a hash router (#/ fleet board,
- * #/unit/ID, #/unit/ID/chamber/K) and a gentle refresh every 30 seconds while the tab is
+ * #/unit/ID, #/unit/ID/chamber/K, #/unit/ID/start/START_ID) and a gentle refresh every 30 seconds while the tab is
  * visible. The key lives in sessionStorage only; "Forget key" removes it.
  */
 import { ApiError, getJson, storeKey, storedKey, type Who } from './api.ts';
 import { h } from './dom.ts';
-import { chamberView, fleetView, unitView, type ViewContext } from './views.ts';
+import { chamberView, fleetView, unitView } from './views.ts';
+import type { ViewContext } from './parts.ts';
+import { startView } from './starts.ts';
 
 const REFRESH_MS = 30_000;
 
@@ -19,6 +21,8 @@ const forget = document.getElementById('forget-key') as HTMLButtonElement;
 let who: Who | null = null;
 let timer: number | undefined;
 let rendering = false;
+/** A render asked for while one was drawing (a link followed, a refresh): drawn when it ends. */
+let again = false;
 
 function setCrumbs(items: Array<[string, string | null]>): void {
   crumbs.replaceChildren(...items.flatMap(([label, href], i) => [i ? h('span', { class: 'sep', 'aria-hidden': 'true' }, '›') : null, href ? h('a', { href }, label) : h('span', { 'aria-current': 'page' }, label)].filter((x): x is HTMLElement => x !== null)));
@@ -60,14 +64,18 @@ async function identify(): Promise<boolean> {
   form.hidden = true;
   whoEl.hidden = false;
   forget.hidden = false;
-  whoEl.textContent = `${who.role} key ${who.prefix}…${who.units ? ' · units ' + who.units.join(', ') : ''}`;
+  whoEl.textContent = `${who.role} key ${who.keyId}${who.units ? ' · units ' + who.units.join(', ') : ''}`;
   whoEl.dataset.role = who.role;
   return true;
 }
 
 async function render(): Promise<void> {
-  if (rendering) return;
+  if (rendering) {
+    again = true;
+    return;
+  }
   rendering = true;
+  again = false;
   try {
     if (!who && !(await identify())) return;
     const ctx: ViewContext = { who: who!, root: view, setCrumbs, refresh: () => void render() };
@@ -76,6 +84,7 @@ async function render(): Promise<void> {
     if (parts.length === 0) await fleetView(ctx);
     else if (parts[0] === 'unit' && parts.length === 2) await unitView(ctx, parts[1]);
     else if (parts[0] === 'unit' && parts.length === 4 && parts[2] === 'chamber' && /^\d+$/.test(parts[3])) await chamberView(ctx, parts[1], Number(parts[3]));
+    else if (parts[0] === 'unit' && parts.length === 4 && parts[2] === 'start') await startView(ctx, parts[1], parts[3]);
     else {
       setCrumbs([['Fleet board', '#/'], ['Not found', null]]);
       view.replaceChildren(h('p', { class: 'error' }, `Nothing here: ${path}.`), h('p', {}, h('a', { href: '#/' }, 'Back to the fleet board')));
@@ -90,6 +99,7 @@ async function render(): Promise<void> {
     }
   } finally {
     rendering = false;
+    if (again) void render();
   }
 }
 

@@ -1,55 +1,18 @@
 /**
- * The three pages of the dashboard: the fleet board (units ranked by worst active alert, with
+ * Three pages of the dashboard: the fleet board (units ranked by worst active alert, with
  * data freshness), a unit (ring plot, spread trend, chambers, thermocouples, active alerts with
- * acknowledge and shelve for operators) and a chamber (residual trend, evidence, alert history).
- * Each view fills the element it is given and returns nothing; errors go to the caller.
+ * acknowledge and shelve for operators, starts) and a chamber (residual trend, evidence, alert
+ * history, and a swirl what-if: the stored rings re-mapped with another curve); a start's page is in starts.ts. Each view fills the element it is given and returns
+ * nothing; errors go to the caller.
  */
-import { ApiError, getJson, getText, postJson, storeName, storedName, type Alert, type ChamberRow, type FleetRow, type ThermocoupleRow, type Who } from './api.ts';
-import { ago, dT, gradeBadge, h, pct, sdT, svgNode, when, words, type TempUnit } from './dom.ts';
-
-export interface ViewContext {
-  who: Who;
-  root: HTMLElement;
-  setCrumbs(items: Array<[string, string | null]>): void;
-  /** Re-renders the current page (after an action). */
-  refresh(): void;
-}
+import { getJson, postJson, storeName, storedName, type Alert, type ChamberRow, type FleetRow, type ThermocoupleRow, type Who } from './api.ts';
+import { ago, dT, gradeBadge, h, pct, sdT, when, words, type TempUnit } from './dom.ts';
+import { errorBox, figure, openWithKey, panel, picture, type UnitInfo, type ViewContext } from './parts.ts';
+import { startsPanel } from './starts.ts';
+import { ABOVE_LIMIT } from '../svg/draw.ts';
 
 const FRESHNESS: Record<FleetRow['freshness'], string> = { live: 'live', late: 'late', silent: 'silent', no_data: 'no data yet' };
 const DAY = 86_400_000;
-
-function panel(title: string, ...body: Array<Node | string | null>): HTMLElement {
-  return h('section', { class: 'panel' }, h('h2', {}, title), ...body);
-}
-
-function errorBox(err: unknown): HTMLElement {
-  const msg = err instanceof ApiError ? `${err.message} (${err.status})` : (err as Error).message;
-  return h('p', { class: 'error', role: 'alert' }, msg);
-}
-
-/** Loads a picture into a holder; the holder shows the server's sentence when it is refused. */
-async function picture(holder: HTMLElement, url: string): Promise<void> {
-  try {
-    holder.replaceChildren(svgNode(await getText(url)));
-  } catch (err) {
-    holder.replaceChildren(errorBox(err));
-  }
-}
-
-/** Opens a document fetched with the key (the printable review, a picture) in a new tab. */
-async function openWithKey(url: string, type: string): Promise<void> {
-  const win = window.open('', '_blank');
-  try {
-    const text = await getText(url, type);
-    const blob = new Blob([text], { type });
-    const href = URL.createObjectURL(blob);
-    if (win) win.location.href = href;
-    else window.location.href = href;
-  } catch (err) {
-    win?.close();
-    alert((err as Error).message);
-  }
-}
 
 function meter(value: number | null, limit: number | null): HTMLElement {
   const full = Math.max(limit !== null ? limit * 1.5 : 0, value !== null ? value * 1.05 : 0, 50);
@@ -120,6 +83,16 @@ export async function fleetView(ctx: ViewContext): Promise<void> {
 interface Status {
   ts: string | null;
   lastRingTs: string | null;
+  /** What is not judged yet and why (no baseline, drift not computed…). */
+  notJudged?: Array<{ part: string; reason: string }>;
+  /** How far the analysis has come with the rings stored. */
+  progress?: {
+    ringsStored: number;
+    ringsAnalysed: number;
+    ringsPending: number;
+    watermarkTs: string | null;
+    reanalysis?: { fromTs: string | null; toTs: string | null; ringsLeft: number; askedFromTs: string | null } | null;
+  };
   loadFraction?: number | null;
   swirlDeg?: number | null;
   spread?: number | null;
@@ -131,14 +104,42 @@ interface Status {
   [k: string]: unknown;
 }
 
-interface UnitInfo {
-  id: string;
-  name: string;
-  site: string;
-  temperatureUnit: TempUnit;
-  ratedPowerMw: number;
-  chambers: { count: number };
-  thermocouples: { count: number };
+/**
+ * A unit whose analysis is behind its stored rings (a history import, a gateway catching up):
+ * a progress bar with the rings analysed of those stored and the ring time reached; nothing
+ * once it has caught up.
+ */
+function catchingUp(s: Status, unitId: string): HTMLElement[] {
+  const p = s.progress;
+  const again = p?.reanalysis;
+  if (p && again && (again.toTs || again.askedFromTs)) {
+    // Rings judged again after a baseline or configuration change that takes effect in the past.
+    const from = again.fromTs ?? again.askedFromTs;
+    const span = again.fromTs && again.toTs ? Date.parse(again.toTs) - Date.parse(again.fromTs) : 0;
+    const done = span > 0 && p.watermarkTs ? Math.max(0, Math.min(span, Date.parse(p.watermarkTs) - Date.parse(again.fromTs as string))) : 0;
+    const share = span > 0 ? Math.floor((done / span) * 100) : 0;
+    return [
+      h(
+        'div',
+        { class: 'catching-up', id: 'catching-up' },
+        h('strong', {}, 'Judging the history again. '),
+        h('progress', { max: '100', value: String(share), 'aria-label': `re-analysis of ${unitId}: ${share} %` }),
+        h('p', {}, `A baseline or configuration version takes effect at ${from ? when(from) : 'an earlier time'}: the rings after it are judged again (${share} % of the ring time${again.toTs ? ` up to ${when(again.toTs)}` : ''}, ${again.ringsLeft.toLocaleString('en-GB')} rings left). Alerts, trends and drift from then on change as it goes.`),
+      ),
+    ];
+  }
+  if (!p || p.ringsPending <= 0 || p.ringsStored <= 0) return [];
+  const analysed = Math.min(p.ringsAnalysed, p.ringsStored);
+  const share = Math.floor((analysed / p.ringsStored) * 100);
+  return [
+    h(
+      'div',
+      { class: 'catching-up', id: 'catching-up' },
+      h('strong', {}, 'Catching up. '),
+      h('progress', { max: String(p.ringsStored), value: String(analysed), 'aria-label': `analysis of ${unitId}: ${share} %` }),
+      h('p', {}, `${analysed.toLocaleString('en-GB')} of ${p.ringsStored.toLocaleString('en-GB')} rings analysed (${share} %), ${p.ringsPending.toLocaleString('en-GB')} left${p.watermarkTs ? `; analysed up to ${when(p.watermarkTs)}` : ''}. Alerts, trends and drift fill in as the analysis goes on.`),
+    ),
+  ];
 }
 
 /** Reads a figure that may be named with or without a unit suffix. */
@@ -164,7 +165,7 @@ export async function unitView(ctx: ViewContext, unitId: string): Promise<void> 
   const figures = h(
     'dl',
     { class: 'figures' },
-    ...figure('Exhaust spread', dT(spread, u), limit !== null && spread !== null && spread > limit ? 'over' : ''),
+    ...figure('Exhaust spread', dT(spread, u), limit !== null && spread !== null && spread > limit ? 'over' : '', ABOVE_LIMIT),
     ...figure('Spread limit', dT(limit, u)),
     ...figure('Spread less coldest', dT(fig(s, 'spreadExcl1', 'spreadExcl1C', 'spreadExcl1DegC'), u)),
     ...figure('Spread less two coldest', dT(fig(s, 'spreadExcl2', 'spreadExcl2C', 'spreadExcl2DegC'), u)),
@@ -179,6 +180,7 @@ export async function unitView(ctx: ViewContext, unitId: string): Promise<void> 
   const alertsBox = h('div', { id: 'unit-alerts' }, h('p', { class: 'hint' }, 'Loading alerts…'));
   const chambersBox = h('div', { id: 'chamber-table' }, h('p', { class: 'hint' }, 'Loading chambers…'));
   const tcBox = h('div', { id: 'thermocouple-table' }, h('p', { class: 'hint' }, 'Loading thermocouples…'));
+  const startsBox = h('div', { id: 'unit-starts' }, h('p', { class: 'hint' }, 'Loading starts…'));
 
   ctx.root.replaceChildren(
     h(
@@ -189,10 +191,13 @@ export async function unitView(ctx: ViewContext, unitId: string): Promise<void> 
       h('p', { class: 'actions' }, h('button', { type: 'button', onclick: () => void openWithKey(`/v1/units/${enc}/review`, 'text/html') }, 'Pre-outage review (printable)'), ' ', h('button', { type: 'button', class: 'quiet', onclick: () => void openWithKey(`/v1/units/${enc}/review?format=csv`, 'text/csv') }, 'Review as CSV')),
     ),
     figures,
+    ...catchingUp(s, unit.id),
+    ...(s.notJudged?.length ? [h('div', { class: 'not-judged', id: 'not-judged' }, h('strong', {}, 'Not judged yet. '), ...s.notJudged.map((x) => h('p', {}, x.reason)))] : []),
     h('div', { class: 'two' }, panel('Exhaust ring now', ring), panel('Active alerts', alertsBox)),
-    panel('Exhaust spread (up to the last 7 days)', spreadTrend),
+    panel('Exhaust spread (the 7 days up to the last ring)', spreadTrend),
     panel('Chambers', chambersBox),
     panel('Thermocouples', tcBox),
+    panel('Starts (the 90 days up to the last ring)', startsBox),
   );
 
   await Promise.all([
@@ -201,11 +206,8 @@ export async function unitView(ctx: ViewContext, unitId: string): Promise<void> 
     alertsPanel(ctx, alertsBox, unitId, null),
     chamberTable(chambersBox, unitId, u),
     thermocoupleTable(tcBox, unitId, u),
+    startsPanel(startsBox, unitId, u),
   ]);
-}
-
-function figure(label: string, value: string, cls = ''): HTMLElement[] {
-  return [h('dt', {}, label), h('dd', { class: cls }, value)];
 }
 
 function tone(v: number | null): string | null {
@@ -364,6 +366,7 @@ export async function chamberView(ctx: ViewContext, unitId: string, chamber: num
   const evidence = h('div', { id: 'chamber-evidence' }, h('p', { class: 'hint' }, 'Loading…'));
   const active = h('div', {}, h('p', { class: 'hint' }, 'Loading…'));
   const history = h('div', { id: 'chamber-history' }, h('p', { class: 'hint' }, 'Loading…'));
+  const whatIf = whatIfPanel(unit, chamber);
   const span = h('select', { 'aria-label': 'trend window', id: 'trend-window' }, ...[[30, '30 days'], [90, '90 days'], [365, 'one year']].map(([d, l]) => h('option', { value: d }, String(l)))) as HTMLSelectElement;
   span.value = '90';
   const draw = () => {
@@ -378,6 +381,7 @@ export async function chamberView(ctx: ViewContext, unitId: string, chamber: num
     panel('Residual trend', h('p', { class: 'actions' }, h('label', {}, 'Window ', span)), trend),
     h('div', { class: 'two' }, panel('Evidence', evidence), panel('Active alerts on this chamber', active)),
     panel('Alert history', history),
+    panel('Swirl what-if', whatIf),
   );
   draw();
   await Promise.all([
@@ -424,4 +428,55 @@ export async function chamberView(ctx: ViewContext, unitId: string, chamber: num
       }
     })(),
   ]);
+}
+
+interface WhatIfChamber { chamber: number; deviationC: number | null; residualC: number | null; rank: number | null; sensitivityCPerDeg: number | null }
+interface WhatIfOutcome { coldestChamber: number | null; ringsUsed: number; chambers: WhatIfChamber[] }
+interface WhatIfReply { ringsInWindow: number; reference: { baselineVersion: number } | null; current: WhatIfOutcome; candidate: WhatIfOutcome; callMoves: boolean; advice: string }
+
+/**
+ * The swirl what-if of the chamber page: a candidate curve (the configured one to start with,
+ * as "load %: degrees" pairs) and a window of days up to the latest analysed ring; the stored
+ * rings are re-mapped on the server and the two rankings shown side by side, this chamber's row
+ * marked. Nothing is stored.
+ */
+function whatIfPanel(unit: UnitInfo, chamber: number): HTMLElement {
+  const u = unit.temperatureUnit;
+  const enc = encodeURIComponent(unit.id);
+  const curveText = (c: Array<[number, number]>) => c.map(([l, d]) => `${Math.round(l * 100)}: ${d}`).join(', ');
+  const curve = h('input', { id: 'what-if-curve', 'aria-label': 'candidate swirl curve', value: curveText(unit.swirl.curve), size: 40 }) as HTMLInputElement;
+  const days = h('select', { id: 'what-if-days', 'aria-label': 'what-if window' }, ...[[1, 'last day'], [7, 'last 7 days'], [31, 'last 31 days']].map(([d, l]) => h('option', { value: d }, String(l)))) as HTMLSelectElement;
+  days.value = '7';
+  const run = h('button', { type: 'button', id: 'what-if-run' }, 'Re-map the rings') as HTMLButtonElement;
+  const out = h('div', { id: 'what-if-result' }, h('p', { class: 'hint' }, `Give a candidate curve as corrected load %: swirl degrees pairs (the configured one is filled in), and see whether chamber ${chamber}'s standing depends on it. Nothing is stored.`));
+  run.addEventListener('click', async () => {
+    const pairs = curve.value.split(',').map((p) => p.split(':').map((x) => Number(x.trim())));
+    if (pairs.some((p) => p.length !== 2 || !p.every(Number.isFinite))) {
+      out.replaceChildren(h('p', { class: 'error' }, 'Write the curve as load %: degrees pairs separated by commas, e.g. 30: 92, 60: 74, 100: 55.'));
+      return;
+    }
+    run.disabled = true;
+    out.replaceChildren(h('p', { class: 'hint' }, 'Re-mapping the stored rings…'));
+    try {
+      const status = await getJson<{ ts: string | null }>(`/v1/units/${enc}/status`);
+      const to = status.ts ? Date.parse(status.ts) + 1000 : Date.now();
+      const body = { curve: pairs.map(([l, d]) => [l / 100, d]), from: new Date(to - Number(days.value) * DAY).toISOString(), to: new Date(to).toISOString() };
+      const r = await postJson<WhatIfReply>(`/v1/units/${enc}/swirl/what-if`, body);
+      const by = r.reference ? 'Residual' : 'Deviation';
+      const val = (c: WhatIfChamber) => sdT(r.reference ? c.residualC : c.deviationC, u);
+      const t = h('table', { class: 'grid' }, h('thead', {}, h('tr', {}, ...['Chamber', 'Rank now', `${by} now`, 'Rank with candidate', `${by.toLowerCase()} with candidate`.replace(/^./, (x) => x.toUpperCase()), 'Moves per degree of swirl'].map((x) => h('th', { scope: 'col' }, x)))));
+      const tb = h('tbody');
+      r.current.chambers.forEach((c, k) => {
+        const d = r.candidate.chambers[k];
+        tb.append(h('tr', { 'data-chamber': c.chamber, class: c.chamber === chamber ? 'this' : '' }, h('td', {}, `chamber ${c.chamber}`), h('td', {}, String(c.rank ?? '–')), h('td', {}, val(c)), h('td', {}, String(d.rank ?? '–')), h('td', {}, val(d)), h('td', {}, c.sensitivityCPerDeg === null ? '–' : `${sdT(c.sensitivityCPerDeg, u, 2)}/°`)));
+      });
+      t.append(tb);
+      out.replaceChildren(h('p', { class: r.callMoves ? 'over' : '' }, r.advice), t, h('p', { class: 'sub' }, `${r.current.ringsUsed} steady rings of ${r.ringsInWindow} re-mapped; ${r.reference ? `residuals against the baseline version ${r.reference.baselineVersion} reference window, mapped with the same curve` : 'no baseline yet: ranked by the deviation from the average chamber'}.`));
+    } catch (err) {
+      out.replaceChildren(errorBox(err));
+    } finally {
+      run.disabled = false;
+    }
+  });
+  return h('div', {}, h('p', { class: 'actions' }, h('label', {}, 'Curve ', curve), ' ', h('label', {}, 'Window ', days), ' ', run), out);
 }

@@ -11,9 +11,9 @@ import path from 'node:path';
 import type { FastifyInstance } from 'fastify';
 import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
 import { Type } from 'typebox';
-import { ErrorReply } from '../schemas.ts';
+import { ErrorReply } from '../../http/schemas.ts';
 import { ADVISORY_CAUTION } from '../../core/findings.ts';
-import { REVIEW_STYLE_HASH } from './review.ts';
+import { REVIEW_STYLE_HASH } from '../review/html.ts';
 
 const HERE = path.dirname(fileURLToPath(import.meta.url));
 const SOURCE = path.join(HERE, '..', 'dashboard');
@@ -141,7 +141,7 @@ export async function dashboardRoutes(base: FastifyInstance): Promise<void> {
       response: {
         200: Type.Object({
           role: Type.String(),
-          prefix: Type.String({ description: 'the first characters of the key, to tell keys apart' }),
+          keyId: Type.String({ description: 'the id the key is shown by ("key-" and 12 hex digits of its hash; never part of the key)' }),
           units: Type.Union([Type.Array(Type.String()), Type.Null()], { description: 'null: every unit' }),
           canAct: Type.Boolean({ description: 'may acknowledge and shelve alerts' }),
         }),
@@ -152,6 +152,6 @@ export async function dashboardRoutes(base: FastifyInstance): Promise<void> {
     config: { access: 'read' },
   }, async (request) => {
     const k = request.principal!;
-    return { role: k.role, prefix: k.prefix, units: k.unitIds, canAct: k.role === 'operator' || k.role === 'admin' };
+    return { role: k.role, keyId: k.keyId, units: k.unitIds, canAct: k.role === 'operator' || k.role === 'admin' };
   });
 }

@@ -1,8 +1,10 @@
 /**
  * Starts of a unit (read): GET /v1/units/:unitId/starts?from&to (newest first, with the unit's
- * start counters), GET /v1/units/:unitId/starts/:startId (phase timeline, crossfire completion
- * time, per-chamber lighting, findings) and GET /v1/units/:unitId/starts/:startId/start.svg
- * (speed, fuel, spread and chamber estimates against time, phases shaded). Everything here is
+ * start counters), GET /v1/units/:unitId/starts/trend.svg?from&to (crossfire completion time and
+ * spread at full speed no load, start by start), GET /v1/units/:unitId/starts/:startId (phase
+ * timeline, crossfire completion time, per-chamber lighting, findings) and
+ * GET /v1/units/:unitId/starts/:startId/start.svg (speed, fuel, spread and chamber estimates
+ * against time, phases shaded). Everything here is
  * written by the worker's start detector; SQL is in services/db/starts.ts.
  */
 import type { FastifyInstance } from 'fastify';
@@ -11,10 +13,11 @@ import { Type, type TSchema } from 'typebox';
 import { ADVISORY_CAUTION } from '../../core/findings.ts';
 import { START_OUTCOMES, START_PHASES, type StartOutcome, type StartPhase } from '../../core/starts.ts';
 import { createStartsRepository, type StartsRepository } from '../../db/starts.ts';
-import { notFound } from '../errors.ts';
+import { notFound } from '../../http/errors.ts';
 import { UnitId } from '../schemas.ts';
 import { startSvg } from '../svg/start.ts';
-import { Window, readErrors, timeWindow, unitOr404 } from './read-common.ts';
+import { startTrendSvg } from '../svg/start-trend.ts';
+import { Window, readErrors, readWindow, readsOf, timeWindow, unitOr404 } from './read-common.ts';
 
 const Nullable = <T extends TSchema>(t: T) => Type.Union([t, Type.Null()]);
 const Time = Type.String({ format: 'date-time' });
@@ -131,19 +134,48 @@ export async function startRoutes(base: FastifyInstance): Promise<void> {
   app.get('/v1/units/:unitId/starts', {
     schema: {
       tags: ['starts'],
-      summary: 'Starts of a unit with crank time in the window (default the last 90 days), newest first, and its start counters',
+      summary: 'Starts of a unit with crank time in the window (default the 90 days up to the unit\'s last ring), newest first, and its start counters',
       params: Type.Object({ unitId: UnitId }),
       querystring: Type.Object(Window),
       response: { 200: StartListReply, ...readErrors },
     },
     config: { access: 'read' },
-  }, async (request) => {
+  }, async (request, reply) => {
     const unit = await unitOr404(app, request.params.unitId);
-    const w = timeWindow(request.query, Date.now(), LIST_DEFAULT_DAYS, LIST_MAX_DAYS, 'The start list');
+    const w = await readWindow(readsOf(app), unit.id, request.query, LIST_DEFAULT_DAYS, LIST_MAX_DAYS, 'The start list', reply);
     const repo = startsOf(app);
     const [starts, counters] = await Promise.all([repo.list(unit.id, w.fromMs, w.toMs, LIST_LIMIT), repo.counters([unit.id])]);
     const { unitId: _u, ...c } = counters[0];
     return { unitId: unit.id, from: new Date(w.fromMs).toISOString(), to: new Date(w.toMs).toISOString(), counters: c, starts };
+  });
+
+  app.get('/v1/units/:unitId/starts/trend.svg', {
+    schema: {
+      tags: ['starts', 'pictures'],
+      summary: 'Start-by-start trend of the starts with crank time in the window (default the 90 days up to the unit\'s last ring): crossfire completion time and exhaust spread at full speed no load, oldest left, with their medians',
+      params: Type.Object({ unitId: UnitId }),
+      querystring: Type.Object(Window),
+      response: { 200: Type.String({ description: 'SVG document (image/svg+xml)' }), ...readErrors },
+    },
+    config: { access: 'read' },
+  }, async (request, reply) => {
+    const unit = await unitOr404(app, request.params.unitId);
+    const w = await readWindow(readsOf(app), unit.id, request.query, LIST_DEFAULT_DAYS, LIST_MAX_DAYS, 'The start trend', reply);
+    const starts = (await startsOf(app).list(unit.id, w.fromMs, w.toMs, LIST_LIMIT)).reverse();
+    const svg = startTrendSvg({
+      title: `${unit.name} (${unit.id}): start by start`,
+      subtitle: `${starts.length} start${starts.length === 1 ? '' : 's'} cranked ${new Date(w.fromMs).toISOString().slice(0, 10)} to ${new Date(w.toMs).toISOString().slice(0, 10)}`,
+      temperatureUnit: unit.config.temperatureUnit,
+      starts: starts.map((s) => ({
+        startId: s.startId,
+        crankMs: Date.parse(s.crankAt),
+        outcome: s.outcome,
+        crossfireCompleteS: s.crossfireCompleteS,
+        spreadFsnlC: s.spreadFsnlC,
+        chamberFinding: s.findingKinds.includes('chamber_unlit'),
+      })),
+    });
+    return reply.header('content-type', 'image/svg+xml; charset=utf-8').send(svg);
   });
 
   app.get('/v1/units/:unitId/starts/:startId', {

@@ -43,7 +43,7 @@ const PHASE_LABEL: Record<string, string> = {
   warm_up: 'warm-up',
   acceleration: 'accel',
   starter_disengaged: 'starter off',
-  full_speed_no_load: 'FSNL',
+  full_speed_no_load: 'full speed no load',
   synchronised: 'sync',
   loading: 'loading',
 };
