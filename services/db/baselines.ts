@@ -1,9 +1,14 @@
 /**
  * Baselines repository: versioned baselines against corrected load. Versions are numbered per
- * unit from 1 and never changed once written; the newest version is the one in force.
+ * unit from 1 and never changed once written. A version judges the rings from its effective
+ * time on (the end of its window): the one in force at a ring's time is the highest version
+ * whose effective time is at or before it. A version that takes effect before the unit's
+ * analysis watermark asks for the rings after that time to be judged again (requestReanalysis).
  */
 import type pg from 'pg';
-import { parseBaseline, type UnitBaseline } from '../core/baseline.ts';
+import { loadBinCount, parseBaseline, type BaselineOptions, type UnitBaseline, type WindowSupply } from '../core/baseline.ts';
+import { isoMicros } from './pg-binary.ts';
+import { requestReanalysis } from './progress.ts';
 
 type Queryable = pg.Pool | pg.ClientBase;
 
@@ -16,6 +21,8 @@ export interface BaselineRecord {
   fittedAt: Date;
   fittedBy: string;
   sampleCount: number;
+  /** The ring time from which this version judges the rings (its window's end). */
+  effectiveFrom: Date;
   baseline: UnitBaseline;
 }
 
@@ -29,6 +36,7 @@ function fromRow(r: Record<string, unknown>): BaselineRecord {
     fittedAt: r.fitted_at as Date,
     fittedBy: r.fitted_by as string,
     sampleCount: r.sample_count as number,
+    effectiveFrom: r.effective_from as Date,
     baseline: parseBaseline(JSON.stringify(r.body)),
   };
 }
@@ -39,11 +47,30 @@ export async function latestBaselineVersion(q: Queryable, unitId: string): Promi
   return rows[0].v as number;
 }
 
-/** The baseline in force (newest version), or null. */
+/** The newest baseline version (the one in force from the newest ring on), or null. */
 export async function latestBaseline(q: Queryable, unitId: string): Promise<BaselineRecord | null> {
   const { rows } = await q.query(`SELECT * FROM baselines WHERE unit_id = $1 ORDER BY version DESC LIMIT 1`, [unitId]);
   return rows.length ? fromRow(rows[0]) : null;
 }
+
+/** The baseline in force at ring time atMs: the highest version effective at or before it, or null. */
+export async function baselineInForce(q: Queryable, unitId: string, atMs: number): Promise<BaselineRecord | null> {
+  const { rows } = await q.query(`SELECT * FROM baselines WHERE unit_id = $1 AND effective_from <= $2 ORDER BY version DESC LIMIT 1`, [unitId, isoMicros(atMs)]);
+  return rows.length ? fromRow(rows[0]) : null;
+}
+
+/** Of versions oldest first, the one in force at atMs (see baselineInForce), and the next ring time at which another takes over (Infinity: none). */
+export function inForceAt<T extends { version: number; effectiveFrom: Date }>(versions: readonly T[], atMs: number): { current: T | null; untilMs: number } {
+  let current: T | null = null;
+  for (const v of versions) if (v.effectiveFrom.getTime() <= atMs && (!current || v.version > current.version)) current = v;
+  let untilMs = Infinity;
+  for (const v of versions) {
+    const e = v.effectiveFrom.getTime();
+    if (e > atMs && (!current || v.version > current.version)) untilMs = Math.min(untilMs, e);
+  }
+  return { current, untilMs };
+}
+
 
 /** One version, or null. */
 export async function baselineVersion(q: Queryable, unitId: string, version: number): Promise<BaselineRecord | null> {
@@ -73,23 +100,43 @@ export async function insertBaseline(client: pg.ClientBase, unitId: string, buil
   const version = (await latestBaselineVersion(client, unitId)) + 1;
   const b = build(version);
   const { rows } = await client.query(
-    `INSERT INTO baselines (unit_id, version, window_from, window_to, method, fitted_at, fitted_by, sample_count, body)
-     VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9) RETURNING *`,
+    `INSERT INTO baselines (unit_id, version, window_from, window_to, method, fitted_at, fitted_by, sample_count, body, effective_from)
+     VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $4) RETURNING *`,
     [unitId, version, b.window.from, b.window.to, b.method, b.fittedAt, b.fittedBy, b.sampleCount, JSON.stringify(b)],
   );
   if (requestId !== undefined) {
     await client.query(`UPDATE baseline_requests SET state = 'fitted', version = $2, finished_at = now() WHERE id = $1`, [requestId, version]);
   }
-  return fromRow(rows[0]);
+  const record = fromRow(rows[0]);
+  // Rings after the window already judged without this version are judged again with it.
+  await requestReanalysis(client, unitId, record.effectiveFrom.getTime());
+  return record;
 }
 
-/** Time of the first steady analysed ring of a unit (ms), or null. */
-export async function firstSteadyMs(q: Queryable, unitId: string): Promise<number | null> {
+/** Time of the first steady analysed ring of a unit (ms), up to ring time uptoMs (the watermark: analysis after it is not current), or null. */
+export async function firstSteadyMs(q: Queryable, unitId: string, uptoMs = Infinity): Promise<number | null> {
   const { rows } = await q.query(
-    `SELECT (extract(epoch from ts) * 1000)::float8 AS t FROM ring_analysis WHERE unit_id = $1 AND steady ORDER BY ts LIMIT 1`,
-    [unitId],
+    `SELECT (extract(epoch from ts) * 1000)::float8 AS t FROM ring_analysis WHERE unit_id = $1 AND steady AND ts <= $2::timestamptz ORDER BY ts LIMIT 1`,
+    [unitId, Number.isFinite(uptoMs) ? isoMicros(uptoMs) : 'infinity'],
   );
   return rows.length ? Number(rows[0].t) : null;
+}
+
+/**
+ * The steady analysed rings of a unit in [fromMs, toMs), and how many of them the fullest load
+ * bin holds, binned as fitBinnedBaseline bins a spread baseline (rings without a spread or a
+ * load left out of the bins): what a fit over that window would have, read without reading
+ * the rings.
+ */
+export async function steadyWindowSupply(q: Queryable, unitId: string, fromMs: number, toMs: number, options: BaselineOptions): Promise<WindowSupply> {
+  const { rows } = await q.query(
+    `SELECT coalesce(sum(n), 0)::int AS total, coalesce(max(n) FILTER (WHERE bin >= 0 AND bin < $6 AND binned), 0)::int AS fullest
+       FROM (SELECT floor((load_fraction::float8 - $4::float8) / $5::float8) AS bin, spread IS NOT NULL AS binned, count(*) AS n
+               FROM ring_analysis WHERE unit_id = $1 AND ts >= $2 AND ts < $3 AND steady
+              GROUP BY 1, 2) per_bin`,
+    [unitId, isoMicros(fromMs), isoMicros(toMs), options.loadMin, options.binWidth, loadBinCount(options)],
+  );
+  return { steadyRings: rows[0].total as number, fullestBin: rows[0].fullest as number };
 }
 
 export interface BaselineRequestRecord {
@@ -159,4 +206,46 @@ export async function finishBaselineRequest(q: Queryable, id: string, result: { 
 export async function analysisWatermarkMs(q: Queryable, unitId: string): Promise<number | null> {
   const { rows } = await q.query(`SELECT (extract(epoch from watermark_ts) * 1000)::float8 AS t FROM analysis_progress WHERE unit_id = $1`, [unitId]);
   return rows.length && rows[0].t !== null ? Number(rows[0].t) : null;
+}
+
+/**
+ * How a unit's baseline stands, for saying what is not judged yet: its newest version, the
+ * ring time of its first steady ring (read only while it has no baseline), and the oldest fit
+ * request still waiting. Columns of a query over `units u`; status-reads.ts reads them in its
+ * one statement, baselineOutlook below on its own.
+ */
+export const BASELINE_OUTLOOK_COLUMNS = `
+       (SELECT max(version) FROM baselines WHERE unit_id = u.id) AS bo_version,
+       (SELECT ts FROM ring_analysis WHERE unit_id = u.id AND steady AND NOT EXISTS (SELECT 1 FROM baselines WHERE unit_id = u.id) ORDER BY ts LIMIT 1) AS bo_first_steady,
+       (SELECT ARRAY[window_from, window_to] FROM baseline_requests WHERE unit_id = u.id AND state = 'pending' ORDER BY requested_at, id LIMIT 1) AS bo_pending`;
+
+export interface BaselineOutlook {
+  version: number | null;
+  firstSteadyMs: number | null;
+  pendingRequest: { fromMs: number; toMs: number } | null;
+}
+
+export function baselineOutlookOf(r: Record<string, unknown>): BaselineOutlook {
+  const pending = r.bo_pending as Date[] | null;
+  return {
+    version: r.bo_version === null || r.bo_version === undefined ? null : Number(r.bo_version),
+    firstSteadyMs: r.bo_first_steady instanceof Date ? r.bo_first_steady.getTime() : null,
+    pendingRequest: pending ? { fromMs: pending[0].getTime(), toMs: pending[1].getTime() } : null,
+  };
+}
+
+/** The baseline outlook and analysis progress of one unit (null when there is no such unit). */
+export async function baselineOutlook(q: Queryable, unitId: string): Promise<(BaselineOutlook & { ringsStored: number; ringsAnalysed: number; watermarkMs: number | null }) | null> {
+  const { rows } = await q.query(
+    `SELECT ${BASELINE_OUTLOOK_COLUMNS},
+            p.watermark_ts, coalesce(p.rings_analysed, 0) + coalesce(p.late_rings_analysed, 0) AS analysed,
+            (SELECT count(*) FROM rings WHERE unit_id = u.id AND ts > coalesce(p.watermark_ts, '-infinity'))::bigint AS pending
+       FROM units u LEFT JOIN analysis_progress p ON p.unit_id = u.id
+      WHERE u.id = $1`,
+    [unitId],
+  );
+  if (!rows.length) return null;
+  const r = rows[0];
+  const analysed = Number(r.analysed);
+  return { ...baselineOutlookOf(r), ringsAnalysed: analysed, ringsStored: analysed + Number(r.pending), watermarkMs: r.watermark_ts instanceof Date ? r.watermark_ts.getTime() : null };
 }

@@ -3,6 +3,7 @@
  * stops the process with a message that names the variable, what it holds and what it needs.
  * Every other module receives the typed Config object; nothing else reads process.env.
  */
+import { parseAllowList, type AllowList } from '../core/webhook-target.ts';
 
 export class ConfigError extends Error {
   constructor(public readonly variable: string, message: string) {
@@ -110,6 +111,10 @@ export interface Config {
   host: string;
   port: number;
   logLevel: 'fatal' | 'error' | 'warn' | 'info' | 'debug' | 'trace' | 'silent';
+  /** auto: readable on a terminal, JSON otherwise; json: always JSON; pretty: always readable lines. */
+  logFormat: 'auto' | 'json' | 'pretty';
+  /** Where `cansight start` on a terminal writes its log (unset: cansight.log beside the data directory). */
+  logFile: string | undefined;
   /** If set, an admin key with exactly this value exists after start. */
   adminKey: string | undefined;
   poolMax: number;
@@ -123,10 +128,21 @@ export interface Config {
     lineLimitBytes: number;
     /** Rings written per COPY; one request still commits once, whatever its size. */
     chunkRings: number;
+    /** Ring streams (CSV, NDJSON) open at once, in all and per key, and how long one may send nothing. */
+    streams: { maxStreams: number; maxStreamsPerKey: number; idleS: number };
     bounds: IngestBounds;
   };
   /** Requests per minute per key before 429. */
   rateLimitPerMinute: number;
+  /** Requests per minute per client address for requests without a proven key (no key, or an unknown one) before 429. */
+  rateLimitAnonPerMinute: number;
+  /** Buckets (keys and client addresses) the rate limit keeps; the least recently used goes first. */
+  rateLimitBuckets: number;
+  /**
+   * Which proxies to believe about the client address (X-Forwarded-For): false (the default,
+   * the socket's address is the client), true (every hop), a hop count, or addresses and CIDRs.
+   */
+  trustProxy: boolean | number | string[];
   /** The demo fleet of `cansight start`. */
   demo: {
     /** Days of history sent when the database holds none. */
@@ -148,6 +164,11 @@ export interface Config {
 /** The alert kinds: the core's finding kinds and unit_silent (no data). Env names use them upper-cased. */
 export const ALERT_KINDS = ['thermocouple_fault', 'coverage_degraded', 'spread_high', 'spread_jump', 'chamber_cold', 'chamber_hot', 'chamber_drift', 'unit_silent', 'chamber_unlit', 'start_failed'] as const;
 export type AlertKind = (typeof ALERT_KINDS)[number];
+/**
+ * Kinds a re-analysis of stored rings leaves as they are: the silent-unit check goes by the wall
+ * clock, and start findings come from the start record, which a new baseline does not change.
+ */
+export const KINDS_NOT_REANALYSED: readonly AlertKind[] = ['unit_silent', 'chamber_unlit', 'start_failed'];
 
 export interface AlertConfig {
   /** Default on-delay: a condition must hold this long (ring time) before an alert is raised, seconds. */
@@ -161,6 +182,12 @@ export interface AlertConfig {
   gradeDelayS: number;
   /** A gap between observations longer than this breaks an on-delay in progress, seconds. */
   maxGapS: number;
+  /**
+   * Rings analysed this long (wall clock) after their ring time, or as part of a backlog or a
+   * re-analysis, are history: alerts raised from them are recorded and announced to webhooks once
+   * the unit has caught up (if still active), seconds.
+   */
+  historyAgeS: number;
   /** Deadband on temperature levels, °C: an alert is held until the value falls this far below its raise level. */
   deadbandDegC: number;
   /** Deadband on the chamber z-level (residual over its uncertainty). */
@@ -189,6 +216,8 @@ export interface WebhookConfig {
   batchSize: number;
   /** Finished outbox rows (delivered, dead, cancelled) and their delivery log are kept this long, days. */
   keepDays: number;
+  /** Hosts and CIDRs that may receive webhooks although they are not public addresses (CANSIGHT_WEBHOOK_ALLOW_HOSTS). */
+  allowHosts: AllowList;
 }
 
 function perKind(env: Env, prefix: string, max: number): Partial<Record<AlertKind, number>> {
@@ -238,6 +267,8 @@ export interface WorkerConfig {
   driftReferenceDays: number;
   /** Smallest scale of a daily residual, °C. */
   driftSigmaFloorDegC: number;
+  /** Steady rings after a thermocouple replacement over which the new probe's offset is learnt. */
+  probeOffsetRings: number;
 }
 
 /** A node-cron pattern: five or six fields of digits, '*', '/', ',', '-' (names of days and months allowed). */
@@ -277,13 +308,37 @@ function workerConfig(env: Env): WorkerConfig {
     driftLookbackDays: integer(env, 'CANSIGHT_DRIFT_LOOKBACK_DAYS', 60, 3, 3650),
     driftReferenceDays: integer(env, 'CANSIGHT_DRIFT_REFERENCE_DAYS', 7, 2, 365),
     driftSigmaFloorDegC: decimal(env, 'CANSIGHT_DRIFT_SIGMA_FLOOR_C', 1, 0.01, 100),
+    probeOffsetRings: integer(env, 'CANSIGHT_PROBE_OFFSET_RINGS', 30, 1, 100_000),
   };
 }
 
+function allowList(env: Env, name: string): AllowList {
+  try {
+    return parseAllowList((env[name] ?? '').split(','));
+  } catch (err) {
+    throw new ConfigError(name, `${(err as Error).message}; give a comma-separated list of host names, addresses and CIDRs`);
+  }
+}
+
+function trustProxy(env: Env, name: string): boolean | number | string[] {
+  const v = (env[name] ?? '').trim();
+  if (v === '' || /^(false|off|no|0)$/i.test(v)) return false;
+  if (/^(true|on|yes)$/i.test(v)) return true;
+  if (/^\d+$/.test(v)) return Number(v);
+  const list = v.split(',').map((x) => x.trim()).filter(Boolean);
+  const bad = list.find((x) => !/^[0-9a-f:.]+(\/\d{1,3})?$/i.test(x) && !['loopback', 'linklocal', 'uniquelocal'].includes(x));
+  if (bad !== undefined) throw new ConfigError(name, `"${bad}" is not an address, a CIDR, loopback, linklocal or uniquelocal; give "true", a hop count, or a comma-separated list of those`);
+  return list;
+}
+
+/** Pool connections the ring streams leave, by default, for reads, the worker and the rest. */
+const POOL_RESERVE = 3;
+
 export function loadConfig(env: Env = process.env): Config {
+  const poolMax = integer(env, 'CANSIGHT_POOL_MAX', 10, 1, 500);
   const adminKey = optionalText(env, 'CANSIGHT_ADMIN_KEY');
-  if (adminKey !== undefined && adminKey.length < 16) {
-    throw new ConfigError('CANSIGHT_ADMIN_KEY', 'is shorter than 16 characters; use a long random value');
+  if (adminKey !== undefined && adminKey.length < 32) {
+    throw new ConfigError('CANSIGHT_ADMIN_KEY', `is ${adminKey.length} characters long; use a random value of at least 32 (e.g. openssl rand -base64 32)`);
   }
   return {
     databaseUrl: databaseUrl(env, 'DATABASE_URL'),
@@ -292,8 +347,10 @@ export function loadConfig(env: Env = process.env): Config {
     host: text(env, 'HOST', '127.0.0.1'),
     port: integer(env, 'PORT', 8080, 0, 65535),
     logLevel: oneOf(env, 'LOG_LEVEL', 'info', ['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent'] as const),
+    logFormat: oneOf(env, 'LOG_FORMAT', 'auto', ['auto', 'json', 'pretty'] as const),
+    logFile: optionalText(env, 'CANSIGHT_LOG_FILE'),
     adminKey,
-    poolMax: integer(env, 'CANSIGHT_POOL_MAX', 10, 1, 500),
+    poolMax,
     statementTimeoutMs: integer(env, 'CANSIGHT_STATEMENT_TIMEOUT_MS', 60_000, 100, 3_600_000),
     ingest: {
       futureToleranceS: integer(env, 'CANSIGHT_FUTURE_TOLERANCE_S', 300, 0, 86_400),
@@ -301,6 +358,12 @@ export function loadConfig(env: Env = process.env): Config {
       bodyLimitBytes: integer(env, 'CANSIGHT_BODY_LIMIT_BYTES', 8 * 1024 * 1024, 1024, 1024 * 1024 * 1024),
       lineLimitBytes: integer(env, 'CANSIGHT_LINE_LIMIT_BYTES', 64 * 1024, 256, 16 * 1024 * 1024),
       chunkRings: integer(env, 'CANSIGHT_INGEST_CHUNK_RINGS', 5_000, 1, 1_000_000),
+      streams: {
+        // Each open stream holds a pool connection; by default a few are left for everything else.
+        maxStreams: integer(env, 'CANSIGHT_INGEST_MAX_STREAMS', Math.max(1, poolMax - POOL_RESERVE), 1, 10_000),
+        maxStreamsPerKey: integer(env, 'CANSIGHT_INGEST_MAX_STREAMS_PER_KEY', 4, 1, 10_000),
+        idleS: integer(env, 'CANSIGHT_INGEST_STREAM_IDLE_S', 30, 1, 3600),
+      },
       bounds: {
         loadMw: range(env, 'CANSIGHT_BOUNDS_LOAD_MW', { min: -100, max: 2_000 }),
         ambientC: range(env, 'CANSIGHT_BOUNDS_AMBIENT_C', { min: -70, max: 70 }),
@@ -314,6 +377,9 @@ export function loadConfig(env: Env = process.env): Config {
       },
     },
     rateLimitPerMinute: integer(env, 'CANSIGHT_RATE_LIMIT_PER_MIN', 6000, 1, 10_000_000),
+    rateLimitAnonPerMinute: integer(env, 'CANSIGHT_RATE_LIMIT_ANON_PER_MIN', 600, 1, 10_000_000),
+    rateLimitBuckets: integer(env, 'CANSIGHT_RATE_LIMIT_BUCKETS', 10_000, 10, 10_000_000),
+    trustProxy: trustProxy(env, 'CANSIGHT_TRUST_PROXY'),
     demo: {
       historyDays: integer(env, 'CANSIGHT_DEMO_DAYS', 90, 1, 400),
       liveEveryS: integer(env, 'CANSIGHT_DEMO_LIVE_S', 5, 1, 3600),
@@ -327,6 +393,7 @@ export function loadConfig(env: Env = process.env): Config {
       offDelayByKindS: perKind(env, 'CANSIGHT_ALERT_OFF_DELAY_S', 86_400),
       gradeDelayS: integer(env, 'CANSIGHT_ALERT_GRADE_DELAY_S', 15, 0, 86_400),
       maxGapS: integer(env, 'CANSIGHT_ALERT_MAX_GAP_S', 600, 1, 7 * 86_400),
+      historyAgeS: integer(env, 'CANSIGHT_ALERT_HISTORY_AGE_S', 600, 1, 365 * 86_400),
       deadbandDegC: decimal(env, 'CANSIGHT_ALERT_DEADBAND_C', 3, 0, 50),
       deadbandZ: decimal(env, 'CANSIGHT_ALERT_DEADBAND_Z', 0.5, 0, 5),
       deadbandRatio: decimal(env, 'CANSIGHT_ALERT_DEADBAND_RATIO', 0.1, 0, 0.9),
@@ -342,6 +409,7 @@ export function loadConfig(env: Env = process.env): Config {
       pollMs: integer(env, 'CANSIGHT_WEBHOOK_POLL_MS', 1000, 10, 600_000),
       batchSize: integer(env, 'CANSIGHT_WEBHOOK_BATCH', 20, 1, 1000),
       keepDays: integer(env, 'CANSIGHT_WEBHOOK_KEEP_DAYS', 30, 1, 3650),
+      allowHosts: allowList(env, 'CANSIGHT_WEBHOOK_ALLOW_HOSTS'),
     },
     worker: workerConfig(env),
   };

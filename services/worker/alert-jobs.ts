@@ -6,7 +6,7 @@
  * unit_silent condition is changed under a transaction-level advisory lock.
  *
  * Webhook requests: POST, JSON body as stored in the outbox, with
- *   X-Cansight-Signature: sha256=<hex HMAC-SHA256 of the raw body, keyed with the subscription's secret>
+ *   X-Cansight-Signature: sha256=<hex HMAC-SHA256 of "<timestamp>.<raw body>", keyed with the subscription's secret>
  *   X-Cansight-Timestamp: <RFC 3339 time of this attempt>
  *   X-Cansight-Event, X-Cansight-Delivery (outbox row id: the same on every retry), X-Cansight-Attempt.
  * A 2xx answer is delivered; anything else, a timeout or no connection is retried after a delay
@@ -14,35 +14,20 @@
  * maxTries attempts have been made; then the row is dead-lettered. Every attempt is logged in
  * webhook_deliveries. Delivery is at least once: a receiver deduplicates on the body's eventId.
  */
-import { createHmac } from 'node:crypto';
+import { lookup as dnsLookup } from 'node:dns/promises';
+import { request as httpRequest, type RequestOptions } from 'node:http';
+import { request as httpsRequest } from 'node:https';
+import { checkTarget, type LookupAll } from '../core/webhook-target.ts';
 import type { Config } from '../db/config.ts';
 import type { Logger } from '../db/logger.ts';
 import { isDatabaseUnavailable, withTransaction, type Pool } from '../db/pool.ts';
-import {
-  claimDueDeliveries,
-  closeAlert,
-  expireDueShelves,
-  finishAttempt,
-  isShelved,
-  latestRing,
-  openAlertForUpdate,
-  pruneWebhookLog,
-  recordChange,
-  tryLockCondition,
-  unitFreshness,
-  type AlertChange,
-  type ClaimedDelivery,
-  type LatestRing,
-} from '../db/alerts.ts';
+import { claimDueDeliveries, finishAttempt, pruneWebhookLog, type ClaimedDelivery, SIGNATURE_HEADER, TIMESTAMP_HEADER, signBody } from '../db/webhooks.ts';
+import { closeAlert, expireDueShelves } from '../db/alert-actions.ts';
+import { isShelved, type AlertChange } from '../db/alert-rows.ts';
+import { latestRing, openAlertForUpdate, tryLockCondition, unitFreshness, type LatestRing } from '../db/alert-rule-state.ts';
+import { recordChange } from '../db/alert-changes.ts';
 import { loadAlertSettings, newAlert, type AlertSettings } from './alerts.ts';
 
-export const SIGNATURE_HEADER = 'x-cansight-signature';
-export const TIMESTAMP_HEADER = 'x-cansight-timestamp';
-
-/** The signature header value for a body: "sha256=" and the hex HMAC-SHA256 of the raw body. */
-export function signBody(secret: string, body: string): string {
-  return 'sha256=' + createHmac('sha256', secret).update(body, 'utf8').digest('hex');
-}
 
 /** Delay before the next try after failed attempt `attempt` (from 1), seconds: full jitter over the exponential cap. */
 export function backoffDelayS(attempt: number, w: Pick<Config['webhooks'], 'backoffBaseS' | 'backoffMaxS'>, random: () => number = Math.random): number {
@@ -61,39 +46,84 @@ interface JobOptions {
   logger?: Logger;
   /** For tests: the jitter's random source. */
   random?: () => number;
+  /** For tests: how webhook host names are resolved (node:dns by default). */
+  lookup?: LookupAll;
 }
 
+/**
+ * A short reason for a failed attempt: what kind of failure, never the raw socket error (whose
+ * codes and texts would tell an admin key holder about the networks the worker sits in).
+ */
 function describeError(err: unknown): string {
-  const e = err as { name?: string; message?: string; cause?: { code?: string; message?: string } };
-  if (e?.name === 'TimeoutError' || e?.name === 'AbortError') return 'timed out';
-  if (e?.cause?.code) return `${e.cause.code}${e.cause.message ? ': ' + e.cause.message : ''}`;
-  return e?.message ?? String(err);
+  const e = err as { name?: string; code?: string };
+  if (e?.name === 'TimeoutError' || e?.name === 'AbortError' || e?.code === 'ETIMEDOUT') return 'timed out';
+  switch (e?.code) {
+    case 'ECONNREFUSED':
+      return 'connection refused';
+    case 'ECONNRESET':
+    case 'EPIPE':
+      return 'connection reset';
+    case 'ENOTFOUND':
+    case 'EAI_AGAIN':
+      return 'name not found';
+    case 'EHOSTUNREACH':
+    case 'ENETUNREACH':
+      return 'address unreachable';
+  }
+  if (typeof e?.code === 'string' && (e.code.startsWith('ERR_TLS') || e.code.includes('CERT') || e.code.startsWith('ERR_SSL'))) return 'TLS handshake failed';
+  return 'could not connect';
 }
 
-async function attempt(d: ClaimedDelivery, now: Date, timeoutMs: number): Promise<{ statusCode: number | null; error: string | null; durationMs: number }> {
+/** Every address of a host name. */
+const lookupAll: LookupAll = (host) => dnsLookup(host, { all: true });
+
+/**
+ * One POST of a delivery. The target is checked again now (a name may have changed its
+ * addresses since the subscription) and the connection goes to the address that was checked:
+ * the socket's lookup answers with it, so no second resolution can send it elsewhere, while TLS
+ * still checks the certificate against the URL's host name. Redirects are not followed.
+ */
+async function attempt(d: ClaimedDelivery, now: Date, w: Pick<Config['webhooks'], 'timeoutMs' | 'allowHosts'>, lookup: LookupAll): Promise<{ statusCode: number | null; error: string | null; durationMs: number }> {
   const started = performance.now();
+  const done = (statusCode: number | null, error: string | null) => ({ statusCode, error, durationMs: performance.now() - started });
+  let url: URL;
   try {
-    const res = await fetch(d.url, {
+    url = new URL(d.url);
+  } catch {
+    return done(null, 'not an address');
+  }
+  const target = await checkTarget(url, lookup, w.allowHosts);
+  if (!target.ok) return done(null, target.unresolved ? 'name not found' : `refused: ${target.reason}`);
+  const pinned = ((_host: string, opts: { all?: boolean }, cb: (err: Error | null, address: string | Array<{ address: string; family: number }>, family?: number) => void) => {
+    if (opts?.all) cb(null, [{ address: target.address, family: target.family }]);
+    else cb(null, target.address, target.family);
+  }) as unknown as RequestOptions['lookup'];
+  const send = url.protocol === 'https:' ? httpsRequest : httpRequest;
+  return new Promise((resolve) => {
+    const req = send(url, {
       method: 'POST',
-      redirect: 'manual',
-      signal: AbortSignal.timeout(timeoutMs),
+      lookup: pinned,
+      signal: AbortSignal.timeout(w.timeoutMs),
       headers: {
         'content-type': 'application/json',
+        'content-length': Buffer.byteLength(d.body),
         'user-agent': 'cansight-webhook/1',
-        [SIGNATURE_HEADER]: signBody(d.secret, d.body),
+        [SIGNATURE_HEADER]: signBody(d.secret, now.toISOString(), d.body),
         [TIMESTAMP_HEADER]: now.toISOString(),
         'x-cansight-event': d.event,
         'x-cansight-delivery': d.outboxId,
         'x-cansight-attempt': String(d.attempt),
       },
-      body: d.body,
+    }, (res) => {
+      res.resume();
+      const status = res.statusCode ?? 0;
+      const ok = status >= 200 && status < 300;
+      res.on('end', () => resolve(done(status, ok ? null : `HTTP ${status}`)));
+      res.on('error', () => resolve(done(status, ok ? null : `HTTP ${status}`)));
     });
-    await res.body?.cancel().catch(() => undefined);
-    const ok = res.status >= 200 && res.status < 300;
-    return { statusCode: res.status, error: ok ? null : `HTTP ${res.status}`, durationMs: performance.now() - started };
-  } catch (err) {
-    return { statusCode: null, error: describeError(err), durationMs: performance.now() - started };
-  }
+    req.on('error', (err) => resolve(done(null, describeError(err))));
+    req.end(d.body);
+  });
 }
 
 /**
@@ -107,7 +137,7 @@ export async function deliverDueWebhooks(pool: Pool, now: Date, settings: Pick<A
   const out: DeliveryOutcome = { attempted: claimed.length, delivered: 0, retried: 0, dead: 0 };
   await Promise.all(
     claimed.map(async (d) => {
-      const r = await attempt(d, now, w.timeoutMs);
+      const r = await attempt(d, now, w, opts.lookup ?? lookupAll);
       const delivered = r.error === null;
       const outcome = delivered ? 'delivered' : d.attempt >= w.maxTries ? 'dead' : 'retry';
       const next = outcome === 'retry' ? new Date(now.getTime() + backoffDelayS(d.attempt, w, opts.random) * 1000) : null;

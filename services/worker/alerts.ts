@@ -1,7 +1,7 @@
 /**
  * The alert rules: turns the core's findings, ring by ring, into alerts with the ISA-18.2 /
  * IEC 62682 life cycle. Runs inside the caller's transaction and never begins or commits one;
- * all SQL is in services/db/alerts.ts.
+ * all SQL is in the alert files of services/db (alert-*.ts, webhooks.ts).
  *
  * Life of an alert (all durations in ring time, i.e. the observations' timestamps, so a
  * backfill gives the same alerts as live operation):
@@ -27,33 +27,25 @@
  *   normal and been acknowledged ("returned to normal unacknowledged" stays listed). If its
  *   condition comes back while it is open and returned to normal, the same alert becomes
  *   active again ("reactivated", after the on-delay); otherwise a new alert is raised.
- * - Shelving (by a person, until a time, with a reason; services/db/alerts.ts) does not stop the
+ * - Shelving (by a person, until a time, with a reason; services/db/alert-actions.ts) does not stop the
  *   rules: a shelved alert still changes grade and returns to normal, but those changes send no
- *   webhook until the shelf ends.
+ *   webhook until the shelf ends. A rise to alarm or critical ends the shelf (an "unshelved"
+ *   history row saying why) and is announced.
  * - Late observations. Observations at or before the unit's alert watermark (the latest ring
  *   time already applied) are ignored, so a late ring or a re-run range moves nothing twice.
  * - unit_silent alerts are owned by the silent-unit check (alert-jobs.ts), not by these rules.
  */
 import { gradeRank, GRADES, type Finding, type Grade, type Thresholds } from '../core/findings.ts';
 import { ALERT_KINDS, type AlertConfig, type AlertKind, type Config } from '../db/config.ts';
-import {
-  closeAlert,
-  isShelved,
-  loadOpenRuleAlertsForUpdate,
-  loadPending,
-  lockAlertUnitState,
-  recordChange,
-  saveAlert,
-  savePending,
-  setAlertWatermark,
-  type AlertChange,
-  type AlertRow,
-  type ChangeInput,
-  type PendingCondition,
-  type Queryable,
-} from '../db/alerts.ts';
+import { closeAlert } from '../db/alert-actions.ts';
+import { isShelved, type AlertChange, type AlertRow, type ChangeInput, type Queryable } from '../db/alert-rows.ts';
+import { loadOpenRuleAlertsForUpdate, loadPending, lockAlertUnitState, savePending, setAlertWatermark, type PendingCondition } from '../db/alert-rule-state.ts';
+import { recordChange, saveAlert } from '../db/alert-changes.ts';
 
-export type { AlertChange } from '../db/alerts.ts';
+export type { AlertChange } from '../db/alert-rows.ts';
+
+/** The grade from which an escalation takes a shelved alert off its shelf. */
+const UNSHELVE_AT: Grade = 'alarm';
 
 /**
  * The alert rules' settings: the configuration's (services/db/config.ts AlertConfig), with the
@@ -75,7 +67,7 @@ export type AlertSettings = Omit<AlertConfig, 'onDelayS' | 'offDelayS' | 'onDela
 const KIND_DEFAULTS: Partial<Record<AlertKind, { onDelayS: number; offDelayS: number }>> = {
   spread_jump: { onDelayS: 0, offDelayS: 600 },
   unit_silent: { onDelayS: 0, offDelayS: 0 },
-  // Start findings are held by the start recorder until a later start clears them (services/db/starts.ts).
+  // Start findings are held by the start recorder until a later start clears them (services/worker/starts.ts).
   chamber_unlit: { onDelayS: 0, offDelayS: 0 },
   start_failed: { onDelayS: 0, offDelayS: 0 },
 };
@@ -187,8 +179,8 @@ export function describe(a: AlertRow, f: AlertSubject): void {
   a.baselineVersion = f.baselineVersion;
 }
 
-/** A new active alert (not yet stored) for condition `key`, raised at `at`. */
-export function newAlert(unitId: string, key: string, f: AlertSubject, grade: Grade, at: Date): AlertRow {
+/** A new active alert (not yet stored) for condition `key`, raised at `at`; `fromHistory`: raised while analysing history. */
+export function newAlert(unitId: string, key: string, f: AlertSubject, grade: Grade, at: Date, fromHistory = false): AlertRow {
   const a: AlertRow = {
     id: '',
     unitId,
@@ -221,6 +213,8 @@ export function newAlert(unitId: string, key: string, f: AlertSubject, grade: Gr
     absentSince: null,
     pendingGrade: null,
     pendingGradeSince: null,
+    foundInHistory: fromHistory,
+    historyAnnounced: false,
   };
   describe(a, f);
   return a;
@@ -235,6 +229,14 @@ export interface AlertObservation {
   hold: Finding[];
 }
 
+/** How a batch of observations is applied. */
+export interface ApplyOptions {
+  /** The observations are history (a backlog, an import, a re-analysis): alerts raised are marked found in history. */
+  history?: boolean;
+  /** Kinds left as they are: their findings are ignored, their pending conditions and open alerts untouched (a re-analysis leaves start findings and the silent-unit check alone). */
+  leaveKinds?: readonly string[];
+}
+
 /**
  * Applies a unit's observations, in time order, to its alerts, inside the caller's transaction.
  * Every state change writes the alert row, one history row and the outbox rows in that
@@ -247,18 +249,22 @@ export async function applyAlertObservations(
   observations: ReadonlyArray<AlertObservation>,
   settings: AlertSettings,
   after?: { idle: boolean },
+  opts: ApplyOptions = {},
 ): Promise<AlertChange[]> {
   if (observations.length === 0) return [];
   const watermark = await lockAlertUnitState(client, unitId);
+  const leave = new Set(opts.leaveKinds ?? []);
+  const kept = (f: Finding) => !leave.has(f.kind);
   const fresh = observations
     .filter((o) => watermark === null || o.ts.getTime() > watermark.getTime())
+    .map((o) => (leave.size ? { ts: o.ts, raise: o.raise.filter(kept), hold: o.hold.filter(kept) } : o))
     .sort((x, y) => x.ts.getTime() - y.ts.getTime());
   if (fresh.length === 0) return [];
 
   const pending = new Map<string, PendingCondition>();
-  for (const p of await loadPending(client, unitId)) pending.set(p.conditionKey, p);
+  for (const p of await loadPending(client, unitId)) if (!leave.has(p.kind)) pending.set(p.conditionKey, p);
   const open = new Map<string, AlertRow>();
-  for (const a of await loadOpenRuleAlertsForUpdate(client, unitId)) open.set(a.conditionKey, a);
+  for (const a of await loadOpenRuleAlertsForUpdate(client, unitId)) if (!leave.has(a.kind)) open.set(a.conditionKey, a);
   const pendingTouched = new Set<string>();
   const alertsTouched = new Set<AlertRow>();
   const changes: AlertChange[] = [];
@@ -338,7 +344,7 @@ export async function applyAlertObservations(
         changes.push(await recordChange(client, a, { action: 'reactivated', at: o.ts, fromGrade: from, details, notify: notify(a) }, false));
         alertsTouched.delete(a);
       } else {
-        const created = newAlert(unitId, k, f, p.grade, o.ts);
+        const created = newAlert(unitId, k, f, p.grade, o.ts, opts.history === true);
         changes.push(await recordChange(client, created, { action: 'raised', at: o.ts, details }, true));
         open.set(k, created);
       }
@@ -361,6 +367,14 @@ export async function applyAlertObservations(
         const change = considerGrade(a, r ? r.grade : null, h.grade, o.ts, gradeDelayMs, notify(a));
         if (change) {
           describeLatest(a);
+          if (change.action === 'escalated' && change.notify === false && gradeRank(a.grade) >= gradeRank(UNSHELVE_AT)) {
+            // Shelving (ISA-18.2) suppresses the alarm as it was when it was shelved; a rise to
+            // alarm or critical is news, so the shelf ends (recorded) and the rise is announced.
+            const until = a.shelvedUntil!.toISOString();
+            a.shelvedUntil = null;
+            changes.push(await recordChange(client, a, { action: 'unshelved', at: o.ts, fromGrade: change.fromGrade, details: { until, cause: 'escalated while shelved', toGrade: a.grade }, notify: false }, false));
+            change.notify = true;
+          }
           changes.push(await recordChange(client, a, change, false));
           alertsTouched.delete(a);
         }

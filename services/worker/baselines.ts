@@ -1,26 +1,22 @@
 /**
- * Fitting baselines: on request over a window a person chooses (POST /v1/units/:unitId/baselines),
- * and automatically once a unit without a baseline has `baselineAutoDays` of steady data (the
+ * Fitting baselines: the requests people make over a window they choose (POST
+ * /v1/units/:unitId/baselines records one), once analysis has passed the window, and
+ * automatically once a unit without a baseline has `baselineAutoDays` of steady data (the
  * window is the first that many days from its first steady ring). Only steady rings enter;
  * load bins with fewer than `baselineMinBinCount` rings are "no baseline here". Each fit is a
  * new version; nothing already analysed is changed.
  */
-import { defaultBaselineOptions, fitUnitBaseline, type BaselineOptions, type BaselineSample } from '../core/baseline.ts';
+import { baselineOptionsFor, baselineWindowProblem, fitUnitBaseline, type BaselineSample } from '../core/baseline.ts';
 import type { WorkerConfig } from '../db/config.ts';
 import { countSteady, readBaselineSamples } from '../db/analysis.ts';
-import { dueBaselineRequests, finishBaselineRequest, insertBaseline, latestBaselineVersion, type BaselineRecord } from '../db/baselines.ts';
+import { baselineInForce, dueBaselineRequests, finishBaselineRequest, insertBaseline, type BaselineRecord } from '../db/baselines.ts';
 import type { Logger } from '../db/logger.ts';
 import { withTransaction, type Pool } from '../db/pool.ts';
-import { isoMicros } from '../db/pg-binary.ts';
 
 /** Most steady rings read for one fit; beyond it an even sample of them is taken. */
 export const MAX_FIT_SAMPLES = 200_000;
 
 export class BaselineFitError extends Error {}
-
-export function baselineOptions(settings: Pick<WorkerConfig, 'baselineBinWidth' | 'baselineMinBinCount'>): BaselineOptions {
-  return { ...defaultBaselineOptions, binWidth: settings.baselineBinWidth, minCount: settings.baselineMinBinCount };
-}
 
 /**
  * Fits and stores a new baseline version from the steady rings in [fromMs, toMs). Throws a
@@ -36,9 +32,9 @@ export async function fitBaseline(
   opts: { nowMs?: number; requestId?: string } = {},
 ): Promise<BaselineRecord | null> {
   const nowMs = opts.nowMs ?? Date.now();
-  const options = baselineOptions(settings);
+  const options = baselineOptionsFor(settings);
   const total = await countSteady(pool, unitId, fromMs, toMs);
-  if (total === 0) throw new BaselineFitError(`unit ${unitId} has no steady analysed rings between ${isoMicros(fromMs)} and ${isoMicros(toMs)}`);
+  if (total === 0) throw new BaselineFitError(baselineWindowProblem(unitId, fromMs, toMs, { steadyRings: 0, fullestBin: 0 }, options.minCount) as string);
   const sampleEvery = Math.ceil(total / MAX_FIT_SAMPLES);
   const client = await pool.connect();
   let samples: BaselineSample[];
@@ -59,23 +55,20 @@ export async function fitBaseline(
   }
   const window = { from: new Date(fromMs).toISOString(), to: new Date(toMs).toISOString() };
   const probe = fitUnitBaseline(samples, { version: 0, window, fittedAt: new Date(nowMs).toISOString(), fittedBy: by }, options);
-  const fitted = probe.spread.bins.filter((b) => b.median !== null);
-  if (fitted.length === 0) {
-    const best = Math.max(0, ...probe.spread.bins.map((b) => b.count));
-    throw new BaselineFitError(
-      `no load bin between ${window.from} and ${window.to} holds ${options.minCount} steady rings (the fullest holds ${best}); choose a longer window`,
-    );
-  }
+  const fullestBin = Math.max(0, ...probe.spread.bins.map((b) => b.count));
+  const problem = baselineWindowProblem(unitId, fromMs, toMs, { steadyRings: total, fullestBin }, options.minCount);
+  if (problem) throw new BaselineFitError(problem);
   return withTransaction(pool, (c) => insertBaseline(c, unitId, (version) => ({ ...probe, version }), opts.requestId));
 }
 
 /**
  * The automatic first fit over [fromMs, toMs) (from the unit's first steady ring, at least
- * baselineAutoDays long). Null when the unit already has a baseline or no load bin holds
- * enough steady rings yet.
+ * baselineAutoDays long), in force from toMs. Null when a baseline is already in force at toMs
+ * or no load bin holds enough steady rings yet. (A unit whose earlier history arrived after its
+ * first fit has none in force at the ring time its first fit falls due now: it gets one there.)
  */
 export async function fitFirstBaseline(pool: Pool, unitId: string, fromMs: number, toMs: number, settings: WorkerConfig): Promise<BaselineRecord | null> {
-  if ((await latestBaselineVersion(pool, unitId)) > 0) return null;
+  if (await baselineInForce(pool, unitId, toMs)) return null;
   try {
     return await fitBaseline(pool, unitId, fromMs, toMs, 'automatic', settings);
   } catch (err) {

@@ -11,11 +11,13 @@
  * The state is recomputed from the stored daily aggregates each run, so a run repeated gives
  * the same state; it names the baseline version it was computed against.
  */
+import { probeReplacements } from '../db/events.ts';
 import { createCusum, createEwma, driftRate, removeCommonMode, robustSigma, updateCusum, updateEwma } from '../core/drift.ts';
 import type { Config } from '../db/config.ts';
 import type { Logger } from '../db/logger.ts';
 import type { Pool } from '../db/pool.ts';
-import { latestBaseline } from '../db/baselines.ts';
+import type { Queryable } from '../db/alert-rows.ts';
+import { baselineInForce } from '../db/baselines.ts';
 import { computeDailyResiduals, readDailyResiduals, readDriftStates, writeDriftStates, type DriftStateRecord, type DriftSubject } from '../db/drift.ts';
 
 const DAY_MS = 86_400_000;
@@ -32,10 +34,15 @@ export interface DriftRunResult {
   states: number;
 }
 
-/** Runs the drift computation for one unit as of asOfMs (days before asOfMs's UTC day are complete). */
-export async function runDriftForUnit(pool: Pool, config: Config, unitId: string, asOfMs = Date.now()): Promise<DriftRunResult> {
+/**
+ * Runs the drift computation for one unit as of asOfMs (days before asOfMs's UTC day are
+ * complete), on a pool or on the connection of a transaction in progress (the pipeline's, when
+ * a unit's analysis enters a new ring-time day).
+ */
+export async function runDriftForUnit(pool: Pool | Queryable, config: Config, unitId: string, asOfMs = Date.now()): Promise<DriftRunResult> {
   const s = config.worker;
-  const base = await latestBaseline(pool, unitId);
+  // The baseline in force at the day reached: a history judged again meets each day as live did.
+  const base = await baselineInForce(pool, unitId, asOfMs);
   if (!base) return { unitId, baselineVersion: null, days: 0, states: 0 };
   const version = base.version;
   const previous = (await readDriftStates(pool, unitId)).filter((x) => x.baselineVersion === version);
@@ -48,6 +55,10 @@ export async function runDriftForUnit(pool: Pool, config: Config, unitId: string
   const daily = await readDailyResiduals(pool, unitId, version, firstDay, toDay);
   const days = [...new Set(daily.map((d) => d.day))].sort();
   const states: DriftStateRecord[] = [];
+  // A replaced thermocouple's drift restarts: only the days after its latest replacement count
+  // (the day of the work holds both probes).
+  const restartAfterDay = new Map<number, string>();
+  for (const r of await probeReplacements(pool, unitId)) restartAfterDay.set(r.thermocouple, dayText(r.atMs));
   for (const subject of ['chamber', 'thermocouple'] as DriftSubject[]) {
     const rows = daily.filter((d) => d.subject === subject);
     if (rows.length === 0) continue;
@@ -69,6 +80,8 @@ export async function runDriftForUnit(pool: Pool, config: Config, unitId: string
         const v = cm[j][i];
         if (Number.isFinite(v)) series.push({ day: days[j], t: dayMs(days[j]) / 1000, v, fired: firedAt[j] });
       }
+      const after = subject === 'thermocouple' ? restartAfterDay.get(i) : undefined;
+      if (after !== undefined) series.splice(0, series.length, ...series.filter((p) => p.day > after));
       if (series.length === 0) continue;
       const ref = series.slice(0, s.driftReferenceDays);
       const sigma = Math.max(s.driftSigmaFloorDegC, ref.length >= 2 ? robustSigma(ref.map((p) => p.v)) || 0 : 0);

@@ -2,7 +2,8 @@
  * The worker process: claims a fair share of the fleet's units (leases renewed while it runs,
  * given back when it stops or holds more than its share), analyses each held unit's new rings
  * as soon as ingest says they are committed (LISTEN) and on a node-cron sweep as a safety net,
- * finds and analyses late rings, fits a unit's first baseline when it has enough steady data,
+ * finds and analyses late rings, fits a unit's first baseline when it has enough steady data
+ * and the baselines people request (at each sweep, once analysis has passed their window),
  * computes drift nightly, and runs the alert jobs (webhook delivery, shelf expiry, silent units).
  */
 import { hostname } from 'node:os';
@@ -12,8 +13,8 @@ import { defaultThresholds } from '../core/findings.ts';
 import type { Config } from '../db/config.ts';
 import type { Logger } from '../db/logger.ts';
 import type { Pool } from '../db/pool.ts';
-import { ensureProgressRows, findLateRings, receivedHorizon, setLateCheckedFrom } from '../db/analysis.ts';
-import { claimUnits, ensureClaimRows, heartbeat, liveWorkerCount, releaseUnits, renewLeases, retireWorker } from '../db/claims.ts';
+import { ensureProgressRows, findLateRings, receivedHorizon, requestReanalysis, setLateCheckedFrom } from '../db/progress.ts';
+import { claimUnits, ensureClaimRows, heartbeat, liveWorkerCount, releaseUnits, renewLeases, retireWorker, workersOnHost } from '../db/claims.ts';
 import { startAlertJobs } from './alert-jobs.ts';
 import { deadbandThresholds, loadAlertSettings } from './alerts.ts';
 import { fitDueRequests, fitFirstBaseline } from './baselines.ts';
@@ -60,6 +61,8 @@ const RESERVED_CONNECTIONS = 4;
 export async function startWorker(deps: WorkerDeps): Promise<Worker> {
   const { pool, config } = deps;
   const s = config.worker;
+  /** Late rings of a unit found at once from which it is judged again in order (below: their spans only). */
+  const LATE_REWIND_RINGS = 1000;
   const workerId = deps.workerId ?? s.id ?? `${hostname()}-${process.pid}-${randomBytes(3).toString('hex')}`;
   const log = deps.logger.child({ component: 'worker', workerId });
   const alertSettings = loadAlertSettings(config);
@@ -146,6 +149,16 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
     const work = late.get(unitId);
     if (!work) return true;
     late.delete(unitId);
+    if (work.times.length >= LATE_REWIND_RINGS) {
+      // History arriving out of order (months of an import in any order): judge everything from
+      // the earliest late ring on again, in ring order, alerts and drift with it, as if it had
+      // come in order. A few late rings are analysed in their span (below); alerts stay as they are.
+      const from = Math.min(...work.times);
+      await requestReanalysis(pool, unitId, from);
+      await setLateCheckedFrom(pool, [unitId], work.horizon);
+      log.info({ unitId, from: new Date(from).toISOString(), rings: work.times.length }, 'history arrived out of order; judging it again from its earliest ring');
+      return true;
+    }
     for (const [a, b] of spansOf(work.times)) {
       const n = await reanalyseSpan(pc, unitId, a, b, 'late');
       if (n === null) {
@@ -177,7 +190,7 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
           backlog.add(unitId);
           dirty.add(unitId);
         } else backlog.delete(unitId);
-        await firstBaselineWhenDue(unitId);
+        await firstBaselineWhenDue(unitId, r.status === 'more');
       }
     } catch (err) {
       for (const unitId of unitIds) {
@@ -198,18 +211,22 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
   }
 
   /** Fits a unit's first baseline once analysis has passed its first baselineAutoDays of steady data. */
-  async function firstBaselineWhenDue(unitId: string): Promise<void> {
+  async function firstBaselineWhenDue(unitId: string, catchingUp = false): Promise<void> {
     const mem = memoryOf(pc, unitId);
     if (mem.baselineVersion !== null || mem.watermarkMs === null || !Number.isFinite(mem.watermarkMs)) return;
     if (mem.autoFitDueMs === null) {
-      if (Date.now() - mem.lastAutoFitCheck < AUTO_FIT_CHECK_MS) return;
+      // Live, the first steady ring is looked for now and then; a unit catching up looks after
+      // every batch (a day of rings), so the fit comes at its ring time, not days later.
+      if (!catchingUp && Date.now() - mem.lastAutoFitCheck < AUTO_FIT_CHECK_MS) return;
       mem.lastAutoFitCheck = Date.now();
-      const first = await firstSteadyMs(pool, unitId);
+      const first = await firstSteadyMs(pool, unitId, mem.watermarkMs);
       if (first === null) return;
       mem.autoFitFromMs = first;
       mem.autoFitDueMs = first + s.baselineAutoDays * 86_400_000;
     }
-    if (mem.watermarkMs < mem.autoFitDueMs) return;
+    // Due once analysis has passed the due ring time, or has stopped just before it (pipeline.ts).
+    if (mem.watermarkMs < mem.autoFitDueMs && !mem.autoFitDueReached) return;
+    mem.autoFitDueReached = false;
     const fitted = await fitFirstBaseline(pool, unitId, mem.autoFitFromMs as number, mem.autoFitDueMs, s);
     invalidateInputs(pc, unitId);
     if (fitted) log.info({ unitId, baselineVersion: fitted.version, from: fitted.windowFrom, to: fitted.windowTo }, 'first baseline fitted');
@@ -217,8 +234,24 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
     else mem.autoFitDueMs = mem.watermarkMs + 86_400_000;
   }
 
+  /**
+   * Workers of this host whose process has died (a kill -9, a crash, a power cut before a
+   * restart) hold their units until their leases lapse; this host can tell they are gone, so
+   * their units are freed at once and a restarted process takes them back in its first claim
+   * cycle. A process that still answers is left to its lease (it may be alive, or its pid
+   * reused: then the lease decides, as for a worker on another host).
+   */
+  async function retireDeadSiblings(): Promise<void> {
+    for (const w of await workersOnHost(pool, hostname(), workerId)) {
+      if (processAlive(w.pid)) continue;
+      await retireWorker(pool, w.workerId);
+      log.info({ deadWorkerId: w.workerId, pid: w.pid }, 'a worker of this host has died; its units are free at once');
+    }
+  }
+
   async function claimCycleOnce(): Promise<void> {
     await heartbeat(pool, workerId, hostname(), process.pid);
+    await retireDeadSiblings();
     const all = await ensureClaimRows(pool);
     const held = new Set(await renewLeases(pool, workerId, s.leaseS));
     for (const id of [...owned]) {
@@ -363,7 +396,18 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
       const held = rollupsDue(pc, true).filter((id) => owned.has(id));
       if (held.length) await analyseGroup(pc, held, { writeRollups: new Set(held) }).catch((err) => log.warn({ err: (err as Error).message, units: held.length }, 'could not write held rollups'));
       await retireWorker(pool, workerId).catch((err) => log.warn({ err: (err as Error).message }, 'could not give units back'));
-      log.info('worker stopped');
+      log.info({ unitsWithHeldRollups: held }, 'worker stopped');
     },
   };
+}
+
+/** True while a process with this pid exists on this host (one owned by another user counts). */
+function processAlive(pid: number): boolean {
+  if (!Number.isInteger(pid) || pid <= 0) return true;
+  try {
+    process.kill(pid, 0);
+    return true;
+  } catch (err) {
+    return (err as NodeJS.ErrnoException).code === 'EPERM';
+  }
 }

@@ -7,47 +7,30 @@
  * watermark, without analysis) are analysed by re-running their span with the memory of the
  * rings before it, and the hours and days they touch are recomputed from stored analysis.
  */
+import { probeReplacements, recordLearntOffset } from '../db/events.ts';
+import type { LearntOffset } from './probe-offsets.ts';
 import type { Thresholds } from '../core/findings.ts';
 import type { Config } from '../db/config.ts';
 import type { Logger } from '../db/logger.ts';
 import { withTransaction, type Pool } from '../db/pool.ts';
-import {
-  advanceProgress,
-  AnalysisEncoder,
-  countUnanalysed,
-  deleteRollupBuckets,
-  lastSteadySpread,
-  lockOwnedUnit,
-  lockProgress,
-  logBatch,
-  readAnalysis,
-  readLastAnalysis,
-  readRingsAfterMany,
-  readRollupBucketsMany,
-  recordInOrderBatches,
-  writeRollupsMany,
-  insertRollupsMany,
-  firstAnalysisAfter,
-  setRollupsTo,
-  lockUnits,
-  type RingColumns,
-  type RollupRow,
-  readRingsBetween,
-  readRollupBuckets,
-  readRollups,
-  writeAnalysis,
-  writeRollups,
-  type UnitProgress,
-} from '../db/analysis.ts';
-import { latestBaseline } from '../db/baselines.ts';
-import { driftStateStamp, readDriftStates } from '../db/drift.ts';
+import { advanceProgress, countUnanalysed, lockOwnedUnit, lockProgress, logBatch, recordInOrderBatches, setRollupsTo, lockUnits, type UnitProgress } from '../db/progress.ts';
+import { AnalysisEncoder, writeAnalysis } from '../db/analysis-write.ts';
+import { deleteRollupBuckets, readRollupBucketsMany, writeRollupsMany, insertRollupsMany, type RollupRow, readRollupBuckets, readRollups, writeRollups } from '../db/rollups.ts';
+import { lastSteadySpread, readAnalysis, readLastAnalysis, firstAnalysisAfter } from '../db/analysis.ts';
+import { readRingsAfterMany, type RingColumns, readRingsBetween } from '../db/analysis-rings.ts';
+import { inForceAt, listBaselines, type BaselineRecord } from '../db/baselines.ts';
+import { driftStateStamp, readDriftStates, type DriftStateRecord } from '../db/drift.ts';
 import { unitVersions } from '../db/units.ts';
-import type { Queryable } from '../db/alerts.ts';
+import type { Queryable } from '../db/alert-rows.ts';
 import type { ChamberDriftInput } from '../core/findings.ts';
 import { applyAlertObservations, type AlertSettings } from './alerts.ts';
-import { recordStartsForBatch, type BatchObservation } from '../db/starts.ts';
+import { announceHistoricAlerts } from '../db/alert-changes.ts';
+import { finishReanalysisReached, rewindTo, takeAlertMark } from '../db/reanalysis.ts';
+import { KINDS_NOT_REANALYSED } from '../db/config.ts';
+import { recordStartsForGroup, type BatchObservation } from './starts.ts';
 import { bucketOf, DAY_MS, daysFromHours, HOUR_MS, RollupAccumulator, ROLLUP_METRICS } from './rollups.ts';
 import { UnitAnalyser, type AnalyserInputs } from './unit-analyser.ts';
+import { runDriftForUnit } from './drift.ts';
 
 export interface PipelineContext {
   pool: Pool;
@@ -75,13 +58,19 @@ export interface UnitMemory {
   watermarkMs: number | null;
   inputs: AnalyserInputs | null;
   inputsLoadedAt: number;
+  /** The unit's baseline versions, oldest first, as last read. */
+  baselines: BaselineRecord[] | null;
+  /** The version the inputs hold (in force at the rings being analysed; -1: not chosen yet). */
   baselineVersion: number | null;
   driftStamp: number | null;
+  driftStates: DriftStateRecord[] | null;
   /** Wall time of the last look for the first steady ring (units without a baseline). */
   lastAutoFitCheck: number;
   /** When the first baseline is due (first steady ring + baselineAutoDays), once known. */
   autoFitDueMs: number | null;
   autoFitFromMs: number | null;
+  /** The last batch stopped at autoFitDueMs: the first baseline is fitted before any later ring. */
+  autoFitDueReached: boolean;
   /**
    * Rollups of in-order rings analysed and committed but not written yet: exactly the rings after
    * the stored rollups_to up to the watermark. Kept only together with the analyser's memory.
@@ -89,6 +78,11 @@ export interface UnitMemory {
   rollups: RollupAccumulator | null;
   /** Wall time the held rollups were started. */
   rollupsSince: number;
+  /**
+   * History was analysed (or, for a memory just made, may have been) since alerts found in
+   * history were last announced: the next batch that is not history announces them.
+   */
+  historySinceAnnounced: boolean;
 }
 
 /** Longest a unit's rollups are held in memory before they are written. */
@@ -107,7 +101,7 @@ export function memoryOf(pc: PipelineContext, unitId: string): UnitMemory {
   if (!m)
     pc.memory.set(
       unitId,
-      (m = { analyser: null, watermarkMs: null, inputs: null, inputsLoadedAt: 0, baselineVersion: null, driftStamp: null, lastAutoFitCheck: 0, autoFitDueMs: null, autoFitFromMs: null, rollups: null, rollupsSince: 0 }),
+      (m = { analyser: null, watermarkMs: null, inputs: null, inputsLoadedAt: 0, baselines: null, baselineVersion: null, driftStamp: null, driftStates: null, lastAutoFitCheck: 0, autoFitDueMs: null, autoFitFromMs: null, autoFitDueReached: false, rollups: null, rollupsSince: 0, historySinceAnnounced: true }),
     );
   return m;
 }
@@ -119,46 +113,44 @@ export function invalidateInputs(pc: PipelineContext, unitId: string): void {
 }
 
 /**
- * The unit's analysis inputs, re-read at most every INPUTS_TTL_MS, on the round's own
- * connection `q`: a round holds its transaction's connection, so taking more from the pool
- * would let rounds in flight wait for each other's connections (and the nightly drift's) until
- * the pool's wait times out.
+ * The unit's analysis inputs for rings from ring time atMs on, with the baseline in force then
+ * (and its drift states), and the ring time at which another baseline takes over (untilMs: a
+ * batch stops before it). Configuration versions and baselines are re-read at most every
+ * INPUTS_TTL_MS, on the round's own connection `q`: a round holds its transaction's connection,
+ * so taking more from the pool would let rounds in flight wait for each other's connections
+ * (and the nightly drift's) until the pool's wait times out.
  */
-async function loadInputs(pc: PipelineContext, q: Queryable, unitId: string, mem: UnitMemory): Promise<AnalyserInputs> {
+async function loadInputs(pc: PipelineContext, q: Queryable, unitId: string, mem: UnitMemory, atMs: number): Promise<{ inputs: AnalyserInputs; untilMs: number }> {
   const now = Date.now();
-  if (mem.inputs && now - mem.inputsLoadedAt < INPUTS_TTL_MS) return mem.inputs;
-  // Spread the re-reads of a fleet's units over time rather than all at once.
-  const jitter = Math.floor(Math.random() * (INPUTS_TTL_MS / 3));
-  const versions = await unitVersions(q, unitId);
-  const baseline = await latestBaseline(q, unitId);
-  const stamp = await driftStateStamp(q, unitId);
-  if (versions.length === 0) throw new Error(`unit ${unitId} has no configuration`);
-  let driftChambers: (ChamberDriftInput | null)[] = mem.inputs?.driftChambers ?? [];
-  let driftThermocouples: (ChamberDriftInput | null)[] = mem.inputs?.driftThermocouples ?? [];
-  if (stamp !== mem.driftStamp || (baseline?.version ?? null) !== mem.baselineVersion) {
-    const states = baseline ? (await readDriftStates(q, unitId)).filter((s) => s.baselineVersion === baseline.version) : [];
-    driftChambers = [];
-    driftThermocouples = [];
-    for (const s of states) (s.subject === 'chamber' ? driftChambers : driftThermocouples)[s.idx - 1] = { cusum: s.cusum, rate: s.rate };
+  if (!mem.inputs || !mem.baselines || now - mem.inputsLoadedAt >= INPUTS_TTL_MS) {
+    // Spread the re-reads of a fleet's units over time rather than all at once.
+    const jitter = Math.floor(Math.random() * (INPUTS_TTL_MS / 3));
+    const versions = await unitVersions(q, unitId);
+    if (versions.length === 0) throw new Error(`unit ${unitId} has no configuration`);
+    mem.baselines = (await listBaselines(q, unitId)).reverse();
+    const stamp = await driftStateStamp(q, unitId);
+    const replacements = await probeReplacements(q, unitId);
+    if (stamp !== mem.driftStamp) mem.driftStates = null;
+    mem.driftStamp = stamp;
+    mem.inputs = { unitId, versions, baseline: null, driftChambers: [], driftThermocouples: [], raise: pc.raise, hold: pc.hold, settings: pc.config.worker, replacements };
+    mem.baselineVersion = -1;
+    mem.inputsLoadedAt = now - jitter;
+  }
+  const { current, untilMs } = inForceAt(mem.baselines, atMs);
+  const version = current?.version ?? null;
+  if (version !== mem.baselineVersion) {
+    // Read once a baseline is in force (none is read, or kept as empty, before): drift states belong to one.
+    if (current) mem.driftStates ??= await readDriftStates(q, unitId);
+    const driftChambers: (ChamberDriftInput | null)[] = [];
+    const driftThermocouples: (ChamberDriftInput | null)[] = [];
+    for (const s of current ? (mem.driftStates ?? []) : []) if (s.baselineVersion === version) (s.subject === 'chamber' ? driftChambers : driftThermocouples)[s.idx - 1] = { cusum: s.cusum, rate: s.rate };
     for (let k = 0; k < driftChambers.length; k++) driftChambers[k] ??= null;
     for (let i = 0; i < driftThermocouples.length; i++) driftThermocouples[i] ??= null;
+    mem.inputs = { ...(mem.inputs as AnalyserInputs), baseline: current ? current.baseline : null, driftChambers, driftThermocouples };
+    mem.baselineVersion = version;
+    if (mem.analyser) mem.analyser.setInputs(mem.inputs);
   }
-  const inputs: AnalyserInputs = {
-    unitId,
-    versions,
-    baseline: baseline ? baseline.baseline : null,
-    driftChambers,
-    driftThermocouples,
-    raise: pc.raise,
-    hold: pc.hold,
-    settings: pc.config.worker,
-  };
-  mem.inputs = inputs;
-  mem.inputsLoadedAt = now - jitter;
-  mem.baselineVersion = baseline?.version ?? null;
-  mem.driftStamp = stamp;
-  if (mem.analyser) mem.analyser.setInputs(inputs);
-  return inputs;
+  return { inputs: mem.inputs as AnalyserInputs, untilMs };
 }
 
 async function lockUnit(pc: PipelineContext, client: Parameters<typeof lockOwnedUnit>[0], unitId: string): Promise<UnitProgress | null> {
@@ -180,6 +172,33 @@ async function primedAnalyser(client: Parameters<typeof lockOwnedUnit>[0], unitI
 }
 
 const r0 = (ms: number) => Math.round(ms);
+
+/** How many of the rings (in time order) fall on the UTC day `day` (days since the epoch). */
+function ringsOfDay(rings: RingColumns, day: number): number {
+  return countBefore(rings, rings.count, (day + 1) * DAY_MS);
+}
+
+/** How many of the first n rings (in time order) come before ring time endMs. */
+function countBefore(rings: RingColumns, n: number, endMs: number): number {
+  let k = 0;
+  while (k < n && rings.tsMs[k] < endMs) k++;
+  return k;
+}
+
+/** The first n rings. */
+function sliceRings(rings: RingColumns, n: number): RingColumns {
+  return {
+    count: n,
+    tsMs: rings.tsMs.subarray(0, n),
+    loadMw: rings.loadMw.subarray(0, n),
+    ambientC: rings.ambientC.subarray(0, n),
+    ambientKPa: rings.ambientKPa.subarray(0, n),
+    speedPct: rings.speedPct.subarray(0, n),
+    exhaustC: rings.exhaustC.slice(0, n),
+    fuelFlowKgS: rings.fuelFlowKgS.subarray(0, n),
+    flameDetected: rings.flameDetected.subarray(0, n),
+  };
+}
 
 export type RoundStatus = 'lost' | 'idle' | 'done' | 'more';
 
@@ -215,6 +234,7 @@ export async function analyseGroup(
   const perUnit = Math.max(Math.min(500, batch), Math.floor(batch / Math.max(1, unitIds.length)));
   const ids = [...new Set(unitIds)].sort();
   const newWatermarks = new Map<string, number>();
+  let announced: string[] = [];
   try {
     await withTransaction(pc.pool, async (client) => {
       const t0 = performance.now();
@@ -225,8 +245,25 @@ export async function analyseGroup(
       const inputs = new Map<string, AnalyserInputs>();
       for (const id of held) {
         const mem = memoryOf(pc, id);
-        const p = progress.get(id) as UnitProgress;
-        inputs.set(id, await loadInputs(pc, client, id, mem));
+        let p = progress.get(id) as UnitProgress;
+        if (p.reanalyseFromMs !== null) {
+          // A baseline or configuration version took effect before the watermark: go back and judge the rings again from then on.
+          const r = await rewindTo(client, id, p.reanalyseFromMs);
+          p = { ...p, watermarkMs: r.watermarkMs, rollupsToMs: r.watermarkMs ?? -Infinity, reanalyseFromMs: null, reanalysisToMs: Math.max(p.reanalysisToMs ?? -Infinity, p.watermarkMs ?? -Infinity) };
+          progress.set(id, p);
+          mem.analyser = null;
+          mem.rollups = null;
+          mem.inputsLoadedAt = 0;
+          // The first steady ring may lie before the point now (history that arrived late): looked for again.
+          mem.autoFitDueMs = null;
+          mem.autoFitFromMs = null;
+          mem.autoFitDueReached = false;
+          pc.logger.info(
+            { unitId: id, from: Number.isFinite(r.pointMs) ? new Date(r.pointMs).toISOString() : 'first ring', to: new Date(p.reanalysisToMs as number).toISOString(), alertsRemoved: r.removedAlerts, alertsWithdrawn: r.withdrawnAlerts },
+            'rings to be judged again',
+          );
+        }
+        inputs.set(id, (await loadInputs(pc, client, id, mem, p.watermarkMs ?? -Infinity)).inputs);
         if (!mem.analyser || mem.watermarkMs !== p.watermarkMs) {
           mem.analyser = null;
           mem.rollups = null;
@@ -251,7 +288,10 @@ export async function analyseGroup(
       const enc = new AnalysisEncoder();
       const accs = new Map<string, RollupAccumulator>();
       const observationsByUnit = new Map<string, BatchObservation[]>();
-      const logged: { unitId: string; fromMs: number; toMs: number; rings: number; rollupsToMs: number | null }[] = [];
+      const logged: { unitId: string; fromMs: number; toMs: number; rings: number; rollupsToMs: number | null; rerun: boolean; history: boolean }[] = [];
+      const reanalysing: string[] = [];
+      const caughtUp: string[] = [];
+      const learntOffsets: Array<LearntOffset & { unitId: string }> = [];
       const flushed: { unitId: string; toMs: number }[] = [];
       const now = Date.now();
       let total = 0;
@@ -270,6 +310,44 @@ export async function analyseGroup(
           continue;
         }
         const mem = memoryOf(pc, id);
+        const p = progress.get(id) as UnitProgress;
+        // One timeline in ring time: a batch holds one UTC day of a unit's rings.
+        // - With a baseline: when analysis enters a new day, the days before it are complete, so
+        //   their aggregates and the drift state are brought up to date first (what the nightly
+        //   job does for the wall-clock day), and the day's rings are judged with them.
+        // - Without one: the batch stops before the ring time at which the first baseline falls
+        //   due, so the fit comes at that ring time (index.ts) and later rings are judged with it.
+        // So a history analysed in one go meets each day as the same rings sent live would.
+        const firstDay = Math.floor(rings.tsMs[0] / DAY_MS);
+        let n = ringsOfDay(rings, firstDay);
+        const newDay = p.watermarkMs !== null && firstDay > Math.floor(p.watermarkMs / DAY_MS);
+        // The alert rules' state as the day begins: where a re-analysis from this day starts.
+        if (newDay) await takeAlertMark(client, id, firstDay * DAY_MS);
+        let inForce = await loadInputs(pc, client, id, mem, rings.tsMs[0]);
+        if (inForce.inputs.baseline && newDay) {
+          await runDriftForUnit(client, pc.config, id, rings.tsMs[0]);
+          mem.inputsLoadedAt = 0;
+          inForce = await loadInputs(pc, client, id, mem, rings.tsMs[0]);
+        }
+        inputs.set(id, inForce.inputs);
+        // A batch never straddles the ring time at which another baseline takes over…
+        n = countBefore(rings, n, inForce.untilMs);
+        const due = mem.autoFitDueMs;
+        if (!inForce.inputs.baseline && due !== null && rings.tsMs[0] < due) {
+          // …nor, without one, the time at which the first falls due.
+          const k = countBefore(rings, n, due);
+          if (k < n) {
+            n = k;
+            mem.autoFitDueReached = true;
+          }
+        }
+        // Rings judged again (up to where the re-analysis began) go in batches of their own.
+        const rerun = p.reanalysisToMs !== null && rings.tsMs[0] <= p.reanalysisToMs;
+        if (rerun) n = countBefore(rings, n, (p.reanalysisToMs as number) + 0.001);
+        if (p.reanalysisToMs !== null) reanalysing.push(id);
+        const truncated = n < rings.count;
+        const dayRings = truncated ? sliceRings(rings, n) : rings;
+        ringsByUnit.set(id, dayRings);
         const analyser = mem.analyser as UnitAnalyser;
         // From here the analyser's memory (and the held rollups) run ahead of the database until COMMIT.
         mem.watermarkMs = NaN;
@@ -277,19 +355,20 @@ export async function analyseGroup(
         const since = mem.rollups ? mem.rollupsSince : now;
         mem.rollups = null;
         const observations: BatchObservation[] = [];
-        for (let j = 0; j < rings.count; j++) {
-          const r = analyser.analyse(rings, j);
+        for (let j = 0; j < dayRings.count; j++) {
+          const r = analyser.analyse(dayRings, j);
           enc.add(r.row, id);
           acc.add(r.row);
-          if (r.raise && r.hold) observations.push({ ts: new Date(rings.tsMs[j]), raise: r.raise, hold: r.hold });
+          if (r.raise && r.hold) observations.push({ ts: new Date(dayRings.tsMs[j]), raise: r.raise, hold: r.hold });
+          if (r.learnt) for (const l of r.learnt) learntOffsets.push({ unitId: id, ...l });
         }
         observationsByUnit.set(id, observations);
-        const first = rings.tsMs[0];
-        const last = rings.tsMs[rings.count - 1];
+        const first = dayRings.tsMs[0];
+        const last = dayRings.tsMs[dayRings.count - 1];
         const hold =
           pc.holdRollups === true &&
           !opts.writeRollups?.has(id) &&
-          rings.count <= HOLD_MAX_RINGS &&
+          dayRings.count <= HOLD_MAX_RINGS &&
           now - last <= HOLD_MAX_AGE_MS &&
           now - since < ROLLUP_HOLD_MS &&
           acc.hourBuckets().length === 1;
@@ -297,10 +376,21 @@ export async function analyseGroup(
           mem.rollups = acc;
           mem.rollupsSince = since;
         } else accs.set(id, acc);
-        logged.push({ unitId: id, fromMs: first, toMs: last, rings: rings.count, rollupsToMs: hold ? null : last });
+        // Rings judged again that had no analysis yet (they arrived out of order) are counted as late rings analysed.
+        if (rerun) {
+          const fresh = await countUnanalysed(client, id, first, last);
+          if (fresh > 0) await advanceProgress(client, id, null, 0, fresh);
+        }
+        const more = truncated || dayRings.count >= perUnit;
+        // History: rings judged again, a backlog with more to come, or rings long past their time.
+        const history = rerun || more || now - last > pc.alertSettings.historyAgeS * 1000;
+        logged.push({ unitId: id, fromMs: first, toMs: last, rings: dayRings.count, rollupsToMs: hold ? null : last, rerun, history });
+        if (history) mem.historySinceAnnounced = true;
+        // The backlog is analysed: alerts found in history are announced (those still active).
+        if (!more) caughtUp.push(id);
         newWatermarks.set(id, last);
-        results.set(id, { status: rings.count >= perUnit ? 'more' : 'done', rings: rings.count });
-        total += rings.count;
+        results.set(id, { status: more ? 'more' : 'done', rings: dayRings.count });
+        total += dayRings.count;
       }
       if (total === 0) {
         if (accs.size) {
@@ -311,22 +401,36 @@ export async function analyseGroup(
       }
       const t3 = performance.now();
       await writeAnalysis(client, pc.pool, enc);
+      // Offsets of replaced probes learnt in this batch, committed with the rings that taught them.
+      for (const l of learntOffsets) await recordLearntOffset(client, l.unitId, l.eventId, l.thermocouple, l.offsetC);
       const t4 = performance.now();
       if (accs.size) await writeRollupsOf(client, accs);
       await setRollupsTo(client, flushed);
       await recordInOrderBatches(client, pc.workerId ?? NO_CLAIM, logged);
       const t5 = performance.now();
-      for (const { unitId: id } of logged) {
+      // Start analysis of every unit at once (one read and one write of the detector states),
+      // then each unit's alert rules, which see the start findings merged into its observations.
+      // Rings judged again were fed to the start analysis the first time; it does not depend on a baseline.
+      await recordStartsForGroup(
+        client,
+        logged
+          .filter((b) => !b.rerun)
+          .map(({ unitId: id }) => ({ unitId: id, rings: ringsByUnit.get(id) as RingColumns, versions: (inputs.get(id) as AnalyserInputs).versions, observations: observationsByUnit.get(id) as BatchObservation[] })),
+      );
+      for (const { unitId: id, rerun, history } of logged) {
         const observations = observationsByUnit.get(id) as BatchObservation[];
-        await recordStartsForBatch(client, id, ringsByUnit.get(id) as RingColumns, (inputs.get(id) as AnalyserInputs).versions, observations);
         if (observations.length) {
           const after = { idle: false };
-          await applyAlertObservations(client, id, observations, pc.alertSettings, after);
+          await applyAlertObservations(client, id, observations, pc.alertSettings, after, { history, leaveKinds: rerun ? KINDS_NOT_REANALYSED : undefined });
           // Only for the rings that follow; a rollback drops the analyser, and a new one starts not idle.
           const analyser = memoryOf(pc, id).analyser;
           if (analyser) analyser.alertsIdle = after.idle;
         }
       }
+      await finishReanalysisReached(client, reanalysing);
+      // Alerts found in the history just caught up with: announced once, if still active.
+      announced = caughtUp.filter((id) => memoryOf(pc, id).historySinceAnnounced);
+      await announceHistoricAlerts(client, announced);
       const t6 = performance.now();
       pc.logger.debug(
         { units: logged.length, rings: total, lockMs: r0(t1 - t0), readMs: r0(t2 - t1), analyseMs: r0(t3 - t2), writeMs: r0(t4 - t3), rollupMs: r0(t5 - t4), alertMs: r0(t6 - t5) },
@@ -345,6 +449,7 @@ export async function analyseGroup(
     throw err;
   }
   for (const [id, wm] of newWatermarks) memoryOf(pc, id).watermarkMs = wm;
+  for (const id of announced) memoryOf(pc, id).historySinceAnnounced = false;
   for (const [id, r] of results) if (r.status === 'lost') pc.memory.delete(id);
   return results;
 }
@@ -412,14 +517,21 @@ export async function reanalyseSpan(pc: PipelineContext, unitId: string, fromMs:
     const w = pc.config.worker;
     const reachMs = Math.max(w.steadyWindowS * 1000, (w.windowTestMinutes + w.windowTestEveryMinutes) * 60_000);
     const end = Math.min(progress.watermarkMs, toMs + reachMs);
-    const inputs = await loadInputs(pc, client, unitId, mem);
+    let inForce = await loadInputs(pc, client, unitId, mem, fromMs);
     const before = fromMs - 0.001;
-    const analyser = await primedAnalyser(client, unitId, inputs, before);
+    const analyser = await primedAnalyser(client, unitId, inForce.inputs, before);
     const rings = await readRingsBetween(client, unitId, fromMs, end, 10_000_000);
     if (rings.count === 0) return 0;
     const newRings = await countUnanalysed(client, unitId, fromMs, end);
     const enc = new AnalysisEncoder(unitId);
-    for (let j = 0; j < rings.count; j++) enc.add(analyser.analyse(rings, j).row);
+    for (let j = 0; j < rings.count; j++) {
+      // Each ring judged with the baseline in force at its time.
+      if (rings.tsMs[j] >= inForce.untilMs) {
+        inForce = await loadInputs(pc, client, unitId, mem, rings.tsMs[j]);
+        analyser.setInputs(inForce.inputs);
+      }
+      enc.add(analyser.analyse(rings, j).row);
+    }
     await writeAnalysis(client, pc.pool, enc);
     await recomputeRollups(client, unitId, rings.tsMs[0], rings.tsMs[rings.count - 1]);
     await advanceProgress(client, unitId, null, 0, newRings);

@@ -6,7 +6,9 @@
  * stored and a bucket touched by late rings is recomputed from its rings. Values are rounded
  * to float4 first, as stored, so a recompute from stored analysis gives the same numbers.
  */
-import type { AnalysisColumns, AnalysisRow, RollupPeriod, RollupRow } from '../db/analysis.ts';
+import type { AnalysisColumns } from '../db/analysis.ts';
+import type { AnalysisRow } from '../db/analysis-write.ts';
+import type { RollupPeriod, RollupRow } from '../db/rollups.ts';
 
 export const HOUR_MS = 3_600_000;
 export const DAY_MS = 86_400_000;

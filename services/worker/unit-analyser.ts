@@ -6,15 +6,22 @@
  * rebuilds it from stored rings and analysis after a restart or a takeover and the next ring
  * is analysed exactly as it would have been without the interruption. No I/O here.
  */
-import { analyseRing, baselineResidualsInto, createResidualBuffers, prepareUnit, type ResidualBuffers, type UnitContext } from '../core/ring.ts';
+import { analyseRing, baselineResidualsInto, createResidualBuffers, prepareUnit, type BaselineResiduals, type ResidualBuffers, type UnitContext } from '../core/ring.ts';
+import { chamberScatterInto, worstChamberVerdict, type ChamberFindingRef, type WorstChamberVerdict } from '../core/worst-chamber.ts';
 import type { UnitBaseline } from '../core/baseline.ts';
-import { correctedLoadFraction, defaultSteadyStateOptions, steadyState, steadyStateOfWindow, type SteadyStateOptions, type SteadyStateResult } from '../core/correction.ts';
-import { evaluateFindings, gradeRank, spreadLimitDegC, type ChamberDriftInput, type Finding, type Thresholds } from '../core/findings.ts';
+import { correctedLoadFraction, defaultSteadyStateOptions, type SteadyStateOptions } from '../core/correction.ts';
+import { evaluateFindings } from '../core/evaluate-findings.ts';
+import { gradeRank, spreadLimitDegC, type ChamberDriftInput, type Finding, type Thresholds } from '../core/findings.ts';
 import { VALIDITY } from '../core/types.ts';
 import { windowValidity, type WindowVerdict } from '../core/validity.ts';
 import type { WorkerConfig } from '../db/config.ts';
-import type { AnalysisColumns, AnalysisRow, RingColumns } from '../db/analysis.ts';
+import type { AnalysisColumns } from '../db/analysis.ts';
+import type { AnalysisRow } from '../db/analysis-write.ts';
+import type { RingColumns } from '../db/analysis-rings.ts';
 import type { ConfigVersionRecord } from '../db/units.ts';
+import { ReadingsWindow, RecentCodes, SteadyWindow } from './windows.ts';
+import type { ProbeReplacement } from '../db/events.ts';
+import { ProbeOffsets, type LearntOffset } from './probe-offsets.ts';
 
 export interface AnalyserInputs {
   unitId: string;
@@ -27,6 +34,8 @@ export interface AnalyserInputs {
   raise: Thresholds;
   hold: Thresholds;
   settings: WorkerConfig;
+  /** Thermocouple replacements (maintenance events), oldest first; none when left out. */
+  replacements?: ProbeReplacement[];
 }
 
 export interface RingResult {
@@ -38,6 +47,8 @@ export interface RingResult {
   /** Findings at the normal and the deadband thresholds; null when the unit is not in service (no observation). */
   raise: Finding[] | null;
   hold: Finding[] | null;
+  /** Offsets of replaced probes learnt to the end with this ring, to be stored with it. */
+  learnt: LearntOffset[] | null;
 }
 
 const MAX_M = 64;
@@ -48,37 +59,25 @@ export class UnitAnalyser {
   private readonly contexts = new Map<number, UnitContext>();
   /** Residual buffers per prepared context. */
   private readonly residualBuffers = new Map<UnitContext, ResidualBuffers>();
+  /** Working arrays of the worst-chamber verdict: probabilities, folded-normal CDFs, scatter. */
+  private worstScratch = new Float64Array(0);
   private readonly steadyWindowS: number;
   private readonly windowMs: number;
   private readonly slotMs: number;
-  // Steady-state window: times (s) and corrected loads from stHead on (older ones are dropped
-  // in bulk), with running minimum and maximum queues of the finite loads (indices into stT /
-  // stL, from minHead / maxHead on) and their count, so a ring's test does not scan the window.
-  private stT: number[] = [];
-  private stL: number[] = [];
-  private stHead = 0;
-  private stFinite = 0;
-  private minQ: number[] = [];
-  private minHead = 0;
-  private maxQ: number[] = [];
-  private maxHead = 0;
-  /** A sample arrived out of time order: the window is then scanned (steadyState) as it stands. */
-  private stUnordered = false;
-  // Window tests: times (ms), readings and corrected loads of the rings in service.
-  private wT: number[] = [];
-  private wR: Float64Array[] = [];
-  private wL: number[] = [];
+  /**
+   * The memory of recent rings: the steady-state window, the window tests' rings and the recent
+   * validity codes, in buffers sized from the unit's ring rate within its first rings
+   * (windows.ts), so what a unit costs does not grow as its windows fill.
+   */
+  private readonly steadyWindow: SteadyWindow;
+  private readonly readingsWindow: ReadingsWindow;
+  private readonly recentCodes: RecentCodes;
   private lastSlot = NaN;
   private verdictsDue = false;
   private verdicts: WindowVerdict[] = [];
   /** The verdicts as a validity code per thermocouple, for the ring analysis to exclude them. */
   private readonly verdictCodes = new Uint8Array(MAX_M);
   private verdictM = 0;
-  // Recent validity codes.
-  private codes: Uint8Array[] = [];
-  private codesHead = 0;
-  private readonly outliers = new Int32Array(MAX_M);
-  private readonly missing = new Int32Array(MAX_M);
   private prevSteadySpread: number | null = null;
   lastTsMs = -Infinity;
   /**
@@ -89,20 +88,35 @@ export class UnitAnalyser {
    */
   alertsIdle = false;
   private readonly steadyOptions: SteadyStateOptions;
+  private probeOffsets: ProbeOffsets | null = null;
+
+  private buildProbeOffsets(): void {
+    const r = this.inputs.replacements ?? [];
+    const m = this.inputs.versions.reduce((mx, v) => Math.max(mx, v.config.thermocouples.count), 0);
+    this.probeOffsets = r.length ? new ProbeOffsets(r.map((x) => ({ ...x })), m, this.inputs.settings.probeOffsetRings) : null;
+    if (this.probeOffsets) this.probeOffsets.baselineToMs = this.inputs.baseline ? Date.parse(this.inputs.baseline.window.to) : -Infinity;
+  }
 
   constructor(private inputs: AnalyserInputs) {
+    this.buildProbeOffsets();
     this.steadyWindowS = inputs.settings.steadyWindowS;
     this.steadyOptions = { ...defaultSteadyStateOptions, windowS: this.steadyWindowS };
     this.buildSchedule();
     this.windowMs = inputs.settings.windowTestMinutes * 60_000;
     this.slotMs = inputs.settings.windowTestEveryMinutes * 60_000;
+    this.steadyWindow = new SteadyWindow(this.steadyWindowS);
+    this.readingsWindow = new ReadingsWindow(this.windowMs, WINDOW_TEST_RINGS);
+    this.recentCodes = new RecentCodes(inputs.settings.recentRings, MAX_M, VALIDITY.isolated_outlier, VALIDITY.missing);
   }
 
   /** New baseline, drift state or configuration versions; the memory of recent rings is kept. */
   setInputs(inputs: AnalyserInputs): void {
     const key = (i: AnalyserInputs) => i.versions.map((v) => `${v.version}@${v.effectiveFrom}`).join(',');
     const changed = key(inputs) !== key(this.inputs);
+    const events = (i: AnalyserInputs) => `${i.baseline?.version ?? 0}|` + (i.replacements ?? []).map((r) => `${r.eventId}/${r.thermocouple}@${r.atMs}`).join(',');
+    const eventsChanged = events(inputs) !== events(this.inputs);
     this.inputs = inputs;
+    if (eventsChanged) this.buildProbeOffsets();
     if (changed) {
       this.contexts.clear();
       this.residualBuffers.clear();
@@ -133,57 +147,13 @@ export class UnitAnalyser {
     return { ctx, version: v.version };
   }
 
-  /** Steady-state window: add (t, L), drop what is older than the window. */
-  private pushLoad(tS: number, load: number): void {
-    const T = this.stT;
-    const Lw = this.stL;
-    if (T.length > this.stHead && !(tS >= T[T.length - 1])) this.stUnordered = true;
-    const idx = T.length;
-    T.push(tS);
-    Lw.push(load);
-    if (Number.isFinite(load)) {
-      this.stFinite++;
-      const minQ = this.minQ;
-      while (minQ.length > this.minHead && Lw[minQ[minQ.length - 1]] >= load) minQ.pop();
-      minQ.push(idx);
-      const maxQ = this.maxQ;
-      while (maxQ.length > this.maxHead && Lw[maxQ[maxQ.length - 1]] <= load) maxQ.pop();
-      maxQ.push(idx);
-    }
-    let k = this.stHead;
-    const from = tS - this.steadyWindowS;
-    while (k < T.length && T[k] < from) {
-      if (Number.isFinite(Lw[k])) this.stFinite--;
-      k++;
-    }
-    this.stHead = k;
-    while (this.minHead < this.minQ.length && this.minQ[this.minHead] < k) this.minHead++;
-    while (this.maxHead < this.maxQ.length && this.maxQ[this.maxHead] < k) this.maxHead++;
-    // Drop the dead front in bulk once it outweighs the live part.
-    if (k > 64 && k > T.length - k) {
-      T.splice(0, k);
-      Lw.splice(0, k);
-      this.minQ = this.minQ.slice(this.minHead).map((i) => i - k);
-      this.maxQ = this.maxQ.slice(this.maxHead).map((i) => i - k);
-      this.stHead = 0;
-      this.minHead = 0;
-      this.maxHead = 0;
-    }
-  }
-
   /**
-   * steadyState over the window at atS (the time just pushed). With samples in time order every
-   * sample left in the window lies in [atS − windowS, atS], so the running summary is exactly what
-   * steadyState would gather; otherwise the window is scanned.
+   * Steady-state window: add (t, L), drop what is older than the window. When that sized the
+   * window from the unit's ring rate, the window tests' rings get their room for that rate too.
    */
-  private steadyAt(speedPct: number, atS: number): SteadyStateResult {
-    const o = this.steadyOptions;
-    if (this.stUnordered) return steadyState(speedPct, this.stT.slice(this.stHead), this.stL.slice(this.stHead), atS, o);
-    const n = this.stFinite;
-    if (n === 0) return steadyStateOfWindow(speedPct, atS, 0, Infinity, -Infinity, Infinity, o);
-    let first = this.stHead;
-    while (!Number.isFinite(this.stL[first])) first++;
-    return steadyStateOfWindow(speedPct, atS, n, this.stL[this.minQ[this.minHead]], this.stL[this.maxQ[this.maxHead]], this.stT[first], o);
+  private pushLoad(tS: number, load: number): void {
+    const w = this.steadyWindow;
+    if (w.push(tS, load) && Number.isFinite(w.ringSpacingS)) this.readingsWindow.reserve(w.ringSpacingS * 1000);
   }
 
   /**
@@ -192,19 +162,7 @@ export class UnitAnalyser {
    * a new slot makes the verdicts due.
    */
   private pushReadings(tsMs: number, readings: Float64Array, load: number, inService: boolean): void {
-    if (inService) {
-      this.wT.push(tsMs);
-      this.wR.push(readings);
-      this.wL.push(load);
-    }
-    let k = 0;
-    const from = tsMs - this.windowMs;
-    while (k < this.wT.length && this.wT[k] < from) k++;
-    if (k > 0) {
-      this.wT.splice(0, k);
-      this.wR.splice(0, k);
-      this.wL.splice(0, k);
-    }
+    this.readingsWindow.push(tsMs, readings, load, inService);
     const slot = Math.floor(tsMs / this.slotMs);
     if (slot !== this.lastSlot) {
       this.lastSlot = slot;
@@ -220,14 +178,9 @@ export class UnitAnalyser {
     if (!this.verdictsDue && m === this.verdictM) return;
     this.verdictsDue = false;
     this.verdictM = m;
-    const all: number[] = [];
-    for (let i = 0; i < this.wR.length; i++) if (this.wR[i].length === m) all.push(i);
     // At most WINDOW_TEST_RINGS rings, evenly spread over the window (seconds-apart transient
     // rings would otherwise make the tests cost far more than the ring analysis).
-    const step = Math.max(1, Math.ceil(all.length / WINDOW_TEST_RINGS));
-    const pick = step === 1 ? all : all.filter((_, i) => (all.length - 1 - i) % step === 0);
-    const rings = pick.map((i) => this.wR[i]);
-    const loads = pick.map((i) => this.wL[i]);
+    const { rings, loads } = this.readingsWindow.pick(m, WINDOW_TEST_RINGS);
     this.verdicts = windowValidity(rings, m, undefined, undefined, undefined, loads).filter((v) => v.reason !== 'valid');
     this.verdictCodes.fill(VALIDITY.valid);
     for (const v of this.verdicts) if (v.thermocouple <= MAX_M) this.verdictCodes[v.thermocouple - 1] = VALIDITY[v.reason];
@@ -242,35 +195,8 @@ export class UnitAnalyser {
   private views: { m: number; verdictCodes: Uint8Array; outliers: Int32Array; missing: Int32Array } | null = null;
   private viewsFor(m: number): { verdictCodes: Uint8Array; outliers: Int32Array; missing: Int32Array } {
     if (this.views === null || this.views.m !== m)
-      this.views = { m, verdictCodes: this.verdictCodes.subarray(0, m), outliers: this.outliers.subarray(0, m), missing: this.missing.subarray(0, m) };
+      this.views = { m, verdictCodes: this.verdictCodes.subarray(0, m), outliers: this.recentCodes.outliers.subarray(0, m), missing: this.recentCodes.missing.subarray(0, m) };
     return this.views;
-  }
-
-  /**
-   * Recent validity codes: add (a copy of) them, count outliers and gaps, drop the oldest
-   * beyond recentRings. The copy goes into the dropped ring's array when it has the same length.
-   */
-  private pushCodes(src: Uint8Array): void {
-    const cap = this.inputs.settings.recentRings;
-    let codes: Uint8Array;
-    if (this.codes.length >= cap) {
-      const old = this.codes[this.codesHead];
-      for (let i = 0; i < Math.min(old.length, MAX_M); i++) {
-        if (old[i] === VALIDITY.isolated_outlier) this.outliers[i]--;
-        else if (old[i] === VALIDITY.missing) this.missing[i]--;
-      }
-      if (old.length === src.length) {
-        old.set(src);
-        codes = old;
-      } else codes = src.slice();
-      this.codes[this.codesHead] = codes;
-      this.codesHead = (this.codesHead + 1) % cap;
-    } else this.codes.push((codes = src.slice()));
-    const m = Math.min(codes.length, MAX_M);
-    for (let i = 0; i < m; i++) {
-      if (codes[i] === VALIDITY.isolated_outlier) this.outliers[i]++;
-      else if (codes[i] === VALIDITY.missing) this.missing[i]++;
-    }
   }
 
   /**
@@ -289,7 +215,7 @@ export class UnitAnalyser {
       if (inService) this.refreshVerdicts(ctx.m);
       this.lastTsMs = t;
     }
-    for (let j = 0; j < recent.count; j++) this.pushCodes(Uint8Array.from(recent.validity[j]));
+    for (let j = 0; j < recent.count; j++) this.recentCodes.push(recent.validity[j]);
     // A spread jump compares consecutive steady rings: none when the last analysed ring was not steady.
     this.prevSteadySpread = recent.count > 0 && recent.steady[recent.count - 1] ? prevSteadySpread : null;
   }
@@ -303,7 +229,7 @@ export class UnitAnalyser {
     const speed = rings.speedPct[j];
     const readings = rings.exhaustC[j];
     this.pushLoad(tsMs / 1000, load);
-    const st = this.steadyAt(speed, tsMs / 1000);
+    const st = this.steadyWindow.steadyAt(speed, tsMs / 1000, this.steadyOptions);
     const inService = this.inService(speed, load);
     this.pushReadings(tsMs, readings, load, inService);
     if (inService) this.refreshVerdicts(ctx.m);
@@ -311,17 +237,25 @@ export class UnitAnalyser {
     const views = this.viewsFor(ctx.m);
     const a = analyseRing(ctx, readings, load, undefined, this.verdictM === ctx.m ? views.verdictCodes : undefined);
     const validity = a.validity;
-    this.pushCodes(validity);
+    this.recentCodes.push(validity);
 
     const b = this.inputs.baseline;
     // Residuals against the baseline at this load: each thermocouple's deviation less its own
     // normal, and the chamber map of that pattern (chamberResidualsFromThermocouples). Findings
     // judge every ring in service by them; the stored analysis keeps them for steady rings.
     let res = null;
+    let learnt: LearntOffset[] | null = null;
     if (b) {
       let buf = this.residualBuffers.get(ctx);
       if (!buf) this.residualBuffers.set(ctx, (buf = createResidualBuffers(ctx.m, ctx.n)));
-      res = baselineResidualsInto(ctx, a, b, buf);
+      // A replaced probe's offset is learnt from the steady rings after the event and taken
+      // off its residual (probe-offsets.ts): the new probe is not a step.
+      const po = this.probeOffsets;
+      if (po && st.steady && po.learningAt(tsMs)) {
+        const done = po.learn(tsMs, a.deviationDegC, load, b);
+        if (done.length) learnt = done;
+      }
+      res = baselineResidualsInto(ctx, a, b, buf, po ? po.at(tsMs) : null);
     }
     const tcRes = res ? res.thermocoupleDegC : null;
     const chamberRes = res ? res.chamberDegC : null;
@@ -351,6 +285,7 @@ export class UnitAnalyser {
     else if (!st.steady) this.prevSteadySpread = null;
     this.lastTsMs = tsMs;
 
+    const worst = this.worstChamber(ctx, a.loadFraction, st.steady && inService, b, res, raise);
     const sp = a.spread;
     const row: AnalysisRow = {
       tsMs,
@@ -381,14 +316,33 @@ export class UnitAnalyser {
       chamberResidual,
       ringLevel: a.ringLevelDegC,
       fitSd: a.fitResidualSdDegC,
-      worstChamber: a.worstChamber,
-      worstLikelihood: a.worstChamberLikelihood,
-      runnerUpChamber: a.runnerUpChamber,
-      runnerUpLikelihood: a.runnerUpLikelihood,
+      worstChamber: worst.chamber,
+      worstLikelihood: worst.likelihood ?? NaN,
+      runnerUpChamber: worst.runnerUpChamber,
+      runnerUpLikelihood: worst.runnerUpLikelihood ?? NaN,
       worstGrade: raise && raise.length ? gradeRank(raise[0].grade) : null,
       findingsJson: raise && raise.length ? JSON.stringify(raise.map((f) => ({ kind: f.kind, grade: f.grade, chamber: f.chamber, thermocouple: f.thermocouple }))) : null,
     };
-    return { row, raise, hold };
+    return { row, raise, hold, learnt };
+  }
+
+  /**
+   * The ring's worst chamber (core/worst-chamber.ts): judged on steady rings in service against
+   * the baseline, from the chamber residuals with faulty probes left out, naming the chamber of
+   * the ring's most severe chamber finding when there is one.
+   */
+  private worstChamber(ctx: UnitContext, load: number, atLoad: boolean, b: UnitBaseline | null, res: BaselineResiduals | null, raise: Finding[] | null): WorstChamberVerdict {
+    const n = ctx.n;
+    if (this.worstScratch.length !== 3 * n) this.worstScratch = new Float64Array(3 * n);
+    const probs = this.worstScratch.subarray(0, n);
+    const cdf = this.worstScratch.subarray(n, 2 * n);
+    const scatter = this.worstScratch.subarray(2 * n, 3 * n);
+    const has = b !== null && atLoad && chamberScatterInto(b, load, n, res?.chamberUncertaintyDegC ?? null, scatter) > 0;
+    const findings: ChamberFindingRef[] = [];
+    for (const f of raise ?? []) {
+      if ((f.kind === 'chamber_cold' || f.kind === 'chamber_hot') && f.chamber !== null) findings.push({ chamber: f.chamber, gradeRank: gradeRank(f.grade), magnitudeDegC: Math.abs(Number(f.evidence.residualDegC) || 0) });
+    }
+    return worstChamberVerdict({ atLoad, hasBaseline: has, residualDegC: res?.chamberDegC ?? null, scatterDegC: scatter, n, findings }, probs, cdf);
   }
 
   /** How far back stored rings must reach to prime the memory as of atMs. */

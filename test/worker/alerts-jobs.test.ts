@@ -4,7 +4,8 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createTestDatabase, type TestDatabase } from '../helpers/db.ts';
 import { addUnit, apply, finding, obs, settings } from '../helpers/alerts.ts';
-import { AlertClosedError, acknowledgeAlert, alertHistory, getAlert, listAlerts, shelveAlert, unshelveAlert } from '../../services/db/alerts.ts';
+import { AlertClosedError, acknowledgeAlert, shelveAlert, unshelveAlert } from '../../services/db/alert-actions.ts';
+import { alertHistory, getAlert, listAlerts } from '../../services/db/alert-reads.ts';
 import { checkSilentUnits, expireShelves } from '../../services/worker/alert-jobs.ts';
 
 let db: TestDatabase;
@@ -34,8 +35,8 @@ describe('shelving', () => {
     const [r] = await apply(db.pool, u, [obs(0, [finding('chamber_cold', 'alarm')])], settings({ on: 0 }));
     const wall = new Date();
     const until = new Date(wall.getTime() + 30 * 60_000);
-    const shelved = await shelveAlert(db.pool, r.alertId, { by: 'P. Novak', until, reason: 'borescope booked for Tuesday', now: wall });
-    expect(shelved!.alert).toMatchObject({ shelvedUntil: until.toISOString(), shelvedBy: 'P. Novak', shelveReason: 'borescope booked for Tuesday' });
+    const shelved = await shelveAlert(db.pool, r.alertId, { by: 'shift operator 1', until, reason: 'borescope booked for Tuesday', now: wall });
+    expect(shelved!.alert).toMatchObject({ shelvedUntil: until.toISOString(), shelvedBy: 'shift operator 1', shelveReason: 'borescope booked for Tuesday' });
     expect(await ids(u, 'active', wall)).toEqual([]);
     expect(await ids(u, 'shelved', wall)).toEqual([r.alertId]);
 
@@ -46,7 +47,7 @@ describe('shelving', () => {
     const a = (await getAlert(db.pool, r.alertId))!;
     expect(a.shelvedUntil).toBeNull();
     expect(a.history!.map((h) => h.action)).toEqual(['raised', 'shelved', 'shelf_expired']);
-    expect(a.history![2].details).toMatchObject({ until: until.toISOString(), shelvedBy: 'P. Novak' });
+    expect(a.history![2].details).toMatchObject({ until: until.toISOString(), shelvedBy: 'shift operator 1' });
     expect(await ids(u, 'active', until)).toEqual([r.alertId]);
   });
 
@@ -56,7 +57,7 @@ describe('shelving', () => {
     const changes = await apply(db.pool, u, [obs(0, fs)], settings({ on: 0 }));
     const wall = new Date();
     const until = new Date(wall.getTime() + 60_000);
-    for (const c of changes) await shelveAlert(db.pool, c.alertId, { by: 'P', until, reason: 'r', now: wall });
+    for (const c of changes) await shelveAlert(db.pool, c.alertId, { by: 'shift operator 1', until, reason: 'r', now: wall });
     const [x, y] = await Promise.all([expireShelves(db.pool, until), expireShelves(db.pool, until)]);
     expect(x.length + y.length).toBe(8);
     for (const c of changes) expect((await alertHistory(db.pool, c.alertId)).filter((h) => h.action === 'shelf_expired')).toHaveLength(1);
@@ -67,21 +68,21 @@ describe('shelving', () => {
     const s = settings({ on: 0, off: 0, grade: 0 });
     const [r] = await apply(db.pool, u, [obs(0, [finding('thermocouple_fault', 'warning', { thermocouple: 11 })])], s);
     const wall = new Date();
-    await shelveAlert(db.pool, r.alertId, { by: 'P', until: new Date(wall.getTime() + 3_600_000), reason: 'known', now: wall });
-    const un = await unshelveAlert(db.pool, r.alertId, { by: 'Q', now: new Date(wall.getTime() + 1000) });
+    await shelveAlert(db.pool, r.alertId, { by: 'shift operator 1', until: new Date(wall.getTime() + 3_600_000), reason: 'known', now: wall });
+    const un = await unshelveAlert(db.pool, r.alertId, { by: 'shift operator 2', now: new Date(wall.getTime() + 1000) });
     expect(un!.alert.shelvedUntil).toBeNull();
     expect(un!.change!.action).toBe('unshelved');
 
-    await shelveAlert(db.pool, r.alertId, { by: 'P', until: new Date(wall.getTime() + 3_600_000), reason: 'again', now: wall });
+    await shelveAlert(db.pool, r.alertId, { by: 'shift operator 1', until: new Date(wall.getTime() + 3_600_000), reason: 'again', now: wall });
     await apply(db.pool, u, [obs(1)], s); // returns to normal while shelved
     let a = (await getAlert(db.pool, r.alertId))!;
     expect(a).toMatchObject({ active: false, closedAt: null });
     expect(a.shelvedUntil).not.toBeNull();
-    await acknowledgeAlert(db.pool, r.alertId, { by: 'R', now: new Date() });
+    await acknowledgeAlert(db.pool, r.alertId, { by: 'shift operator 3', now: new Date() });
     a = (await getAlert(db.pool, r.alertId))!;
     expect(a.closedAt).not.toBeNull();
     expect(a.shelvedUntil).toBeNull();
-    await expect(shelveAlert(db.pool, r.alertId, { by: 'P', until: new Date(Date.now() + 60_000), reason: 'r', now: new Date() })).rejects.toBeInstanceOf(AlertClosedError);
+    await expect(shelveAlert(db.pool, r.alertId, { by: 'shift operator 1', until: new Date(Date.now() + 60_000), reason: 'r', now: new Date() })).rejects.toBeInstanceOf(AlertClosedError);
     expect(a.history!.map((h) => h.action)).toEqual(['raised', 'shelved', 'unshelved', 'shelved', 'returned_to_normal', 'acknowledged']);
   });
 });

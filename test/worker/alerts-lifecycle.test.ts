@@ -6,10 +6,13 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createTestDatabase, type TestDatabase } from '../helpers/db.ts';
 import { addUnit, apply, at, finding, obs, settings, ringWithSpread, sequence } from '../helpers/alerts.ts';
-import { acknowledgeAlert, alertHistory, createWebhook, getAlert, listActiveAlerts, listAlerts, outboxRows } from '../../services/db/alerts.ts';
+import { acknowledgeAlert } from '../../services/db/alert-actions.ts';
+import { alertHistory, getAlert, listActiveAlerts, listAlerts } from '../../services/db/alert-reads.ts';
+import { createWebhook, outboxRows } from '../../services/db/webhooks.ts';
 import { withTransaction } from '../../services/db/pool.ts';
 import { applyAlertObservations, conditionKey, deadbandThresholds, loadAlertSettings } from '../../services/worker/alerts.ts';
-import { defaultThresholds, evaluateFindings } from '../../services/core/findings.ts';
+import { evaluateFindings } from '../../services/core/evaluate-findings.ts';
+import { defaultThresholds } from '../../services/core/findings.ts';
 import { loadConfig, ConfigError } from '../../services/db/config.ts';
 
 let db: TestDatabase;
@@ -220,12 +223,12 @@ describe('grade in place', () => {
     const u = await unit();
     const s = settings({ on: 0, off: 60, grade: 0 });
     const [raised] = await apply(db.pool, u, [obs(0, [finding('chamber_hot', 'warning')])], s);
-    await acknowledgeAlert(db.pool, raised.alertId, { by: 'M. Okafor', now: new Date() });
+    await acknowledgeAlert(db.pool, raised.alertId, { by: 'shift operator 1', now: new Date() });
     await apply(db.pool, u, [obs(1, [finding('chamber_hot', 'alarm')])], s);
     let a = (await getAlert(db.pool, raised.alertId))!;
     expect(a).toMatchObject({ grade: 'alarm', acknowledged: false });
     expect(a.history!.find((h) => h.action === 'escalated')!.details).toMatchObject({ acknowledgementCleared: true });
-    await acknowledgeAlert(db.pool, raised.alertId, { by: 'M. Okafor', now: new Date() });
+    await acknowledgeAlert(db.pool, raised.alertId, { by: 'shift operator 1', now: new Date() });
     await apply(db.pool, u, [obs(2, [finding('chamber_hot', 'warning')])], s);
     a = (await getAlert(db.pool, raised.alertId))!;
     expect(a).toMatchObject({ grade: 'warning', acknowledged: true });
@@ -249,8 +252,8 @@ describe('acknowledged and returned to normal', () => {
 
     changes = await apply(db.pool, u, [obs(23), obs(30)], s);
     expect(changes.map((c) => c.action)).toEqual(['returned_to_normal']);
-    const acked = await acknowledgeAlert(db.pool, id, { by: 'J. Ruiz', comment: 'thermocouple 3 wiring checked', now: new Date() });
-    expect(acked!.alert).toMatchObject({ acknowledged: true, acknowledgedBy: 'J. Ruiz', active: false });
+    const acked = await acknowledgeAlert(db.pool, id, { by: 'shift operator 2', comment: 'thermocouple 3 wiring checked', now: new Date() });
+    expect(acked!.alert).toMatchObject({ acknowledged: true, acknowledgedBy: 'shift operator 2', active: false });
     expect(acked!.alert.closedAt).not.toBeNull();
 
     // Closed: the next occurrence is a new alert.
@@ -264,7 +267,7 @@ describe('acknowledged and returned to normal', () => {
     const u = await unit();
     const s = settings({ on: 0, off: 0 });
     const [r] = await apply(db.pool, u, [obs(0, [finding('coverage_degraded', 'alarm')])], s);
-    await acknowledgeAlert(db.pool, r.alertId, { by: 'A. Lind', now: new Date() });
+    await acknowledgeAlert(db.pool, r.alertId, { by: 'shift operator 1', now: new Date() });
     const changes = await apply(db.pool, u, [obs(1)], s);
     expect(changes.map((c) => c.action)).toEqual(['returned_to_normal']);
     const a = (await getAlert(db.pool, r.alertId))!;
@@ -275,11 +278,11 @@ describe('acknowledged and returned to normal', () => {
   it('acknowledging twice writes one history row', async () => {
     const u = await unit();
     const [r] = await apply(db.pool, u, [obs(0, [finding('chamber_cold', 'warning')])], settings({ on: 0 }));
-    const first = await acknowledgeAlert(db.pool, r.alertId, { by: 'A', now: new Date() });
-    const second = await acknowledgeAlert(db.pool, r.alertId, { by: 'B', now: new Date() });
+    const first = await acknowledgeAlert(db.pool, r.alertId, { by: 'shift operator 1', now: new Date() });
+    const second = await acknowledgeAlert(db.pool, r.alertId, { by: 'shift operator 2', now: new Date() });
     expect(first!.change).not.toBeNull();
     expect(second!.change).toBeNull();
-    expect(second!.alert.acknowledgedBy).toBe('A');
+    expect(second!.alert.acknowledgedBy).toBe('shift operator 1');
     expect((await alertHistory(db.pool, r.alertId)).filter((h) => h.action === 'acknowledged')).toHaveLength(1);
   });
 });

@@ -2,12 +2,14 @@
  * Baselines and drift end to end: a unit whose chamber 4 fuel nozzle plugs slowly (the
  * simulator's ground truth) gets its first baseline automatically after the configured days,
  * the nightly drift names chamber 4 as cooling against that baseline, and the drift state
- * reaches the findings of the rings analysed afterwards. Refitting over a chosen window makes
- * a new version and leaves the older one and the analysis made with it as they were; a refit
- * over a window not yet analysed is accepted (202) and fitted once analysis passes it.
+ * reaches the findings of the rings analysed afterwards. A refit over a chosen window is
+ * accepted (202) and fitted by the worker as a new version, leaving the older one and the
+ * analysis made with it as they were; a window that cannot be fitted is refused at once (422);
+ * a refit over a window not yet analysed is fitted once analysis passes it.
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { bearer, createTestApp, type TestApp } from '../helpers/app.ts';
+import { TRANSPORTS, type Transport } from '../helpers/transport.ts';
 import { createLogger } from '../../services/db/logger.ts';
 import { startWorker, type Worker } from '../../services/worker/index.ts';
 import { readDriftStates } from '../../services/db/drift.ts';
@@ -43,7 +45,7 @@ afterAll(async () => {
 
 const get = (url: string) => t.app.inject({ method: 'GET', url, headers: bearer(t.keys.viewer) });
 /** POST /v1/units/plug-1/baselines {from, to} as an admin: a refit on request. */
-const refit = (from: string, to: string) => t.app.inject({ method: 'POST', url: '/v1/units/plug-1/baselines', headers: bearer(t.keys.admin), payload: { from, to } });
+const refit = (from: string, to: string, via: Transport = 'inject') => t.sendVia(via, { method: 'POST', url: '/v1/units/plug-1/baselines', headers: bearer(t.keys.admin), payload: { from, to } });
 
 describe('baselines and drift', () => {
   it('fits the first baseline automatically from the first days of steady data, with bins and counts', async () => {
@@ -62,7 +64,7 @@ describe('baselines and drift', () => {
   it('nightly drift names chamber 4 as cooling, with its rate and interval against version 1', async () => {
     await worker.runDrift(DRIFT_AT);
     const chambers = (await readDriftStates(t.db.pool, 'plug-1')).filter((s) => s.subject === 'chamber');
-    expect(chambers).toHaveLength(10);
+    expect(chambers).toHaveLength(unit.config.chambers.count);
     const rated = chambers.filter((c) => c.rate !== null);
     const coolest = rated.reduce((a, b) => ((b.rate?.per30DaysDegC ?? 0) < (a.rate?.per30DaysDegC ?? 0) ? b : a));
     expect(coolest.idx).toBe(4);
@@ -86,16 +88,27 @@ describe('baselines and drift', () => {
   it('refits on request as a new version and never rewrites the older one or its analysis', async () => {
     const before = await t.db.pool.query(`SELECT count(*)::int AS n FROM ring_analysis WHERE baseline_version = 1`);
     const res = await refit('2026-05-02T00:00:00Z', '2026-05-09T00:00:00Z');
-    expect(res.statusCode, res.body).toBe(201);
-    expect(res.json()).toMatchObject({ version: 2, inForce: true, window: { from: '2026-05-02T00:00:00.000Z', to: '2026-05-09T00:00:00.000Z' } });
-    const list = (await get('/v1/units/plug-1/baselines')).json().baselines;
+    expect(res.statusCode, res.body).toBe(202);
+    expect(res.headers.location).toBe('/v1/units/plug-1/baselines');
+    expect(res.json()).toMatchObject({ state: 'pending', window: { from: '2026-05-02T00:00:00.000Z', to: '2026-05-09T00:00:00.000Z' } });
+    // The worker fits the request (its window is analysed already) at its next sweep.
+    await until(async () => {
+      await worker.sweep();
+      return (await get('/v1/units/plug-1/baselines')).json().requests[0].state !== 'pending';
+    });
+    const fitted = (await get('/v1/units/plug-1/baselines')).json();
+    expect(fitted.requests[0]).toMatchObject({ id: res.json().id, state: 'fitted', version: 2 });
+    expect(fitted.baselines[0]).toMatchObject({ version: 2, inForce: true, window: { from: '2026-05-02T00:00:00.000Z', to: '2026-05-09T00:00:00.000Z' } });
+    const list = fitted.baselines;
     expect(list.map((b: { version: number }) => b.version)).toEqual([2, 1]);
     expect(list[1].fittedBy).toBe('automatic');
     const after = await t.db.pool.query(`SELECT count(*)::int AS n FROM ring_analysis WHERE baseline_version = 1`);
     expect(after.rows[0].n).toBe(before.rows[0].n);
-    const thin = await refit('2026-05-02T00:00:00Z', '2026-05-02T00:20:00Z');
-    expect(thin.statusCode).toBe(422);
-    expect(thin.json().error).toBe('invalid');
+    for (const via of TRANSPORTS) {
+      const thin = await refit('2026-05-02T00:00:00Z', '2026-05-02T00:20:00Z', via);
+      expect(thin.statusCode, via).toBe(422);
+      expect(thin.json().error).toBe('invalid');
+    }
   });
 
   it('accepts a refit over a window not yet analysed (202) and fits it once analysis has passed the window', async () => {
@@ -121,9 +134,9 @@ describe('baselines and drift', () => {
     expect(s.ts).toBe(new Date(rings.tsMs[rings.count - 1]).toISOString());
     expect(s.lastRingTs).toBe(s.ts);
     expect(s.progress).toMatchObject({ ringsStored: rings.count, ringsAnalysed: rings.count, ringsPending: 0, workerId: 'w-drift' });
-    expect(s.chambers).toHaveLength(10);
+    expect(s.chambers).toHaveLength(unit.config.chambers.count);
     expect(typeof s.limit).toBe('number');
-    expect(s.coverage.total).toBe(18);
+    expect(s.coverage.total).toBe(unit.config.thermocouples.count);
     expect(Array.isArray(s.activeAlerts)).toBe(true);
   });
 });

@@ -8,11 +8,11 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createTestDatabase, type TestDatabase } from '../helpers/db.ts';
 import { createLogger } from '../../services/db/logger.ts';
-import { analysisTotals } from '../../services/db/analysis.ts';
+import { analysisTotals } from '../../services/db/progress.ts';
 import { startWorker } from '../../services/worker/index.ts';
 import { demoFleet, type SimUnit } from '../../services/sim/index.ts';
 import type { Pool } from '../../services/db/pool.ts';
-import { expectEveryRingAnalysedOnce, healthyUnit, registerUnit, simulate, testConfig, until, waitForAnalysis, writeRings } from './fixtures.ts';
+import { expectEveryRingAnalysedOnce, healthyUnit, registerUnit, simulate, testConfig, until, waitForAnalysis, writeRings, alertChanges } from './fixtures.ts';
 import { startWorkerProcess, type WorkerProcess } from './processes.ts';
 
 const FROM = '2026-07-01T00:00:00Z';
@@ -41,17 +41,6 @@ async function load(pool: Pool) {
   await registerUnit(pool, faulty);
   await registerUnit(pool, healthy);
   for (const b of batches) await writeRings(pool, b);
-}
-
-/** Every rule-driven alert change, in a form that does not depend on ids or wall-clock time. */
-async function alertChanges(pool: Pool): Promise<string[]> {
-  const { rows } = await pool.query(
-    `SELECT h.unit_id, a.condition_key, h.action, h.grade, h.from_grade, h.at
-       FROM alert_history h JOIN alerts a ON a.id = h.alert_id
-      WHERE a.kind <> 'unit_silent'
-      ORDER BY h.unit_id, h.at, a.condition_key, h.action`,
-  );
-  return rows.map((r) => `${r.unit_id} ${r.condition_key} ${r.action} ${r.from_grade ?? '-'}→${r.grade} @${r.at.toISOString()}`);
 }
 
 beforeAll(async () => {

@@ -10,7 +10,7 @@ import { copyBinary, NEW_RINGS_CHANNEL, RingCopyEncoder } from '../../services/d
 import { createUnitsRepository } from '../../services/db/units.ts';
 import { withTransaction, type Pool } from '../../services/db/pool.ts';
 import { expect } from 'vitest';
-import { analysisTotals } from '../../services/db/analysis.ts';
+import { analysisTotals } from '../../services/db/progress.ts';
 
 /** Worker settings for tests: short leases, small batches. */
 export const TEST_WORKER_ENV: Record<string, string> = {
@@ -120,4 +120,15 @@ export async function expectEveryRingAnalysedOnce(pool: Pool, stored: number): P
 /** Waits until cond() holds (polling). */
 export async function until(cond: () => Promise<boolean>, pollMs = 100): Promise<void> {
   while (!(await cond())) await new Promise((r) => setTimeout(r, pollMs));
+}
+
+/** Every rule-driven alert change, in a form that does not depend on ids or wall-clock time (for comparing two runs over the same rings). */
+export async function alertChanges(pool: Pool): Promise<string[]> {
+  const { rows } = await pool.query(
+    `SELECT h.unit_id, a.condition_key, h.action, h.grade, h.from_grade, h.at
+       FROM alert_history h JOIN alerts a ON a.id = h.alert_id
+      WHERE a.kind <> 'unit_silent'
+      ORDER BY h.unit_id, h.at, a.condition_key, h.action`,
+  );
+  return rows.map((r) => `${r.unit_id} ${r.condition_key} ${r.action} ${r.from_grade ?? '-'}→${r.grade} @${r.at.toISOString()}`);
 }

@@ -12,12 +12,12 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { defaultThresholds } from '../../services/core/findings.ts';
 import { loadConfig } from '../../services/db/config.ts';
 import { withTransaction } from '../../services/db/pool.ts';
-import type { RingColumns } from '../../services/db/analysis.ts';
+import type { RingColumns } from '../../services/db/analysis-rings.ts';
 import { createUnitsRepository, type ConfigVersionRecord } from '../../services/db/units.ts';
 import { applyAlertObservations, deadbandThresholds, loadAlertSettings, type AlertChange, type AlertObservation } from '../../services/worker/alerts.ts';
 import { UnitAnalyser } from '../../services/worker/unit-analyser.ts';
 import { simulateUnit } from '../../services/sim/generator.ts';
-import { DEFAULT_SCORECARD_END, scorecardFleet } from '../../services/sim/scorecard.ts';
+import { DEFAULT_SCORECARD_END, scorecardFleet } from '../../services/scorecard/scorecard.ts';
 import { createTestDatabase, type TestDatabase } from '../helpers/db.ts';
 
 let db: TestDatabase;

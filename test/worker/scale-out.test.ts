@@ -6,7 +6,7 @@
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createTestDatabase, type TestDatabase } from '../helpers/db.ts';
-import { analysisTotals } from '../../services/db/analysis.ts';
+import { analysisTotals } from '../../services/db/progress.ts';
 import { listClaims } from '../../services/db/claims.ts';
 import { expectEveryRingAnalysedOnce, healthyUnit, registerUnit, simulate, until, waitForAnalysis, writeRings } from './fixtures.ts';
 import { startWorkerProcess, type WorkerProcess } from './processes.ts';

@@ -6,10 +6,12 @@
  */
 import type { FastifyInstance } from 'fastify';
 import { Type } from 'typebox';
-import { commitSnapshot, createReadsRepository, type ReadsRepository } from '../../db/reads.ts';
+import { judgement, type NotJudged } from '../../core/judgement.ts';
+import { commitSnapshot, createReadsRepository, type ReadsRepository, type StoredAnalysis } from '../../db/reads.ts';
 import type { UnitRecord } from '../../db/units.ts';
-import { badRequest, notFound } from '../errors.ts';
-import { ErrorReply } from '../schemas.ts';
+import { badRequest, notFound } from '../../http/errors.ts';
+import { ErrorReply } from '../../http/schemas.ts';
+import { type JudgementSettings } from '../schemas.ts';
 
 export const DAY_MS = 86_400_000;
 
@@ -45,6 +47,46 @@ export function timeWindow(q: { from?: string; to?: string }, nowMs: number, def
     ]);
   }
   return { fromMs, toMs };
+}
+
+/** Where a read window's end came from: the request's `to`, the unit's last ring, or the clock (a `from` alone, or a unit with no ring). */
+export type WindowEnd = 'request' | 'last-ring' | 'clock';
+
+export interface ReadWindow extends TimeWindow {
+  endsAt: WindowEnd;
+}
+
+/** The reply header that says which window a read used: `from=…; to=…; ends-at=request|last-ring|clock`. */
+export const WINDOW_HEADER = 'x-cansight-window';
+
+/**
+ * A read window in ring time. Without from and to, the default span ends just after the unit's
+ * last stored ring, so a unit whose rings ended months ago (a history import, a unit laid up)
+ * shows its last days rather than an empty stretch of the wall clock. With `to` it ends there;
+ * with `from` alone it runs to now. The reply says which window it used (WINDOW_HEADER).
+ */
+export async function readWindow(
+  reads: ReadsRepository,
+  unitId: string,
+  q: { from?: string; to?: string },
+  defaultDays: number,
+  maxDays: number,
+  what: string,
+  reply?: { header(name: string, value: string): unknown },
+): Promise<ReadWindow> {
+  const nowMs = Date.now();
+  let endsAt: WindowEnd = q.to ? 'request' : 'clock';
+  let to = q.to;
+  if (!q.to && !q.from) {
+    const last = await reads.lastRingMs(unitId);
+    if (last !== null) {
+      to = new Date(last + 1000).toISOString();
+      endsAt = 'last-ring';
+    }
+  }
+  const w = timeWindow({ from: q.from, to }, nowMs, defaultDays, maxDays, what);
+  reply?.header(WINDOW_HEADER, `from=${new Date(w.fromMs).toISOString()}; to=${new Date(w.toMs).toISOString()}; ends-at=${endsAt}`);
+  return { ...w, endsAt };
 }
 
 /** The unit or 404. */
@@ -113,4 +155,32 @@ export function snapshotOf(app: FastifyInstance): () => Promise<string> {
 /** Numbers to JSON: NaN and infinities become null. */
 export function fin(v: number | null | undefined): number | null {
   return v === null || v === undefined || !Number.isFinite(v) ? null : v;
+}
+
+/**
+ * What of a unit is not judged yet and why (services/core/judgement.ts), from its latest
+ * analysed ring, its baseline outlook and, where drift is shown, how many drift states exist.
+ */
+export async function notJudgedOf(
+  reads: ReadsRepository,
+  unitId: string,
+  latest: StoredAnalysis | null,
+  settings: JudgementSettings,
+  driftStates?: number,
+): Promise<{ notJudged: NotJudged[]; baselineDueTs: string | null }> {
+  const o = await reads.baselineOutlook(unitId);
+  const j = judgement({
+    unitId,
+    ringsStored: o?.ringsStored ?? 0,
+    ringsAnalysed: o?.ringsAnalysed ?? 0,
+    watermarkMs: o?.watermarkMs ?? null,
+    latest: latest ? { steady: latest.steady, limitFromBaseline: latest.limitFromBaseline, baselineVersion: latest.baselineVersion, loadFraction: latest.loadFraction } : null,
+    baselineVersion: o?.version ?? null,
+    firstSteadyMs: o?.firstSteadyMs ?? null,
+    pendingRequest: o?.pendingRequest ?? null,
+    baselineAutoDays: settings.baselineAutoDays,
+    driftStates,
+    driftSchedule: settings.driftCron,
+  });
+  return { notJudged: j.notJudged, baselineDueTs: j.baselineDueMs === null ? null : new Date(j.baselineDueMs).toISOString() };
 }

@@ -13,10 +13,13 @@ import type { FastifyInstance } from 'fastify';
 import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
 import { Type, type Static, type TSchema } from 'typebox';
 import { ADVISORY_CAUTION } from '../../core/findings.ts';
+import { judgement } from '../../core/judgement.ts';
+import { noWorstChamberReason } from '../../core/worst-chamber.ts';
 import { VALIDITY_REASONS } from '../../core/types.ts';
 import { unitStatusStates, type UnitStatusState } from '../../db/status-reads.ts';
-import { notFound } from '../errors.ts';
-import { ErrorReply, UnitParams } from '../schemas.ts';
+import { notFound } from '../../http/errors.ts';
+import { ErrorReply } from '../../http/schemas.ts';
+import { NotJudgedList, UnitParams, type JudgementSettings } from '../schemas.ts';
 import { baselineRoutes } from './baselines.ts';
 import { snapshotOf } from './read-common.ts';
 import { StartCounters } from './starts.ts';
@@ -52,12 +55,13 @@ export const StatusReply = Type.Object({
   ),
   worstChamber: Nullable(
     Type.Object({
-      chamber: Type.Integer(),
-      likelihood: Nullable(Type.Number()),
-      runnerUpChamber: Nullable(Type.Integer()),
+      chamber: Type.Integer({ description: 'the chamber departing most from its normal at this load, numbered from 1: the chamber of the ring\'s most severe chamber finding when there is one' }),
+      likelihood: Nullable(Type.Number({ description: 'probability, 0–1, that it is the chamber departing most, from the chamber residuals (faulty thermocouples left out) and their scatter: a healthy ring names none with a high likelihood' })),
+      runnerUpChamber: Nullable(Type.Integer({ description: 'the next most likely chamber' })),
       runnerUpLikelihood: Nullable(Type.Number()),
-    }),
+    }, { description: 'null when no chamber is judged: see worstChamberReason' }),
   ),
+  worstChamberReason: Nullable(Type.String({ description: 'why worstChamber is null (no ring analysed, not at steady load, no baseline at this load, too few thermocouples to map the chambers); null when a chamber is named' })),
   invalidThermocouples: Type.Array(Type.Object({ thermocouple: Type.Integer({ description: 'numbered from 1' }), reason: Type.String() })),
   configVersion: Nullable(Type.Integer()),
   baselineVersion: Nullable(Type.Integer({ description: 'baseline version the limit and residuals used' })),
@@ -70,8 +74,21 @@ export const StatusReply = Type.Object({
     watermarkTs: Nullable(Type.String({ format: 'date-time', description: 'analysis is complete up to here, in ring order' })),
     workerId: Nullable(Type.String()),
     leaseUntil: Nullable(Type.String({ format: 'date-time' })),
+    reanalysis: Nullable(
+      Type.Object(
+        {
+          fromTs: Nullable(Type.String({ format: 'date-time', description: 'ring time the rings are judged again from' })),
+          toTs: Nullable(Type.String({ format: 'date-time', description: 'up to here (the watermark when it began); watermarkTs says how far it has come' })),
+          ringsLeft: Type.Integer({ description: 'rings still to be judged again' }),
+          askedFromTs: Nullable(Type.String({ format: 'date-time', description: 'a re-analysis asked for from this ring time, not begun yet' })),
+        },
+        { description: 'rings judged again because a baseline or configuration version took effect in the past; null when none' },
+      ),
+    ),
   }),
   starts: StartCounters,
+  notJudged: NotJudgedList,
+  baselineDueTs: Nullable(Type.String({ format: 'date-time', description: 'ring time at which the automatic first baseline falls due (the unit has none yet), else null' })),
   caution: Type.String(),
 });
 
@@ -85,9 +102,20 @@ export const STATUS_FRESHNESS = 'Every read reflects every ring analysed, alert 
 type StatusBody = Static<typeof StatusReply>;
 
 /** The reply body from what the status statement read. */
-export function statusBody(unitId: string, st: UnitStatusState): StatusBody {
+export function statusBody(unitId: string, st: UnitStatusState, settings: JudgementSettings): StatusBody {
   const a = st.analysis;
   const p = st.progress;
+  const judged = judgement({
+    unitId,
+    ringsStored: p.ringsStored,
+    ringsAnalysed: p.ringsAnalysed,
+    watermarkMs: p.watermarkTs?.getTime() ?? null,
+    latest: a ? { steady: a.steady, limitFromBaseline: a.limitFromBaseline, baselineVersion: a.baselineVersion, loadFraction: a.loadFraction } : null,
+    baselineVersion: st.baseline.version,
+    firstSteadyMs: st.baseline.firstSteadyMs,
+    pendingRequest: st.baseline.pendingRequest,
+    baselineAutoDays: settings.baselineAutoDays,
+  });
   const validity = a?.validity ?? [];
   return {
     unitId,
@@ -117,6 +145,7 @@ export function statusBody(unitId: string, st: UnitStatusState): StatusBody {
       a && a.worstChamber !== null
         ? { chamber: a.worstChamber, likelihood: num(a.worstLikelihood), runnerUpChamber: a.runnerUpChamber, runnerUpLikelihood: num(a.runnerUpLikelihood) }
         : null,
+    worstChamberReason: noWorstChamberReason(a ? { worstChamber: a.worstChamber, steady: a.steady, baselineVersion: a.baselineVersion, chamberResidual: a.chamberResidual } : null),
     invalidThermocouples: validity.flatMap((code, i) => (code === 0 ? [] : [{ thermocouple: i + 1, reason: VALIDITY_REASONS[code] ?? 'missing' }])),
     configVersion: a?.configVersion ?? null,
     baselineVersion: a?.baselineVersion ?? null,
@@ -129,8 +158,11 @@ export function statusBody(unitId: string, st: UnitStatusState): StatusBody {
       watermarkTs: iso(p.watermarkTs),
       workerId: p.workerId,
       leaseUntil: iso(p.leaseUntil),
+      reanalysis: p.reanalysis ? { fromTs: iso(p.reanalysis.fromTs), toTs: iso(p.reanalysis.toTs), ringsLeft: p.reanalysis.ringsLeft, askedFromTs: iso(p.reanalysis.askedFromTs) } : null,
     },
     starts: st.starts,
+    notJudged: judged.notJudged,
+    baselineDueTs: judged.baselineDueMs === null ? null : new Date(judged.baselineDueMs).toISOString(),
     caution: ADVISORY_CAUTION,
   };
 }
@@ -184,7 +216,7 @@ export async function statusRoutes(base: FastifyInstance): Promise<void> {
       // Requests sharing one read serialize it once.
       if (!e || e.snapshot !== st.snapshot || e.validUntilMs !== (st.changesAtMs ?? Infinity)) {
         if (cache.size >= STATUS_CACHE_UNITS) cache.clear();
-        e = { snapshot: st.snapshot, validUntilMs: st.changesAtMs ?? Infinity, body: Buffer.from(reply.serialize(statusBody(unitId, st)) as string) };
+        e = { snapshot: st.snapshot, validUntilMs: st.changesAtMs ?? Infinity, body: Buffer.from(reply.serialize(statusBody(unitId, st, app.appConfig.worker)) as string) };
         cache.set(unitId, e);
       }
     }

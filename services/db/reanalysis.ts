@@ -1,0 +1,138 @@
+/**
+ * Judging a unit's stored rings again from a ring time on (a baseline or configuration version
+ * that takes effect in the past), inside the worker's transaction for the unit:
+ *
+ * - Marks: at the start of each ring-time day the worker passes, the alert rules' state of the
+ *   unit (pending conditions, open alerts, the ring time applied up to) is kept (takeAlertMark).
+ * - Rewind (rewindTo): the latest mark at or before the time asked is the point analysis goes
+ *   back to. Alerts raised from then on by the ring rules are removed (those a person acted on
+ *   are kept, closed as withdrawn), the rules' history rows from then on are removed, the open
+ *   alerts, pending conditions and watermark of the mark are put back; rollups, daily residuals
+ *   and drift states from then on are removed; the analysis watermark goes back to the last ring
+ *   before the point. The worker then analyses the rings again in order, day by day, as it
+ *   analysed them the first time; rings up to reanalysis_to are counted as re-run, not again as
+ *   analysed. People's acknowledgements and shelves stay.
+ *
+ * Everything commits with the round or not at all, so a crash leaves either the old judgement
+ * or the rewind and whatever days were judged again since, never half of one.
+ */
+import { KINDS_NOT_REANALYSED } from './config.ts';
+import type { Queryable } from './alert-rows.ts';
+import { isoMicros } from './pg-binary.ts';
+import { msOf } from './sql.ts';
+
+const SKIP = KINDS_NOT_REANALYSED as readonly string[];
+
+/** Keeps the unit's alert rule state as it stands now, as the state at the start of the ring-time day atMs. */
+export async function takeAlertMark(c: Queryable, unitId: string, atMs: number): Promise<void> {
+  await c.query(
+    `INSERT INTO alert_state_marks (unit_id, at_ts, evaluated_to, pending, open_alerts)
+     SELECT $1, $2::timestamptz, (SELECT evaluated_to FROM alert_unit_state WHERE unit_id = $1),
+            coalesce((SELECT jsonb_agg(to_jsonb(p)) FROM alert_pending p WHERE p.unit_id = $1 AND p.kind <> ALL($3::text[])), '[]'),
+            coalesce((SELECT jsonb_agg(to_jsonb(a)) FROM alerts a WHERE a.unit_id = $1 AND a.closed_at IS NULL AND a.kind <> ALL($3::text[])), '[]')
+     ON CONFLICT (unit_id, at_ts) DO UPDATE SET evaluated_to = excluded.evaluated_to, pending = excluded.pending, open_alerts = excluded.open_alerts`,
+    [unitId, isoMicros(atMs), SKIP],
+  );
+}
+
+export interface Rewind {
+  /** The ring time analysis went back to (-Infinity: the unit's first ring). */
+  pointMs: number;
+  /** The new watermark: the last ring before the point (null: none). */
+  watermarkMs: number | null;
+  /** Alerts removed, and alerts kept but withdrawn because a person had acted on them. */
+  removedAlerts: number;
+  withdrawnAlerts: number;
+}
+
+/**
+ * Rewinds the unit's analysis to the latest mark at or before fromMs (see the file comment).
+ * The caller holds the unit (its claim row locked) and has checked reanalyse_from is set.
+ */
+export async function rewindTo(c: Queryable, unitId: string, fromMs: number): Promise<Rewind> {
+  const mark = await c.query(
+    `SELECT ${msOf('at_ts')} AS at_ms, evaluated_to, pending, open_alerts FROM alert_state_marks
+      WHERE unit_id = $1 AND at_ts <= $2::timestamptz ORDER BY at_ts DESC LIMIT 1`,
+    [unitId, isoMicros(fromMs)],
+  );
+  const m = mark.rows[0] as { at_ms: number; evaluated_to: Date | null; pending: unknown[]; open_alerts: unknown[] } | undefined;
+  const pointMs = m ? Number(m.at_ms) : -Infinity;
+  const point = m ? isoMicros(pointMs) : '-infinity';
+  const args = [unitId, point, SKIP];
+
+  // Alerts the rules raised from the point on: removed, or withdrawn where a person acted on one.
+  const acted = `EXISTS (SELECT 1 FROM alert_history h WHERE h.alert_id = a.id AND h.by IS NOT NULL)`;
+  const withdrawn = await c.query(
+    `WITH w AS (UPDATE alerts a SET active = false, closed_at = now(), cleared_at = coalesce(a.cleared_at, now()), updated_at = now()
+                 WHERE a.unit_id = $1 AND a.raised_at >= $2::timestamptz AND a.kind <> ALL($3::text[]) AND a.closed_at IS NULL AND ${acted}
+                 RETURNING a.id, a.unit_id, a.grade)
+     INSERT INTO alert_history (alert_id, unit_id, at, action, grade, details)
+     SELECT id, unit_id, now(), 'withdrawn', grade, '{"cause":"the rings were judged again and the condition is no longer found then"}'::jsonb FROM w`,
+    args,
+  );
+  const removed = await c.query(`DELETE FROM alerts a WHERE a.unit_id = $1 AND a.raised_at >= $2::timestamptz AND a.kind <> ALL($3::text[]) AND NOT ${acted}`, args);
+  // The rules' own history rows from the point on (people's actions stay).
+  await c.query(
+    `DELETE FROM alert_history h USING alerts a
+      WHERE h.alert_id = a.id AND a.unit_id = $1 AND a.kind <> ALL($3::text[]) AND h.unit_id = $1 AND h.at >= $2::timestamptz AND h.by IS NULL
+        AND h.action IN ('raised', 'reactivated', 'escalated', 'deescalated', 'returned_to_normal')`,
+    args,
+  );
+  // The alerts open at the mark, as the rules had them then; people's acknowledgement and shelf as they are now.
+  if (m && m.open_alerts.length) {
+    await c.query(
+      `UPDATE alerts a SET grade = s.grade, chamber = s.chamber, thermocouple = s.thermocouple, active = s.active,
+              acknowledged = CASE WHEN a.acked_at IS NOT NULL AND (s.acked_at IS NULL OR a.acked_at > s.acked_at) THEN a.acknowledged ELSE s.acknowledged END,
+              acked_at = CASE WHEN a.acked_at IS NOT NULL AND (s.acked_at IS NULL OR a.acked_at > s.acked_at) THEN a.acked_at ELSE s.acked_at END,
+              acked_by = CASE WHEN a.acked_at IS NOT NULL AND (s.acked_at IS NULL OR a.acked_at > s.acked_at) THEN a.acked_by ELSE s.acked_by END,
+              ack_comment = CASE WHEN a.acked_at IS NOT NULL AND (s.acked_at IS NULL OR a.acked_at > s.acked_at) THEN a.ack_comment ELSE s.ack_comment END,
+              last_changed_at = s.last_changed_at, cleared_at = s.cleared_at, closed_at = NULL, message = s.message, advice = s.advice,
+              evidence = s.evidence, likelihood = s.likelihood, runner_up_chamber = s.runner_up_chamber, runner_up_likelihood = s.runner_up_likelihood,
+              baseline_version = s.baseline_version, last_seen_at = s.last_seen_at, absent_since = s.absent_since, pending_grade = s.pending_grade,
+              pending_grade_since = s.pending_grade_since, updated_at = now()
+         FROM jsonb_populate_recordset(NULL::alerts, $2::jsonb) s
+        WHERE a.id = s.id AND a.unit_id = $1`,
+      [unitId, JSON.stringify(m.open_alerts)],
+    );
+  }
+  await c.query(`DELETE FROM alert_pending WHERE unit_id = $1 AND kind <> ALL($2::text[])`, [unitId, SKIP]);
+  if (m && m.pending.length) {
+    await c.query(
+      `INSERT INTO alert_pending (unit_id, condition_key, kind, since, last_seen, grade, finding)
+       SELECT $1, p.condition_key, p.kind, p.since, p.last_seen, p.grade, p.finding FROM jsonb_populate_recordset(NULL::alert_pending, $2::jsonb) p`,
+      [unitId, JSON.stringify(m.pending)],
+    );
+  }
+  await c.query(`UPDATE alert_unit_state SET evaluated_to = $2 WHERE unit_id = $1`, [unitId, m ? m.evaluated_to : null]);
+  await c.query(`DELETE FROM alert_state_marks WHERE unit_id = $1 AND at_ts > $2::timestamptz`, [unitId, point]);
+
+  // What was derived from the rings from the point on.
+  await c.query(`DELETE FROM analysis_rollups WHERE unit_id = $1 AND bucket >= $2::timestamptz`, [unitId, point]);
+  await c.query(`DELETE FROM drift_daily WHERE unit_id = $1 AND day >= $2::timestamptz::date`, [unitId, point]);
+  await c.query(`DELETE FROM drift_state WHERE unit_id = $1`, [unitId]);
+
+  const wm = await c.query(
+    `UPDATE analysis_progress p
+        SET reanalysis_to = greatest(coalesce(p.reanalysis_to, '-infinity'), p.watermark_ts),
+            reanalysis_from = least(coalesce(p.reanalysis_from, 'infinity'), $2::timestamptz),
+            reanalyse_from = NULL,
+            watermark_ts = (SELECT max(ts) FROM rings WHERE unit_id = $1 AND ts < $2::timestamptz),
+            rollups_to = coalesce((SELECT max(ts) FROM rings WHERE unit_id = $1 AND ts < $2::timestamptz), '-infinity'),
+            updated_at = now()
+      WHERE p.unit_id = $1
+      RETURNING ${msOf('p.watermark_ts')} AS wm_ms`,
+    [unitId, point],
+  );
+  const w = wm.rows[0]?.wm_ms;
+  return { pointMs, watermarkMs: w === null || w === undefined ? null : Number(w), removedAlerts: removed.rowCount ?? 0, withdrawnAlerts: withdrawn.rowCount ?? 0 };
+}
+
+/** Ends the unit's re-analysis once its watermark has reached reanalysis_to. */
+export async function finishReanalysisReached(c: Queryable, unitIds: string[]): Promise<void> {
+  if (unitIds.length === 0) return;
+  await c.query(
+    `UPDATE analysis_progress SET reanalysis_to = NULL, reanalysis_from = NULL
+      WHERE unit_id = ANY($1::text[]) AND reanalysis_to IS NOT NULL AND watermark_ts >= reanalysis_to`,
+    [unitIds],
+  );
+}
