@@ -1,13 +1,14 @@
 /**
- * Baselines against corrected load (DOMAIN §7): the unit's own normal value of a quantity as a
+ * Baselines against corrected load: the unit's own normal value of a quantity as a
  * function of corrected load, learnt from a reference window. Binned robust statistics (median,
- * MAD, a high quantile, count per bin), linear interpolation between bin centres, and "no
+ * MAD, a high quantile, count per bin, and the median load of the bin's rings), linear
+ * interpolation between the bins' median loads (not their centres: at base load the rings sit
+ * at one edge of their bin), and "no
  * baseline" (null) where a bin is thin or the load is outside the fitted range: never an
  * extrapolation. A unit baseline is versioned and serialisable; the fit time and author are
  * parameters, never read from a clock.
  */
 import { MAD_TO_SIGMA } from './stats.ts';
-import type { RingAnalysis } from './ring.ts';
 
 export interface BaselineOptions {
   /** Bin width, load fraction (0.05 = 5 % bins). */
@@ -21,14 +22,50 @@ export interface BaselineOptions {
   highQuantile: number;
 }
 
-/** Defaults: 5 % bins (DOMAIN §7's example) from 0 to 120 % load; 30 samples per bin; 95th percentile. */
+/** Defaults: 5 % bins from 0 to 120 % load; 30 samples per bin; 95th percentile. */
 export const defaultBaselineOptions: BaselineOptions = { binWidth: 0.05, loadMin: 0, loadMax: 1.2, minCount: 30, highQuantile: 0.95 };
+
+/** The defaults with a unit's configured bin width and the rings a bin needs. */
+export function baselineOptionsFor(settings: { baselineBinWidth: number; baselineMinBinCount: number }): BaselineOptions {
+  return { ...defaultBaselineOptions, binWidth: settings.baselineBinWidth, minCount: settings.baselineMinBinCount };
+}
+
+/** Number of load bins: loadMin to loadMax in steps of binWidth (the last one may reach past loadMax). */
+export function loadBinCount(options: BaselineOptions): number {
+  return Math.max(1, Math.ceil((options.loadMax - options.loadMin) / options.binWidth - 1e-9));
+}
+
+/** What a reference window offers a fit: its steady rings, and how many the fullest load bin holds. */
+export interface WindowSupply {
+  steadyRings: number;
+  fullestBin: number;
+}
+
+/**
+ * Why no baseline can be fitted over [fromMs, toMs) with this supply of steady rings, or null
+ * when one can: the window must hold steady analysed rings, and at least one load bin must
+ * hold `minCount` of them (a thinner bin is "no baseline here", and a baseline of thin bins
+ * only would judge nothing). The same check refuses a request at the door and fails a fit.
+ */
+export function baselineWindowProblem(unitId: string, fromMs: number, toMs: number, supply: WindowSupply, minCount: number): string | null {
+  const from = new Date(fromMs).toISOString();
+  const to = new Date(toMs).toISOString();
+  if (supply.steadyRings === 0) return `unit ${unitId} has no steady analysed rings between ${from} and ${to}`;
+  if (supply.fullestBin < minCount) return `no load bin between ${from} and ${to} holds ${minCount} steady rings (the fullest holds ${supply.fullestBin}); choose a longer window`;
+  return null;
+}
 
 /** One load bin. Statistics are null when the bin is thin. */
 export interface BaselineBin {
   loFraction: number;
   hiFraction: number;
   count: number;
+  /**
+   * Median corrected load of the bin's rings, fraction: where the bin's statistics belong on the
+   * load axis (null when the bin is thin; absent in baselines fitted before it was kept, which
+   * are read at the bin centre).
+   */
+  loadMedian?: number | null;
   median: number | null;
   /** Median absolute deviation (unscaled). */
   mad: number | null;
@@ -63,8 +100,9 @@ export function fitBinnedBaseline(
   options: BaselineOptions = defaultBaselineOptions,
 ): BinnedBaseline {
   const w = options.binWidth;
-  const nb = Math.max(1, Math.ceil((options.loadMax - options.loadMin) / w - 1e-9));
+  const nb = loadBinCount(options);
   const buckets: number[][] = Array.from({ length: nb }, () => []);
+  const bucketLoads: number[][] = Array.from({ length: nb }, () => []);
   const len = Math.min(loadFractions.length, values.length);
   for (let i = 0; i < len; i++) {
     const l = loadFractions[i];
@@ -73,14 +111,15 @@ export function fitBinnedBaseline(
     const b = Math.floor((l - options.loadMin) / w);
     if (b < 0 || b >= nb) continue;
     buckets[b].push(v);
+    bucketLoads[b].push(l);
   }
-  const bins: BaselineBin[] = buckets.map((vals, b) => binStats(vals, options.loadMin + b * w, options.loadMin + (b + 1) * w, options));
+  const bins: BaselineBin[] = buckets.map((vals, b) => binStats(vals, bucketLoads[b], options.loadMin + b * w, options.loadMin + (b + 1) * w, options));
   return { binWidth: w, loadMin: options.loadMin, minCount: options.minCount, highQuantile: options.highQuantile, bins };
 }
 
-function binStats(vals: number[], lo: number, hi: number, options: BaselineOptions): BaselineBin {
+function binStats(vals: number[], loads: number[], lo: number, hi: number, options: BaselineOptions): BaselineBin {
   const count = vals.length;
-  if (count < options.minCount || count === 0) return { loFraction: lo, hiFraction: hi, count, median: null, mad: null, high: null };
+  if (count < options.minCount || count === 0) return { loFraction: lo, hiFraction: hi, count, loadMedian: null, median: null, mad: null, high: null };
   // Order statistics by selection, not a full sort: the same values as medianOfSorted and
   // quantileOfSorted of the sorted bin (the bins of a month of rings hold thousands of values).
   const s = Float64Array.from(vals);
@@ -93,7 +132,8 @@ function binStats(vals: number[], lo: number, hi: number, options: BaselineOptio
   const high = atLo + (q - qlo) * (atHi - atLo);
   const dev = new Float64Array(count);
   for (let i = 0; i < count; i++) dev[i] = Math.abs(s[i] - med);
-  return { loFraction: lo, hiFraction: hi, count, median: med, mad: medianBySelection(dev, count), high };
+  const loadMedian = medianBySelection(Float64Array.from(loads), count);
+  return { loFraction: lo, hiFraction: hi, count, loadMedian, median: med, mad: medianBySelection(dev, count), high };
 }
 
 /**
@@ -152,10 +192,15 @@ function medianBySelection(a: Float64Array, n: number): number {
 /** Where a load falls among the bins (see locate); one per module, filled by each call. */
 const LOC: { bin: BaselineBin; other: BaselineBin | null; t: number } = { bin: null as unknown as BaselineBin, other: null, t: 0 };
 
+/** Where a bin's statistics sit on the load axis: its rings' median load, or its centre in a baseline that did not keep it. */
+function binLoad(bin: BaselineBin): number {
+  return typeof bin.loadMedian === 'number' ? bin.loadMedian : 0.5 * (bin.loFraction + bin.hiFraction);
+}
+
 /**
- * Finds L's bin and, when it is fitted too, the neighbouring bin on L's side of the centre, with
- * the interpolation weight t (0 at the centre, 1 at the neighbour's); false when L is outside the
- * bins or its bin is thin.
+ * Finds L's bin and, when it is fitted too, the neighbouring bin on L's side of the bin's median
+ * load, with the interpolation weight t (0 at this bin's median load, 1 at the neighbour's);
+ * false when L is outside the bins or its bin is thin.
  */
 function locate(b: BinnedBaseline, loadFraction: number): boolean {
   if (!Number.isFinite(loadFraction)) return false;
@@ -164,19 +209,20 @@ function locate(b: BinnedBaseline, loadFraction: number): boolean {
   if (i < 0 || i >= b.bins.length) return false;
   const bin = b.bins[i];
   if (bin.median === null) return false;
-  const centre = b.loadMin + (i + 0.5) * w;
-  const j = loadFraction >= centre ? i + 1 : i - 1;
+  const at = binLoad(bin);
+  const j = loadFraction >= at ? i + 1 : i - 1;
   const other = j >= 0 && j < b.bins.length ? b.bins[j] : null;
   LOC.bin = bin;
   LOC.other = other && other.median !== null ? other : null;
-  LOC.t = Math.abs(loadFraction - centre) / w;
+  const gap = LOC.other ? Math.abs(binLoad(LOC.other) - at) : 0;
+  LOC.t = gap > 0 ? Math.min(1, Math.abs(loadFraction - at) / gap) : 0;
   return true;
 }
 
 /**
  * The baseline at load L: find L's bin; null if outside the bins or thin. Interpolate linearly
- * towards the neighbouring bin centre on L's side when that bin is fitted too; otherwise the
- * bin's own values. scale = 1.4826·MAD.
+ * between the bin's median load and the neighbouring bin's, on L's side, when that bin is
+ * fitted too; otherwise the bin's own values. scale = 1.4826·MAD.
  */
 export function baselineAt(b: BinnedBaseline, loadFraction: number): BaselineValue | null {
   if (!locate(b, loadFraction)) return null;
@@ -220,17 +266,6 @@ export interface BaselineSample {
   spreadDegC: number;
   thermocoupleDeviationDegC: ArrayLike<number | null>;
   chamberDeviationDegC: ArrayLike<number | null>;
-}
-
-/** A copy of the parts of a ring analysis a baseline needs. */
-export function baselineSampleFromAnalysis(a: RingAnalysis): BaselineSample {
-  return {
-    loadFraction: a.loadFraction,
-    ringMeanDegC: a.spread.meanDegC,
-    spreadDegC: a.spread.spreadDegC,
-    thermocoupleDeviationDegC: a.deviationDegC.slice(),
-    chamberDeviationDegC: a.chamberDeviationDegC.slice(),
-  };
 }
 
 /** Who fitted a baseline, over which window, and when (all given by the caller). */

@@ -1,5 +1,5 @@
 /**
- * Swirl calibration from data (DOMAIN §6): in a window where one chamber is known to be cold,
+ * Swirl calibration from data: in a window where one chamber is known to be cold,
  * locate its plume on the ring at each load by circular cross-correlation of the deviation
  * profile with the single-plume kernel, refine to sub-thermocouple resolution, and fit ψ(L)
  * (piecewise linear or a low-order polynomial). Returns the curve with its residuals. Pure.
@@ -105,6 +105,7 @@ export function locateColdPlumeDeg(tcAnglesDeg: ArrayLike<number>, deviationsDeg
  * Calibrates ψ(L) from rings in which chamber `chamber` (numbered from 1) is known to be cold.
  * Each ring gives a point (L, s·(plume − φₖ)); swirl values are unwrapped around their circular
  * mean so a curve crossing 0°/360° stays continuous; then the curve is fitted by least squares.
+ * The curve's angles are within −360°…360°, ready for a unit's swirl.curve.
  */
 export function calibrateSwirl(
   config: Pick<UnitConfig, 'thermocouples' | 'chambers' | 'swirl'>,
@@ -146,7 +147,9 @@ export function calibrateSwirl(
     sx += Math.cos((p.swirlDeg * Math.PI) / 180);
     sy += Math.sin((p.swirlDeg * Math.PI) / 180);
   }
-  const meanDeg = wrapDeg((Math.atan2(sy, sx) * 180) / Math.PI);
+  // The mean is taken in (−180°, 180°], so every point lies within 360° of 0°, as a unit's
+  // configuration requires (swirl.curve angles from −360° to 360°).
+  const meanDeg = signedArcDeg(0, (Math.atan2(sy, sx) * 180) / Math.PI);
   for (const p of raw) p.swirlDeg = meanDeg + signedArcDeg(meanDeg, p.swirlDeg);
   const loads = raw.map((p) => p.loadFraction);
   const swirl = raw.map((p) => p.swirlDeg);
@@ -158,7 +161,16 @@ export function calibrateSwirl(
     ss += r * r;
     return { ...p, fittedDeg: f, residualDeg: r };
   });
-  return { chamber, method: o.method, curve: model.curve, points, rmsResidualDeg: Math.sqrt(ss / points.length), rejected };
+  return { chamber, method: o.method, curve: model.curve.map(([l, d]) => [l, withinConfigRange(d)] as SwirlPoint), points, rmsResidualDeg: Math.sqrt(ss / points.length), rejected };
+}
+
+/**
+ * A fitted swirl angle as a unit's configuration accepts it (−360° to 360°): as it is when it
+ * fits, else the same direction in (−180°, 180°] (swirlDeg interpolates the shorter way round,
+ * so the curve means the same).
+ */
+function withinConfigRange(deg: number): number {
+  return deg >= -360 && deg <= 360 ? deg : signedArcDeg(0, deg);
 }
 
 interface FittedCurve {
@@ -179,7 +191,10 @@ function basisCombination(basis: (v: number, out: Float64Array) => void, coef: A
 
 /**
  * Least-squares piecewise-linear fit with hat basis functions at the knots (clamped outside).
- * A tiny ridge keeps knots without nearby data determined (they follow their neighbours).
+ * A tiny penalty on the slope between neighbouring knots, λ·Σⱼ (cⱼ₊₁ − cⱼ)² / (kⱼ₊₁ − kⱼ), keeps
+ * knots without nearby data determined: such a knot follows its neighbours (it lies on the line
+ * between the nearest supported knots either side, or holds the nearest one's value at an end)
+ * instead of falling to 0°; where data are, the penalty is too small to move the fit.
  */
 export function fitPiecewiseLinear(x: readonly number[], y: readonly number[], knotsIn?: number[]): FittedCurve {
   const lo = Math.min(...x);
@@ -210,7 +225,18 @@ export function fitPiecewiseLinear(x: readonly number[], y: readonly number[], k
       }
     }
   };
-  const coef = leastSquares(x, y, p, basis, 1e-6);
+  // Slope penalty DᵀWD, W = 1 / knot spacing relative to the mean spacing.
+  const penalty = new Float64Array(p * p);
+  const meanGap = p > 1 ? (knots[p - 1] - knots[0]) / (p - 1) : 1;
+  for (let j = 0; j + 1 < p; j++) {
+    const gap = knots[j + 1] - knots[j];
+    const w = gap > 0 ? meanGap / gap : 1;
+    penalty[j * p + j] += w;
+    penalty[(j + 1) * p + j + 1] += w;
+    penalty[j * p + j + 1] -= w;
+    penalty[(j + 1) * p + j] -= w;
+  }
+  const coef = leastSquares(x, y, p, basis, 1e-6, penalty);
   const evaluate = basisCombination(basis, coef);
   return { evaluate, curve: knots.map((k, j) => [k, coef[j]] as SwirlPoint) };
 }
@@ -235,7 +261,11 @@ export function fitPolynomial(x: readonly number[], y: readonly number[], degree
   return { evaluate, curve: samplesAt.map((l) => [l, evaluate(l)] as SwirlPoint) };
 }
 
-function leastSquares(x: readonly number[], y: readonly number[], p: number, basis: (v: number, out: Float64Array) => void, ridge: number): Float64Array {
+/**
+ * Least squares on a basis with a penalty: minimises Σᵢ (yᵢ − Σⱼ cⱼ·bⱼ(xᵢ))² + λ·cᵀPc with
+ * λ = weight · (mean diagonal of BᵀB); P is the identity (a ridge towards 0) unless given.
+ */
+function leastSquares(x: readonly number[], y: readonly number[], p: number, basis: (v: number, out: Float64Array) => void, weight: number, penalty?: Float64Array): Float64Array {
   const a = new Float64Array(p * p);
   const rhs = new Float64Array(p);
   const b = new Float64Array(p);
@@ -248,7 +278,9 @@ function leastSquares(x: readonly number[], y: readonly number[], p: number, bas
   }
   let tr = 0;
   for (let r = 0; r < p; r++) tr += a[r * p + r];
-  for (let r = 0; r < p; r++) a[r * p + r] += ridge * (tr / p || 1);
+  const lambda = weight * (tr / p || 1);
+  if (penalty) for (let r = 0; r < p * p; r++) a[r] += lambda * penalty[r];
+  else for (let r = 0; r < p; r++) a[r * p + r] += lambda;
   if (!solveInPlace(a, rhs, p, 1)) rhs.fill(NaN);
   return rhs;
 }

@@ -1,5 +1,5 @@
 /**
- * Drift and change (DOMAIN §8): robust aggregates of residuals per period, drift rate by linear
+ * Drift and change: robust aggregates of residuals per period, drift rate by linear
  * regression with a confidence interval (°C per 30 days and per 1000 fired hours), two-sided
  * tabular CUSUM and EWMA on standardised residuals as serialisable incremental state, and
  * removal of the common-mode part shared by all chambers. Pure; time is a parameter.

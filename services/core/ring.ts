@@ -19,7 +19,7 @@ import { arcDistanceDeg, chamberAnglesDeg, chamberPitchDeg, thermocoupleAnglesDe
 import { emptySpread, spreadInto, type SpreadMetrics } from './spread.ts';
 import { madOfSorted, medianOfSorted, sortPrefixInPlace } from './stats.ts';
 import { swirlDeg } from './swirl.ts';
-import { baselineMedianAt, type UnitBaseline } from './baseline.ts';
+import { baselineMedianAt, type BaselineSample, type UnitBaseline } from './baseline.ts';
 import { checkUnitConfig, MAX_THERMOCOUPLES } from './unit-config.ts';
 import { VALIDITY, VALIDITY_REASONS, type PlumeKernel, type Reading, type UnitConfig, type ValidityReason } from './types.ts';
 import {
@@ -493,10 +493,17 @@ export interface BaselineResiduals {
   /** Per thermocouple: its deviation less its own normal at this load (NaN: invalid, or no normal here). */
   thermocoupleDegC: Float64Array;
   /**
-   * Per chamber: the chamber map of that pattern, without the thermocouple that departs alone
-   * (null: too few thermocouples with a residual).
+   * Per chamber: the chamber map of that pattern, without the thermocouple that departs alone,
+   * less the chambers' common mode (null: too few thermocouples with a residual).
    */
   chamberDegC: Float64Array | null;
+  /**
+   * What the chambers share, removed from chamberDegC: the median of the mapped chamber
+   * departures, °C (NaN without a map). The map gives departures from the average chamber, so
+   * one chamber going cold by D lifts the other N − 1 by D/N each; their median takes that
+   * back, so healthy chambers stay at their noise while one chamber goes cold.
+   */
+  chamberCommonModeDegC: number;
   /** One-σ uncertainty of each chamber residual, from how well the map fits the departures, °C. */
   chamberUncertaintyDegC: Float64Array | null;
   /**
@@ -522,6 +529,7 @@ export interface ResidualBuffers {
   readonly values: Float64Array;
   readonly scratch: Float64Array;
   readonly fit: Float64Array;
+  readonly chamberSorted: Float64Array;
 }
 
 export function createResidualBuffers(m: number, n: number): ResidualBuffers {
@@ -536,6 +544,18 @@ export function createResidualBuffers(m: number, n: number): ResidualBuffers {
     values: new Float64Array(m),
     scratch: new Float64Array(m),
     fit: new Float64Array(n + 1),
+    chamberSorted: new Float64Array(n),
+  };
+}
+
+/** A copy of the parts of a ring analysis a baseline needs. */
+export function baselineSampleFromAnalysis(a: RingAnalysis): BaselineSample {
+  return {
+    loadFraction: a.loadFraction,
+    ringMeanDegC: a.spread.meanDegC,
+    spreadDegC: a.spread.spreadDegC,
+    thermocoupleDeviationDegC: a.deviationDegC.slice(),
+    chamberDeviationDegC: a.chamberDeviationDegC.slice(),
   };
 }
 
@@ -548,7 +568,7 @@ export function baselineResiduals(ctx: UnitContext, a: RingAnalysis, baseline: U
  * baselineResiduals written into `buf`: the arrays of the result are buf's own, valid until the
  * next call with the same buffers (copy them to keep them).
  */
-export function baselineResidualsInto(ctx: UnitContext, a: RingAnalysis, baseline: UnitBaseline, buf: ResidualBuffers): BaselineResiduals {
+export function baselineResidualsInto(ctx: UnitContext, a: RingAnalysis, baseline: UnitBaseline, buf: ResidualBuffers, probeOffsetsDegC: ArrayLike<number> | null = null): BaselineResiduals {
   const m = ctx.m;
   const tc = buf.thermocoupleDegC;
   const L = a.loadFraction;
@@ -557,6 +577,9 @@ export function baselineResidualsInto(ctx: UnitContext, a: RingAnalysis, baselin
     const median = bt ? baselineMedianAt(bt, L) : NaN;
     tc[i] = median === median ? a.deviationDegC[i] - median : NaN;
   }
+  // A replaced probe reads with its own offset, learnt against this baseline: taken off its
+  // residual (NaN while not learnt: the probe is not judged against its normal meanwhile).
+  if (probeOffsetsDegC) for (let i = 0; i < m; i++) if (probeOffsetsDegC[i] !== 0) tc[i] -= probeOffsetsDegC[i];
   // The lone test looks at departures from the ring's common departure (their median): one
   // probe reading low pulls the ring's centre, and so every other probe's residual, up a little.
   const finite = buf.finite;
@@ -575,12 +598,25 @@ export function baselineResidualsInto(ctx: UnitContext, a: RingAnalysis, baselin
     mapped[lone.index] = NaN;
   }
   const map = chamberMapInto(ctx, a.loadFraction, mapped, buf);
+  const chamberCommon = map ? removeMedianInPlace(buf.chamberDegC, ctx.n, buf.chamberSorted) : NaN;
   return {
     thermocoupleDegC: tc,
     chamberDegC: map ? buf.chamberDegC : null,
+    chamberCommonModeDegC: chamberCommon,
     chamberUncertaintyDegC: map ? buf.chamberUncertaintyDegC : null,
     lone: lone ? { thermocouple: lone.index + 1, residualDegC: lone.value } : null,
   };
+}
+
+/** Subtracts the median of the finite values of v[0..n) from each (using `sorted` as room); returns the median (NaN: none finite, v unchanged). */
+function removeMedianInPlace(v: Float64Array, n: number, sorted: Float64Array): number {
+  let nf = 0;
+  for (let k = 0; k < n; k++) if (Number.isFinite(v[k])) sorted[nf++] = v[k];
+  if (nf === 0) return NaN;
+  sortPrefixInPlace(sorted, nf);
+  const med = medianOfSorted(sorted, nf);
+  for (let k = 0; k < n; k++) v[k] -= med;
+  return med;
 }
 
 /**

@@ -3,13 +3,15 @@
  * a function of corrected load fraction L, from a unit's curve (piecewise linear, clamped at
  * the ends). Forward and inverse mapping between chambers and ring angles.
  */
-import { chamberPitchDeg, wrapDeg } from './geometry.ts';
+import { chamberPitchDeg, signedArcDeg, wrapDeg } from './geometry.ts';
 import type { SwirlPoint, UnitConfig } from './types.ts';
 
 /**
  * ψ(L) in degrees by linear interpolation on the curve's points (sorted by load), clamped to
  * the first and last point outside the curve's range. A curve of one point is a constant.
- * Example: curve [[0.3, 92], [1.0, 55]], L = 0.65 → 73.5.
+ * Between two points the angle moves the shorter way round, so a curve may cross 0°/360°; the
+ * result is then wrapped into [0, 360). Examples: curve [[0.3, 92], [1.0, 55]], L = 0.65 → 73.5;
+ * curve [[0.3, 350], [1.0, 20]], L = 0.65 → 350 + 0.5·30 = 365 → 5.
  */
 export function swirlDeg(curve: readonly SwirlPoint[], loadFraction: number): number {
   const n = curve.length;
@@ -21,7 +23,9 @@ export function swirlDeg(curve: readonly SwirlPoint[], loadFraction: number): nu
     if (loadFraction <= l1) {
       const [l0, s0] = curve[i - 1];
       const t = l1 === l0 ? 0 : (loadFraction - l0) / (l1 - l0);
-      return s0 + t * (s1 - s0);
+      const d = s1 - s0;
+      if (d <= 180 && d >= -180) return s0 + t * d;
+      return wrapDeg(s0 + t * signedArcDeg(s0, s1));
     }
   }
   return curve[n - 1][1];

@@ -20,8 +20,8 @@ export function celsiusToKelvin(degC: number): number {
   return degC + KELVIN_OFFSET;
 }
 
-// NIST ITS-90 Type K reference function, 0 °C to 1372 °C (NIST Monograph 175; coefficients as
-// given in shared/reference/README.md): E = Σ cᵢ tⁱ + a0·exp(a1·(t − a2)²), mV.
+// NIST ITS-90 Type K reference function, 0 °C to 1372 °C (coefficients of NIST Monograph 175):
+// E = Σ cᵢ tⁱ + a0·exp(a1·(t − a2)²), mV.
 const K_POS_C = [
   -1.76004136860e-2, 3.8921204975e-2, 1.8558770032e-5, -9.9457592874e-8, 3.1840945719e-10,
   -5.6072844889e-13, 5.6075059059e-16, -3.2020720003e-19, 9.7151147152e-23, -1.2104721275e-26,
@@ -86,9 +86,21 @@ export function typeKMeasuredMv(hotC: number, coldJunctionC: number): number {
 }
 
 /**
+ * Temperatures over which IEC 60584-1 gives each Type K tolerance class, °C: class 1 from −40 to
+ * 1000 °C, class 2 from −40 to 1200 °C (from memory of the standard's table).
+ */
+export const TYPE_K_CLASS_RANGE_C: Readonly<Record<1 | 2, readonly [number, number]>> = { 1: [-40, 1000], 2: [-40, 1200] };
+
+/**
  * IEC 60584-1 tolerance of a Type K thermocouple, ± °C: class 1 the larger of 1.5 °C and
- * 0.004·|t|; class 2 the larger of 2.5 °C and 0.0075·|t|.
+ * 0.004·|t|; class 2 the larger of 2.5 °C and 0.0075·|t|. Outside the class's range
+ * (TYPE_K_CLASS_RANGE_C) the standard gives none, and this throws a RangeError saying so.
  */
 export function typeKToleranceC(degC: number, tolClass: 1 | 2): number {
+  const range = TYPE_K_CLASS_RANGE_C[tolClass];
+  if (!range) throw new RangeError(`IEC 60584-1 tolerance class must be 1 or 2 for Type K, got ${String(tolClass)}`);
+  if (!(degC >= range[0] && degC <= range[1])) {
+    throw new RangeError(`IEC 60584-1 gives no class ${tolClass} tolerance for Type K at ${degC} °C: class ${tolClass} covers ${range[0]} to ${range[1]} °C`);
+  }
   return tolClass === 1 ? Math.max(1.5, 0.004 * Math.abs(degC)) : Math.max(2.5, 0.0075 * Math.abs(degC));
 }

@@ -1,6 +1,6 @@
 /**
  * Consistency checks of a unit configuration beyond field types: angle lists that match their
- * counts, distinct thermocouple positions, a swirl curve sorted by load. Returns every problem
+ * counts, distinct thermocouple positions in ring order, a swirl curve sorted by load. Returns every problem
  * found, each naming its field, so a person can correct them all at once.
  */
 import type { UnitConfig } from './types.ts';
@@ -13,6 +13,21 @@ export interface ConfigProblem {
 export const SWIRL_LOAD_MAX = 1.2;
 /** Largest thermocouple count the analysis supports (its validity-mask key). */
 export const MAX_THERMOCOUPLES = 64;
+
+/**
+ * Where an angle list (distinct angles in [0, 360)) leaves ring order: the index of the angle
+ * that steps back, or 0 when the list goes once round in increasing angle. Going round once,
+ * the list steps back exactly once counting the step from the last angle to the first (at 360°,
+ * wherever the list starts); a second step back is the one named.
+ */
+export function outOfRingOrder(anglesDeg: readonly number[]): number {
+  const m = anglesDeg.length;
+  const back: number[] = [];
+  for (let i = 1; i < m; i++) if (anglesDeg[i] < anglesDeg[i - 1]) back.push(i);
+  const wraps = m > 1 && anglesDeg[0] < anglesDeg[m - 1] ? 1 : 0;
+  if (back.length + wraps <= 1) return 0;
+  return back.length >= 2 ? back[1] : back[0];
+}
 
 export function checkUnitConfig(c: UnitConfig): ConfigProblem[] {
   const problems: ConfigProblem[] = [];
@@ -39,6 +54,15 @@ export function checkUnitConfig(c: UnitConfig): ConfigProblem[] {
       if (seen.has(a)) problems.push({ field: `thermocouples.anglesDeg.${i}`, reason: `${a}° is given twice` });
       seen.add(a);
     });
+    if (!problems.length) {
+      const out = outOfRingOrder(tc.anglesDeg);
+      if (out > 0) {
+        problems.push({
+          field: `thermocouples.anglesDeg.${out}`,
+          reason: `${tc.anglesDeg[out]}° comes after ${tc.anglesDeg[out - 1]}°: the angles must increase round the ring in thermocouple order (each thermocouple further round than the one before, in the direction the angles are read; the list may pass 360° once, e.g. [350, 10, 30, …]), because a thermocouple's neighbours are found by its number`,
+        });
+      }
+    }
   }
   const curve = c.swirl?.curve;
   if (!Array.isArray(curve)) {

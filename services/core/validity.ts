@@ -30,8 +30,8 @@ export interface ValidityOptions {
   neighbourShareMinDegC: number;
   /**
    * Below this kernel response at the neighbour's angle, a plume can sit on one thermocouple
-   * alone and isolation cannot be decided from one ring (DOMAIN: only over time, by the window
-   * tests). With the default plume width this is the case for one thermocouple per chamber.
+   * alone and isolation cannot be decided from one ring, only over time (by the window tests:
+   * the reading does not move with load like its neighbours'). With the default plume width this is the case for one thermocouple per chamber.
    */
   minNeighbourResponse: number;
 }
@@ -148,7 +148,10 @@ export interface CoverageOptions {
   maxAdjacentInvalid: number;
 }
 
-/** Defaults from DOMAIN §3's example: fewer than 75 % valid, or two adjacent failed. */
+/**
+ * Defaults: coverage is degraded with fewer than 75 % of the thermocouples valid, or two adjacent
+ * ones failed (a chamber can hide behind dead sensors).
+ */
 export const defaultCoverageOptions: CoverageOptions = { minValidFraction: 0.75, maxAdjacentInvalid: 2 };
 
 export type CoverageReason = 'ok' | 'too_few_valid' | 'adjacent_failed' | 'no_valid';

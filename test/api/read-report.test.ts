@@ -25,7 +25,7 @@ describe('cansight report', () => {
   it('writes the printable review and names the leading chamber', async () => {
     const lines: string[] = [];
     const file = path.join(dir, 'review.html');
-    expect(await reportCommand(['--unit', 'rep-a', '--out', file], { pool: t.db.pool, out: (l) => lines.push(l) })).toBe(0);
+    expect(await reportCommand(['--unit', 'rep-a', '--out', file], { pool: t.db.pool, settings: t.config.worker, out: (l) => lines.push(l) })).toBe(0);
     const html = readFileSync(file, 'utf8');
     expect(html).toContain('Pre-outage review: Report unit (rep-a)');
     expect(html).toMatch(/<td class="n">1<\/td><td>chamber 4<\/td>/);
@@ -37,14 +37,14 @@ describe('cansight report', () => {
     const file = path.join(dir, 'review.csv');
     const to = new Date().toISOString();
     const from = new Date(Date.now() - 10 * 86_400_000).toISOString();
-    expect(await reportCommand(['--unit', 'rep-a', '--out', file, '--csv', '--from', from, '--to', to], { pool: t.db.pool, out: () => {} })).toBe(0);
+    expect(await reportCommand(['--unit', 'rep-a', '--out', file, '--csv', '--from', from, '--to', to], { pool: t.db.pool, settings: t.config.worker, out: () => {} })).toBe(0);
     const csv = readFileSync(file, 'utf8');
     expect(csv.split('\r\n')[1]).toMatch(/^chamber,chamber,4,1,/);
     expect(csv).toContain(`window,${from} to ${to}`);
   });
 
   it('refuses missing options, a bad time and a too-long window, and answers 1 for an unknown unit', async () => {
-    const ctx = { pool: t.db.pool, out: () => {} };
+    const ctx = { pool: t.db.pool, settings: t.config.worker, out: () => {} };
     await expect(reportCommand(['--out', 'x.html'], ctx)).rejects.toThrow(UsageError);
     await expect(reportCommand(['--unit', 'rep-a'], ctx)).rejects.toThrow(/--out/);
     await expect(reportCommand(['--unit', 'rep-a', '--out', 'x.html', '--from', 'last week'], ctx)).rejects.toThrow(/RFC 3339/);

@@ -4,7 +4,7 @@
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { ADVISORY_CAUTION } from '../../services/core/findings.ts';
-import { REVIEW_CSV_COLUMNS } from '../../services/api/routes/review.ts';
+import { REVIEW_CSV_COLUMNS } from '../../services/api/review/csv.ts';
 import { bearer, createTestApp, unitBody, type TestApp } from '../helpers/app.ts';
 import { DAY_MS, seedUnit } from './read-fixtures.ts';
 
@@ -18,7 +18,7 @@ beforeAll(async () => {
 });
 afterAll(async () => t.close());
 
-const escaped = (s: string) => s.replace(/&/g, '&amp;').replace(/</g, '&lt;').replace(/>/g, '&gt;').replace(/"/g, '&quot;');
+const escaped = (s: string) => s.replace(/&/g, '&amp;').replace(/</g, '&lt;').replace(/>/g, '&gt;').replace(/"/g, '&quot;').replace(/'/g, '&#39;');
 
 describe('GET /v1/units/:unitId/review', () => {
   it('ranks the cold, drifting, alarmed chamber first, lists the thermocouple to replace, and carries the cautions', async () => {

@@ -12,7 +12,7 @@ import {
 } from '../../services/core/correction.ts';
 
 describe('corrected parameters (similarity groups, ISO 3977-2 standard day)', () => {
-  // Source: worked arithmetic in shared/reference/README.md (30 °C, 99.0 kPa).
+  // Source: arithmetic worked by hand (30 °C, 99.0 kPa).
   const theta = thetaFromAmbientC(30);
   const delta = deltaFromAmbientKPa(99.0);
   it('θ = 1.052056 and δ = 0.977054 at 30 °C, 99.0 kPa', () => {

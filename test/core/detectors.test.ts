@@ -35,7 +35,7 @@ function ewmaArl(lambda: number, L: number, runs: number, seed: number): number 
 }
 
 describe('two-sided tabular CUSUM, k = 0.5 (Montgomery, Introduction to Statistical Quality Control)', () => {
-  // Source: ARL table for the tabular CUSUM with k = 1/2 (Montgomery), values in shared/reference/README.md.
+  // Source: ARL table for the tabular CUSUM with k = 1/2 (D. C. Montgomery, Introduction to Statistical Quality Control).
   // Run lengths are close to geometric, so the standard error of the mean is about ARL/√runs;
   // tolerances are about three standard errors.
   it('h = 4: in-control ARL ≈ 168 (±6 %)', () => {
@@ -64,7 +64,7 @@ describe('two-sided tabular CUSUM, k = 0.5 (Montgomery, Introduction to Statisti
 });
 
 describe('EWMA (Lucas & Saccucci 1990)', () => {
-  // Source: λ = 0.1, L = 2.814 gives in-control ARL ≈ 500 (shared/reference/README.md).
+  // Source: λ = 0.1, L = 2.814 gives in-control ARL ≈ 500 (published EWMA ARL tables, Lucas and Saccucci 1990; the value from memory).
   it('λ = 0.1, L = 2.814: in-control ARL ≈ 500 (±6 %)', () => {
     expect(Math.abs(ewmaArl(0.1, 2.814, 4000, 21) / 500 - 1)).toBeLessThan(0.06);
   });

@@ -42,6 +42,27 @@ describe('binned baseline', () => {
     // within a 5 % bin the value itself moves by 7.5 °C, so the robust scale is wider than the ±2 °C noise
     expect(v!.scale).toBeLessThan(4);
   });
+  it('places each bin at its rings\' median load, so a unit at base load (one edge of its bin) reads its own normal', () => {
+    // A value rising 150 °C per unit of load (worked by hand, no noise): part load spread over
+    // the 90–95 % bin, base load held at 95–97 % (the lower part of the 95–100 % bin, whose
+    // centre is 97.5 %). At 96 % the normal is 400 + 150·0.96 = 544 °C. Interpolating from the
+    // bin centres gives 544 + (0.975 − 0.96)/0.05 · (538.75 − 544) = 542.4 °C (the part-load
+    // bin's median, 538.75, belongs to 92.5 %): 1.6 °C of bias on every base-load ring.
+    const l: number[] = [];
+    const v: number[] = [];
+    for (let i = 0; i < 400; i++) {
+      const part = 0.9 + (0.05 * (i + 0.5)) / 400;
+      const base = 0.95 + (0.02 * (i + 0.5)) / 400;
+      l.push(part, base);
+      v.push(400 + 150 * part, 400 + 150 * base);
+    }
+    const edge = fitBinnedBaseline(l, v);
+    for (const at of [0.93, 0.945, 0.955, 0.96]) expect(baselineAt(edge, at)!.median).toBeCloseTo(400 + 150 * at, 1);
+    expect(edge.bins[19].loadMedian).toBeCloseTo(0.96, 6);
+    // A baseline stored before bins kept their median load is read at the bin centres, as it was fitted.
+    const old = { ...edge, bins: edge.bins.map(({ loadMedian: _omit, ...rest }) => rest) };
+    expect(baselineAt(old, 0.96)!.median).toBeCloseTo(544 + 0.3 * (538.75 - 544), 6);
+  });
   it('says "no baseline" in a thin bin and outside the bins instead of extrapolating', () => {
     expect(b.bins[2].count).toBe(1);
     expect(baselineAt(b, 0.12)).toBeNull();
@@ -138,11 +159,49 @@ describe('findings', () => {
     expect(degF).toBeCloseTo(degC * 1.8, 0);
     expect(inF.message).not.toContain('°C');
   });
-  it('a healthy ring gives no findings', () => {
-    const rand = mulberry32(4);
-    const dev = Array.from({ length: 10 }, () => (rand() - 0.5) * 6);
-    const a = analyseRing(ctx, ringFromChambers(config, dev, 0.8, 550, ctx.kernel), 0.8);
-    expect(evaluateFindings({ analysis: a, steady: true, history: { previousSteadySpreadDegC: a.spread.spreadDegC } })).toEqual([]);
+  describe('a ring near the limits, on both sides (no baseline: the spread limit is 45 °C, a chamber must stand 50 °C from the others)', () => {
+    /** Chambers within ±3 °C of each other, chamber 4 off by `chamber4DegC`. */
+    const ring = (chamber4DegC: number) => {
+      const rand = mulberry32(4);
+      const dev = Array.from({ length: 10 }, () => (rand() - 0.5) * 6);
+      dev[3] = chamber4DegC;
+      return ringFromChambers(config, dev, 0.8, 550, ctx.kernel);
+    };
+    // The spread worked out here from the readings themselves: hottest less coldest.
+    const spreadByHand = (r: ArrayLike<number>) => Math.max(...Array.from(r)) - Math.min(...Array.from(r));
+    const findings = (r: ArrayLike<number>) => {
+      const a = analyseRing(ctx, r, 0.8);
+      return evaluateFindings({ analysis: a, steady: true, history: { previousSteadySpreadDegC: a.spread.spreadDegC } });
+    };
+
+    it('a cold chamber 40 °C down: spread 40–45 °C, inside both limits, no findings', () => {
+      expect(defaultThresholds.spreadDefaultLimitDegC).toBe(45);
+      expect(defaultThresholds.chamberNoBaselineWarningDegC).toBe(50);
+      const r = ring(-40);
+      expect(spreadByHand(r)).toBeGreaterThan(40);
+      expect(spreadByHand(r)).toBeLessThan(45);
+      expect(findings(r)).toEqual([]);
+    });
+
+    it('a hot chamber 40 °C up: the same, no findings', () => {
+      const r = ring(40);
+      expect(spreadByHand(r)).toBeGreaterThan(40);
+      expect(spreadByHand(r)).toBeLessThan(45);
+      expect(findings(r)).toEqual([]);
+    });
+
+    it('4 °C deeper: the spread passes 45 °C and that alone is a spread_high warning', () => {
+      const r = ring(-44);
+      expect(spreadByHand(r)).toBeGreaterThan(45);
+      expect(spreadByHand(r)).toBeLessThan(48);
+      expect(findings(r).map((f) => `${f.kind} ${f.grade}`)).toEqual(['spread_high warning']);
+    });
+
+    it('62 °C down, past the chamber level even after the solver’s shrinkage: a chamber_cold on chamber 4', () => {
+      const f = findings(ring(-62));
+      expect(f.filter((x) => x.kind === 'chamber_cold').map((x) => x.chamber)).toEqual([4]);
+      expect(f.some((x) => x.kind === 'chamber_hot')).toBe(false);
+    });
   });
   it('spread high with the two coldest apart and spreadExcl1 normal names the coldest thermocouple', () => {
     const r = Array.from({ length: 18 }, () => 550);

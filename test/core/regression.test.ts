@@ -1,11 +1,10 @@
-import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
 import { driftRate, SECONDS_PER_DAY } from '../../services/core/drift.ts';
 import { linearRegression, slopeConfidenceInterval } from '../../services/core/regression.ts';
-import { referencePath } from './helpers.ts';
+import { referenceText } from '../helpers/reference.ts';
 
 async function norris(): Promise<{ x: number[]; y: number[] }> {
-  const text = readFileSync(await referencePath('norris.csv'), 'utf8').trim().split(/\r?\n/);
+  const text = referenceText('norris.csv').trim().split(/\r?\n/);
   const header = text[0].split(',').map((h) => h.trim().toLowerCase());
   const xi = header.indexOf('x');
   const yi = header.indexOf('y');
@@ -18,7 +17,7 @@ function relErr(a: number, b: number): number {
 }
 
 describe('ordinary least squares against NIST StRD "Norris" (certified values)', () => {
-  // Source: NIST Statistical Reference Datasets, linear regression, Norris; certified values in shared/reference/README.md.
+  // Source: NIST Statistical Reference Datasets, linear regression, Norris; the certified values as NIST publishes them.
   it('reproduces coefficients, standard errors, residual SD, R² and RSS to 9 significant digits', async () => {
     const { x, y } = await norris();
     expect(x.length).toBe(36);

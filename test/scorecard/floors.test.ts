@@ -15,8 +15,8 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { loadConfig } from '../../services/db/config.ts';
 import { createLogger } from '../../services/db/logger.ts';
-import { DEFAULT_SCORECARD_END, formatScorecard, headline, SCORECARD_FLOORS, scorecardFleet } from '../../services/sim/scorecard.ts';
-import { runScorecard, type ScorecardRun } from '../../services/sim/scorecard-run.ts';
+import { DEFAULT_SCORECARD_END, formatScorecard, headline, SCORECARD_FLOORS, scorecardFleet } from '../../services/scorecard/scorecard.ts';
+import { runScorecard, type ScorecardRun } from '../../services/scorecard/run.ts';
 import { createTestDatabase, type TestDatabase } from '../helpers/db.ts';
 
 let db: TestDatabase;

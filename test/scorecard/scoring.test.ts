@@ -5,17 +5,21 @@
  * false alerts by highest grade, the alarm rate per operator).
  */
 import { describe, expect, it } from 'vitest';
+import { ambientC } from '../../services/sim/ambient.ts';
 import {
   CHAMBER_FAULT_KINDS,
   headline,
+  IDEAL_MISMATCH,
   peakInSpan,
+  REALISTIC_MISMATCH,
+  ringIntervalS,
   pluggingDepthReachedMs,
   scoreAlerts,
   scorecardFleet,
   fleetTruth,
   TC_FAULT_KINDS,
   type ScoredAlert,
-} from '../../services/sim/scorecard.ts';
+} from '../../services/scorecard/scorecard.ts';
 
 const END = '2026-11-01T00:00:00Z';
 const fleet = scorecardFleet({ seed: 3, units: 21, referenceDays: 9, days: 30, end: END });
@@ -28,13 +32,15 @@ describe('scorecard fleet', () => {
     expect(JSON.stringify(other.units)).not.toBe(JSON.stringify(fleet.units));
   });
 
-  it('draws 8–16 chambers, 1–3 thermocouples per chamber, both swirl senses and all three dispatch profiles', () => {
+  it('draws 8–16 chambers, 1.2–2.9 thermocouples per chamber and never a whole multiple, both swirl senses and all three dispatch profiles', () => {
     for (const u of fleet.units) {
       const n = u.config.chambers.count;
       expect(n).toBeGreaterThanOrEqual(8);
       expect(n).toBeLessThanOrEqual(16);
-      const per = u.config.thermocouples.count / n;
-      expect([1, 2, 3]).toContain(per);
+      const m = u.config.thermocouples.count;
+      expect(m % n, `${u.config.id}: ${m} thermocouples, ${n} chambers`).not.toBe(0);
+      expect(m / n).toBeGreaterThanOrEqual(1.1);
+      expect(m / n).toBeLessThanOrEqual(3);
       const curve = u.config.swirl.curve;
       expect(curve[0][1]).toBeGreaterThan(curve[curve.length - 1][1]);
     }
@@ -70,6 +76,68 @@ describe('scorecard fleet', () => {
     // A deeper level is reached later.
     const t20 = pluggingDepthReachedMs(u, f, fleet.seed, fleet.toMs, 20);
     if (t20 !== null) expect(t20).toBeGreaterThan(t10!);
+  });
+});
+
+describe('the realistic fleet: the same units, differing from their model', () => {
+  const real = scorecardFleet({ seed: 3, units: 21, referenceDays: 9, days: 30, end: END, mismatch: REALISTIC_MISMATCH });
+
+  it('has the ideal fleet’s geometry, dispatch and faults, and the ideal fleet has no mismatch', () => {
+    expect(real.units.map((u) => [u.config, u.dispatch, u.faults])).toEqual(fleet.units.map((u) => [u.config, u.dispatch, u.faults]));
+    expect(real.healthy).toEqual(fleet.healthy);
+    expect(fleet.mismatch).toEqual(IDEAL_MISMATCH);
+    expect(fleet.ringRates).toEqual({});
+    for (const u of fleet.units) expect(u.physics?.trueSwirl).toBeUndefined();
+  });
+
+  it('true swirl off the configured curve by 3–10° at 0.6 load and in slope; plume width 0.7–1.3 of the solver’s 0.5 pitch', () => {
+    for (const u of real.units) {
+      const conf = u.config.swirl.curve, tru = u.physics!.trueSwirl!.curve;
+      expect(tru.map(([l]) => l)).toEqual(conf.map(([l]) => l));
+      const d = tru.map(([, v], i) => v - conf[i][1]);
+      // Knots at 0.2, 0.6 and 1.0 load: the 0.6 knot carries the offset alone (to the 0.1° rounding).
+      expect(Math.abs(d[1])).toBeGreaterThanOrEqual(2.95);
+      expect(Math.abs(d[1])).toBeLessThanOrEqual(10.05);
+      // Slope ±5–15° per unit load over the 0.8 between the end knots: 4–12° more at one end than the other.
+      expect(Math.abs(d[0] - d[2])).toBeGreaterThanOrEqual(3.9);
+      expect(Math.abs(d[0] - d[2])).toBeLessThanOrEqual(12.1);
+      const w = u.physics!.mixingWidthFrac!;
+      expect(w).toBeGreaterThanOrEqual(0.35);
+      expect(w).toBeLessThanOrEqual(0.65);
+    }
+    const offsets = real.units.map((u) => u.physics!.trueSwirl!.curve[1][1] - u.config.swirl.curve[1][1]);
+    expect(offsets.some((x) => x > 0) && offsets.some((x) => x < 0)).toBe(true);
+  });
+
+  it('one probe replaced per unit inside the scored window, by up to its class-2 tolerance; fingerprints wander', () => {
+    for (const u of real.units) {
+      const [r] = u.physics!.probeReplacements!;
+      expect(Date.parse(String(r.at))).toBeGreaterThan(real.faultFromMs);
+      expect(Date.parse(String(r.at))).toBeLessThan(real.toMs);
+      expect(Math.abs(r.stepFrac)).toBeGreaterThanOrEqual(0.3);
+      expect(Math.abs(r.stepFrac)).toBeLessThanOrEqual(1);
+      expect(u.physics!.fingerprintWanderPct).toBe(1);
+    }
+  });
+
+  it('a ring a minute and one every five minutes in turn, and the first unit a ring a second for its last two days', () => {
+    expect(ringIntervalS(real, 'sc-01', real.fromMs, 60)).toBe(60);
+    expect(ringIntervalS(real, 'sc-02', real.fromMs, 60)).toBe(300);
+    expect(ringIntervalS(real, 'sc-01', real.toMs - 2 * 86_400_000, 60)).toBe(1);
+    expect(ringIntervalS(real, 'sc-01', real.toMs - 3 * 86_400_000, 60)).toBe(60);
+    expect(ringIntervalS(fleet, 'sc-01', real.toMs - 86_400_000, 60)).toBe(60);
+  });
+
+  it('cools through the window on a 15 °C seasonal swing: about 9.9 °C over its 39 days, by the cosine worked out here', () => {
+    const u = real.units[0], ideal = fleet.units[0];
+    const from = real.fromMs, to = real.toMs;
+    // Same site, same weather and daily cycle: the two climates differ by the seasonal term only.
+    const extra = (t: number) => ambientC(u.climate, t) - ambientC(ideal.climate, t);
+    const seasonal = (c: typeof u.climate, t: number) => c.seasonalAmpC * Math.cos((2 * Math.PI * ((t / 86_400_000) % 365.2425 - c.warmestDayOfYear)) / 365.2425);
+    expect(extra(from)).toBeCloseTo(seasonal(u.climate, from) - seasonal(ideal.climate, from), 6);
+    // On the steepest flank of a 15 °C cosine, 39 days fall by 2·15·sin(π·39/365.24) = 9.88 °C (±0.5 day of rounding).
+    expect(seasonal(u.climate, from) - seasonal(u.climate, to)).toBeGreaterThan(9.8);
+    expect(seasonal(u.climate, from) - seasonal(u.climate, to)).toBeLessThan(9.9);
   });
 });
 

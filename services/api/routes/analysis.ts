@@ -10,7 +10,7 @@ import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
 import { Type } from 'typebox';
 import { UNIT_SERIES_COLUMNS, type SeriesBucket } from '../../db/reads.ts';
 import { UnitId } from '../schemas.ts';
-import { WINDOW_LIMIT_DAYS, Window, fin, readErrors, readsOf, timeWindow, unitOr404, type Resolution } from './read-common.ts';
+import { WINDOW_LIMIT_DAYS, Window, fin, readErrors, readWindow, readsOf, timeWindow, unitOr404, type Resolution } from './read-common.ts';
 
 const Nullable = <T extends Parameters<typeof Type.Union>[0][number]>(t: T) => Type.Union([t, Type.Null()]);
 const Stat = Type.Object({ mean: Nullable(Type.Number()), min: Nullable(Type.Number()), max: Nullable(Type.Number()) });
@@ -58,17 +58,17 @@ export async function analysisRoutes(base: FastifyInstance): Promise<void> {
     schema: {
       tags: ['read'],
       summary: 'Time series of the unit\'s analysis in buckets of a minute, an hour or a day',
-      description: 'Windows are limited per resolution: 1m up to 7 days (from the analysed rings), 1h up to 400 days and 1d up to 3700 days (from the rollups). Default window: the last day at 1m, 30 days at 1h, a year at 1d.',
+      description: 'Windows are limited per resolution: 1m up to 7 days (from the analysed rings), 1h up to 400 days and 1d up to 3700 days (from the rollups). Default window (without from and to): the last day at 1m, 30 days at 1h, a year at 1d, ending at the last ring of the unit; the x-cansight-window header says which window was used.',
       params: Type.Object({ unitId: UnitId }),
-      querystring: Type.Object({ ...Window, every: Type.Optional(Type.Union([Type.Literal('1m'), Type.Literal('1h'), Type.Literal('1d')], { default: '1h' })) }, { additionalProperties: false }),
+      querystring: Type.Object({ ...Window, every: Type.Optional(Type.Union([Type.Literal('1m'), Type.Literal('1h'), Type.Literal('1d')], { default: '1h', description: 'resolution: 1m (the analysed rings, in one-minute buckets), 1h or 1d (aggregates)' })) }, { additionalProperties: false }),
       response: { 200: AnalysisReply, ...readErrors },
     },
     config: { access: 'read' },
-  }, async (request) => {
+  }, async (request, reply) => {
     const unit = await unitOr404(app, request.params.unitId);
     const every: Resolution = request.query.every ?? '1h';
     const defaultDays = every === '1m' ? 1 : every === '1h' ? 30 : 365;
-    const w = timeWindow(request.query, Date.now(), defaultDays, WINDOW_LIMIT_DAYS[every], every === '1m' ? 'One-minute resolution (read from the analysed rings)' : every === '1h' ? 'Hourly resolution' : 'Daily resolution');
+    const w = await readWindow(reads, unit.id, request.query, defaultDays, WINDOW_LIMIT_DAYS[every], every === '1m' ? 'One-minute resolution (read from the analysed rings)' : every === '1h' ? 'Hourly resolution' : 'Daily resolution', reply);
     let buckets: SeriesBucket[];
     let source: 'rings' | 'rollups';
     if (every === '1m') {

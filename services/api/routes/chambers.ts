@@ -11,9 +11,9 @@ import { chamberAnglesDeg, plumeAngleDeg } from '../../core/index.ts';
 import type { UnitConfig } from '../../core/types.ts';
 import type { AlertSummary, DriftStateRecord, Grade, ReadsRepository, StoredAnalysis } from '../../db/reads.ts';
 import type { UnitRecord } from '../../db/units.ts';
-import { notFound } from '../errors.ts';
-import { UnitId } from '../schemas.ts';
-import { DAY_MS, Window, fin, readErrors, readsOf, timeWindow, unitOr404 } from './read-common.ts';
+import { notFound } from '../../http/errors.ts';
+import { NotJudgedList, UnitId, type JudgementSettings } from '../schemas.ts';
+import { DAY_MS, Window, fin, notJudgedOf, readErrors, readWindow, readsOf, timeWindow, unitOr404 } from './read-common.ts';
 
 const Nullable = <T extends Parameters<typeof Type.Union>[0][number]>(t: T) => Type.Union([t, Type.Null()]);
 const GradeT = Type.Union([Type.Literal('notice'), Type.Literal('warning'), Type.Literal('alarm'), Type.Literal('critical')]);
@@ -34,7 +34,7 @@ export const ChamberRow = Type.Object({
   sigmaC: Nullable(Type.Number({ description: 'robust scale of the daily residual, °C' })),
   baselineVersion: Nullable(Type.Integer()),
   activeGrade: Nullable(GradeT),
-  likelihoodWorst: Nullable(Type.Number({ description: 'when this is the worst chamber of the latest ring: likelihood it is the right one (swirl is uncertain)' })),
+  likelihoodWorst: Nullable(Type.Number({ description: 'when this is the worst chamber of the latest ring: the probability, 0–1, that it is the chamber departing most from its normal (a healthy ring names none with a high likelihood)' })),
 });
 export type ChamberRow = Static<typeof ChamberRow>;
 
@@ -48,6 +48,8 @@ export const ChambersReply = Type.Object({
   runnerUpChamber: Nullable(Type.Integer()),
   runnerUpLikelihood: Nullable(Type.Number()),
   chambers: Type.Array(ChamberRow),
+  notJudged: NotJudgedList,
+  baselineDueTs: Nullable(Type.String({ format: 'date-time', description: 'ring time at which the automatic first baseline falls due, while the unit has none' })),
 });
 
 const GRADE_RANK: Record<Grade, number> = { notice: 0, warning: 1, alarm: 2, critical: 3 };
@@ -75,7 +77,7 @@ export function cusumOf(d: DriftStateRecord | undefined) {
 }
 
 /** Everything the chamber table needs, from the latest analysis, the drift state and open alerts. */
-export async function chamberFigures(reads: ReadsRepository, unit: UnitRecord, nowMs: number) {
+export async function chamberFigures(reads: ReadsRepository, unit: UnitRecord, nowMs: number, settings: JudgementSettings) {
   const [latest, drift, alerts] = await Promise.all([
     reads.analysisNear(unit.id, null),
     reads.driftStates(unit.id, 'chamber'),
@@ -107,7 +109,7 @@ export async function chamberFigures(reads: ReadsRepository, unit: UnitRecord, n
       likelihoodWorst: latest?.worstChamber === k + 1 ? fin(latest.worstLikelihood) : null,
     };
   });
-  return { latest, config, chambers, alerts };
+  return { latest, config, chambers, alerts, ...(await notJudgedOf(reads, unit.id, latest, settings, drift.length)) };
 }
 
 export const ChamberParams = Type.Object({ unitId: UnitId, chamber: Type.Integer({ minimum: 1, maximum: 64, description: 'numbered from 1' }) });
@@ -155,7 +157,7 @@ export async function chamberRoutes(base: FastifyInstance): Promise<void> {
     config: { access: 'read' },
   }, async (request) => {
     const unit = await unitOr404(app, request.params.unitId);
-    const { latest, chambers } = await chamberFigures(reads, unit, Date.now());
+    const { latest, chambers, notJudged, baselineDueTs } = await chamberFigures(reads, unit, Date.now(), app.appConfig.worker);
     return {
       unitId: unit.id,
       ts: latest?.ts ?? null,
@@ -166,6 +168,8 @@ export async function chamberRoutes(base: FastifyInstance): Promise<void> {
       runnerUpChamber: latest?.runnerUpChamber ?? null,
       runnerUpLikelihood: fin(latest?.runnerUpLikelihood),
       chambers,
+      notJudged,
+      baselineDueTs,
     };
   });
 
@@ -174,16 +178,16 @@ export async function chamberRoutes(base: FastifyInstance): Promise<void> {
       tags: ['read'],
       summary: 'Residual aggregates of one chamber over time (hourly up to 31 days, daily beyond; at most 3700 days)',
       params: ChamberParams,
-      querystring: Type.Object({ ...Window, every: Type.Optional(Type.Union([Type.Literal('1h'), Type.Literal('1d')])) }, { additionalProperties: false }),
+      querystring: Type.Object({ ...Window, every: Type.Optional(Type.Union([Type.Literal('1h'), Type.Literal('1d')], { description: 'bucket: hourly or daily aggregates; default hourly up to 31 days, daily beyond' })) }, { additionalProperties: false }),
       response: { 200: TrendReply, ...readErrors },
     },
     config: { access: 'read' },
-  }, async (request) => {
+  }, async (request, reply) => {
     const unit = await unitOr404(app, request.params.unitId);
     const k = request.params.chamber;
     if (k > unit.config.chambers.count) throw notFound(`Unit ${unit.id} has ${unit.config.chambers.count} chambers; chamber ${k} does not exist (chambers are numbered from 1).`);
     const every = request.query.every;
-    const w = timeWindow(request.query, Date.now(), 90, every === '1h' ? 400 : TREND_MAX_DAYS, every === '1h' ? 'An hourly trend' : 'A chamber trend');
+    const w = await readWindow(reads, unit.id, request.query, 90, every === '1h' ? 400 : TREND_MAX_DAYS, every === '1h' ? 'An hourly trend' : 'A chamber trend', reply);
     const latest = await reads.latestBaseline(unit.id);
     const t = await residualTrend(reads, unit.id, 'chamber_residual', k, w.fromMs, w.toMs, every);
     return { unitId: unit.id, chamber: k, from: new Date(w.fromMs).toISOString(), to: new Date(w.toMs).toISOString(), every: t.every, baselineVersion: latest?.version ?? null, points: t.points };

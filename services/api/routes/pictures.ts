@@ -10,14 +10,15 @@ import { Type } from 'typebox';
 import { VALIDITY_REASONS, chamberAnglesDeg, plumeAngleDeg, thermocoupleAnglesDeg } from '../../core/index.ts';
 import type { AlertSummary, ReadsRepository, StoredAnalysis } from '../../db/reads.ts';
 import type { UnitRecord } from '../../db/units.ts';
-import { notFound } from '../errors.ts';
+import { notFound } from '../../http/errors.ts';
 import { UnitId } from '../schemas.ts';
 import { ringSvg, type RingPlotInput } from '../svg/ring.ts';
 import { esc, svgOpen } from '../svg/draw.ts';
 import { spreadSvg, type SpreadPoint } from '../svg/spread.ts';
 import { trendSvg, type TrendPlotInput } from '../svg/trend.ts';
+import { eventLabel } from './events.ts';
 import { ChamberParams, TREND_MAX_DAYS, configOf, residualTrend } from './chambers.ts';
-import { DAY_MS, Window, readErrors, readsOf, timeWindow, unitOr404 } from './read-common.ts';
+import { DAY_MS, Window, readErrors, readWindow, readsOf, timeWindow, unitOr404 } from './read-common.ts';
 
 const Svg = { 200: Type.String({ description: 'SVG document (image/svg+xml)' }), ...readErrors };
 const svgType = 'image/svg+xml; charset=utf-8';
@@ -66,10 +67,11 @@ const alertLabel = (a: AlertSummary) => `${a.grade} ${a.kind.replace(/_/g, ' ')}
 
 /** The chamber trend picture's input: rollup residuals, drift line, band and alert marks. */
 export async function chamberTrendInput(reads: ReadsRepository, unit: UnitRecord, chamber: number, fromMs: number, toMs: number): Promise<TrendPlotInput> {
-  const [residual, drift, alerts] = await Promise.all([
+  const [residual, drift, alerts, events] = await Promise.all([
     residualTrend(reads, unit.id, 'chamber_residual', chamber, fromMs, toMs),
     reads.driftStates(unit.id, 'chamber'),
     reads.unitAlerts(unit.id, fromMs, toMs, 1000),
+    reads.events(unit.id, fromMs, toMs),
   ]);
   // Before a baseline there is no residual: show the deviation from the average chamber instead, and say so.
   const deviation = residual.points.length === 0;
@@ -102,6 +104,7 @@ export async function chamberTrendInput(reads: ReadsRepository, unit: UnitRecord
     baselineVersion: deviation ? null : (d?.baselineVersion ?? null),
     drift: line,
     alerts: alerts.filter((a) => a.chamber === chamber).map((a) => ({ tMs: Date.parse(a.raisedAt), grade: a.grade, label: alertLabel(a) })),
+    events: events.map((e) => ({ tMs: Date.parse(e.at), label: eventLabel(e) })),
   };
 }
 
@@ -147,7 +150,7 @@ export async function pictureRoutes(base: FastifyInstance): Promise<void> {
   app.get('/v1/units/:unitId/chambers/:chamber/trend.svg', {
     schema: {
       tags: ['pictures'],
-      summary: 'A chamber\'s residual trend with its normal band, drift line and alert marks (default the last 90 days; at most 3700)',
+      summary: 'A chamber\'s residual trend with its normal band, drift line and alert marks (default the 90 days up to the unit\'s last ring; at most 3700)',
       produces: ['image/svg+xml'],
       params: ChamberParams,
       querystring: Type.Object(Window, { additionalProperties: false }),
@@ -158,14 +161,14 @@ export async function pictureRoutes(base: FastifyInstance): Promise<void> {
     const unit = await unitOr404(app, request.params.unitId);
     const k = request.params.chamber;
     if (k > unit.config.chambers.count) throw notFound(`Unit ${unit.id} has ${unit.config.chambers.count} chambers; chamber ${k} does not exist (chambers are numbered from 1).`);
-    const w = await clampToData(reads, unit.id, timeWindow(request.query, Date.now(), 90, TREND_MAX_DAYS, 'A chamber trend'), Boolean(request.query.from));
+    const w = await clampToData(reads, unit.id, await readWindow(reads, unit.id, request.query, 90, TREND_MAX_DAYS, 'A chamber trend', reply), Boolean(request.query.from));
     return reply.header('content-type', svgType).send(trendSvg(await chamberTrendInput(reads, unit, k, w.fromMs, w.toMs)));
   });
 
   app.get('/v1/units/:unitId/spread.svg', {
     schema: {
       tags: ['pictures'],
-      summary: 'The unit\'s exhaust spread against its limit over time (default the last 7 days; at most 400)',
+      summary: 'The unit\'s exhaust spread against its limit over time (default the 7 days up to the unit\'s last ring; at most 400)',
       produces: ['image/svg+xml'],
       params: Type.Object({ unitId: UnitId }),
       querystring: Type.Object(Window, { additionalProperties: false }),
@@ -174,7 +177,7 @@ export async function pictureRoutes(base: FastifyInstance): Promise<void> {
     config: { access: 'read' },
   }, async (request, reply) => {
     const unit = await unitOr404(app, request.params.unitId);
-    const w = await clampToData(reads, unit.id, timeWindow(request.query, Date.now(), 7, 400, 'A spread trend'), Boolean(request.query.from));
+    const w = await clampToData(reads, unit.id, await readWindow(reads, unit.id, request.query, 7, 400, 'A spread trend', reply), Boolean(request.query.from));
     const days = (w.toMs - w.fromMs) / DAY_MS;
     let points: SpreadPoint[];
     let what: string;
@@ -191,6 +194,7 @@ export async function pictureRoutes(base: FastifyInstance): Promise<void> {
       what = `${period === 'hour' ? 'hourly' : 'daily'} buckets (limit shown up to 7-day windows)`;
     }
     const alerts = (await reads.unitAlerts(unit.id, w.fromMs, w.toMs, 1000)).filter((a) => a.kind === 'spread_high' || a.kind === 'spread_jump');
+    const events = await reads.events(unit.id, w.fromMs, w.toMs);
     const svg = spreadSvg({
       title: `${unit.name}: exhaust spread`,
       subtitle: `${new Date(w.fromMs).toISOString().slice(0, 16).replace('T', ' ')} to ${new Date(w.toMs).toISOString().slice(0, 16).replace('T', ' ')} UTC · ${what}`,
@@ -199,6 +203,7 @@ export async function pictureRoutes(base: FastifyInstance): Promise<void> {
       toMs: w.toMs,
       points,
       alerts: alerts.map((a) => ({ tMs: Date.parse(a.raisedAt), grade: a.grade, label: alertLabel(a) })),
+      events: events.map((e) => ({ tMs: Date.parse(e.at), label: eventLabel(e) })),
     });
     return reply.header('content-type', svgType).send(svg);
   });

@@ -10,9 +10,9 @@ import { Type, type Static } from 'typebox';
 import { VALIDITY_REASONS, chamberBehindAngle, thermocoupleAnglesDeg } from '../../core/index.ts';
 import type { ReadsRepository } from '../../db/reads.ts';
 import type { UnitRecord } from '../../db/units.ts';
-import { UnitId } from '../schemas.ts';
+import { NotJudgedList, UnitId, type JudgementSettings } from '../schemas.ts';
 import { configOf } from './chambers.ts';
-import { DAY_MS, fin, readErrors, readsOf, unitOr404 } from './read-common.ts';
+import { DAY_MS, fin, notJudgedOf, readErrors, readsOf, unitOr404 } from './read-common.ts';
 
 const Nullable = <T extends Parameters<typeof Type.Union>[0][number]>(t: T) => Type.Union([t, Type.Null()]);
 
@@ -40,13 +40,15 @@ export const ThermocouplesReply = Type.Object({
   ts: Nullable(Type.String()),
   ringsLast7Days: Type.Integer(),
   thermocouples: Type.Array(ThermocoupleRow),
+  notJudged: NotJudgedList,
+  baselineDueTs: Nullable(Type.String({ format: 'date-time', description: 'ring time at which the automatic first baseline falls due, while the unit has none' })),
 });
 
 /** Share of rings not used above which a thermocouple is put on the replace list. */
 export const REPLACE_INVALID_SHARE = 0.2;
 const WINDOW_REASONS = new Set(['frozen', 'erratic', 'drifting_alone', 'out_of_range']);
 
-export async function thermocoupleFigures(reads: ReadsRepository, unit: UnitRecord, nowMs: number) {
+export async function thermocoupleFigures(reads: ReadsRepository, unit: UnitRecord, nowMs: number, settings: JudgementSettings) {
   const latest = await reads.analysisNear(unit.id, null);
   // "The last week" is the last week of this unit's data, so history still reads after a silence.
   const end = latest ? Date.parse(latest.ts) + 1 : nowMs;
@@ -97,7 +99,7 @@ export async function thermocoupleFigures(reads: ReadsRepository, unit: UnitReco
       verdict: replace ? `check thermocouple ${n} and its wiring at the next opportunity (${reasons.join('; ')})` : 'keep',
     };
   });
-  return { latest, rows, rings: tally.rings };
+  return { latest, rows, rings: tally.rings, ...(await notJudgedOf(reads, unit.id, latest, settings, drift.length)) };
 }
 
 export async function thermocoupleRoutes(base: FastifyInstance): Promise<void> {
@@ -109,7 +111,7 @@ export async function thermocoupleRoutes(base: FastifyInstance): Promise<void> {
     config: { access: 'read' },
   }, async (request) => {
     const unit = await unitOr404(app, request.params.unitId);
-    const { latest, rows, rings } = await thermocoupleFigures(reads, unit, Date.now());
-    return { unitId: unit.id, ts: latest?.ts ?? null, ringsLast7Days: rings, thermocouples: rows };
+    const { latest, rows, rings, notJudged, baselineDueTs } = await thermocoupleFigures(reads, unit, Date.now(), app.appConfig.worker);
+    return { unitId: unit.id, ts: latest?.ts ?? null, ringsLast7Days: rings, thermocouples: rows, notJudged, baselineDueTs };
   });
 }

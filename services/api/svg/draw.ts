@@ -22,8 +22,23 @@ export const PALETTE = {
   critical: '#CC79A7',
 } as const;
 
+/** The words for a spread above its limit, in every picture and on the dashboard (never shouted). */
+export const ABOVE_LIMIT = 'above limit';
+
+/**
+ * Text for SVG and HTML, in element content or a quoted attribute: markup characters and both
+ * quotes escaped, and characters XML 1.0 does not allow (control characters other than tab,
+ * line feed and carriage return; lone surrogates; U+FFFE, U+FFFF) shown as U+FFFD, so the
+ * document stays well-formed whatever a name or a message holds.
+ */
 export function esc(text: string): string {
-  return text.replace(/&/g, '&amp;').replace(/</g, '&lt;').replace(/>/g, '&gt;').replace(/"/g, '&quot;');
+  return text
+    .replace(/&/g, '&amp;')
+    .replace(/</g, '&lt;')
+    .replace(/>/g, '&gt;')
+    .replace(/"/g, '&quot;')
+    .replace(/'/g, '&#39;')
+    .replace(/[\u0000-\u0008\u000B\u000C\u000E-\u001F\uFFFE\uFFFF]|[\uD800-\uDBFF](?![\uDC00-\uDFFF])|(?<![\uD800-\uDBFF])[\uDC00-\uDFFF]/g, '\uFFFD');
 }
 
 /** Fixed-point text for a coordinate or a reading; '–' for a missing value. */
@@ -83,6 +98,27 @@ export function timeAxis(fromMs: number, toMs: number, x: (tMs: number) => numbe
     out.push(`<line x1="${c(x(t))}" x2="${c(x(t))}" y1="${top}" y2="${top + height}" stroke="${PALETTE.faint}" stroke-width="0.7"/>`);
     const d = new Date(t).toISOString();
     out.push(`<text x="${c(x(t))}" y="${top + height + 14}" text-anchor="middle" font-size="10">${tickDays < 1 ? d.slice(5, 16).replace('T', ' ') : d.slice(0, 10)}</text>`);
+  }
+  return out.join('');
+}
+
+/** A maintenance event on a time axis: its time and its words ("thermocouple replaced: 7"). */
+export interface EventMark {
+  tMs: number;
+  label: string;
+}
+
+/**
+ * Maintenance events on a plot area: a dash-dot vertical line at each event's time (bluish
+ * green, and dash-dot so it reads in grey) with a short label at the top, the whole words in
+ * its title.
+ */
+export function eventMarks(events: readonly EventMark[] | undefined, fromMs: number, toMs: number, x: (tMs: number) => number, top: number, height: number): string {
+  const out: string[] = [];
+  for (const e of events ?? []) {
+    if (e.tMs < fromMs || e.tMs > toMs) continue;
+    const px = c(x(e.tMs));
+    out.push(`<g class="event"><line x1="${px}" x2="${px}" y1="${top}" y2="${top + height}" stroke="${PALETTE.plume}" stroke-width="1.6" stroke-dasharray="7 3 2 3"/><text x="${c(x(e.tMs) + 3)}" y="${top + 11}" font-size="9" fill="${PALETTE.ink}">${esc(e.label.length > 28 ? e.label.slice(0, 27) + '…' : e.label)}</text><title>${esc(e.label)}</title></g>`);
   }
   return out.join('');
 }

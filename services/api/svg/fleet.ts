@@ -4,7 +4,7 @@
  * active alert grade by shape and word (never by colour alone), the thermocouple coverage and
  * how fresh the data is. Pure: the rows and the instant "now" come in, SVG text goes out.
  */
-import { PALETTE, c, diffIn, esc, num, svgOpen } from './draw.ts';
+import { ABOVE_LIMIT, PALETTE, c, diffIn, esc, num, svgOpen } from './draw.ts';
 
 export type Grade = 'notice' | 'warning' | 'alarm' | 'critical';
 export type Freshness = 'live' | 'late' | 'silent' | 'no_data';
@@ -133,7 +133,7 @@ function tile(r: FleetTile, x: number, y: number, nowMs: number): string {
     out.push(`<path class="spread-limit" d="M${c(lxp)},${by - 4} v22" stroke="${PALETTE.ink}" stroke-width="2"/>`);
   }
   const over = spread !== null && limit !== null && spread > limit;
-  out.push(`<text x="${bx}" y="${by + 30}" font-size="11"${over ? ' font-weight="bold"' : ''}>exhaust spread ${num(spread)} °${u}${limit !== null ? ` / limit ${num(limit)} °${u}` : ''}${over ? ' · above limit' : ''}</text>`);
+  out.push(`<text x="${bx}" y="${by + 30}" font-size="11"${over ? ' font-weight="bold"' : ''}>exhaust spread ${num(spread)} °${u}${limit !== null ? ` / limit ${num(limit)} °${u}` : ''}${over ? ` · ${ABOVE_LIMIT}` : ''}</text>`);
   const cov = r.coverage ? `${r.coverage.valid}/${r.coverage.total} thermocouples valid` : 'coverage –';
   out.push(`<text x="${bx}" y="${by + 48}" font-size="11">${cov} · ${FRESHNESS_WORDS[r.freshness]}, ${esc(ago(r.lastRingTs, nowMs))}</text>`);
   out.push(`<title>${esc(r.name)} (${esc(r.site)})</title>`);

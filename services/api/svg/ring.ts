@@ -5,7 +5,7 @@
  * each chamber's plume position (where the swirl carries it at this load) on the reference
  * circle, joined to its chamber by a thin line. Spread and its limit are written underneath.
  */
-import { PALETTE, c, diffIn, esc, num, polar, svgOpen, tempIn } from './draw.ts';
+import { ABOVE_LIMIT, PALETTE, c, diffIn, esc, num, polar, svgOpen, tempIn } from './draw.ts';
 
 export interface RingPlotThermocouple {
   /** Numbered from 1. */
@@ -103,7 +103,7 @@ export function ringSvg(p: RingPlotInput): string {
   const limit = diffIn(u, p.limitC);
   const over = spread !== null && limit !== null && spread > limit;
   const y0 = H - 62;
-  out.push(`<text x="20" y="${y0}" font-size="14" class="spread" font-weight="${over ? 'bold' : 'normal'}">exhaust spread ${num(spread)} °${u}${limit !== null ? ` · limit ${num(limit)} °${u}${over ? ' · ABOVE LIMIT' : ''}` : ''}</text>`);
+  out.push(`<text x="20" y="${y0}" font-size="14" class="spread" font-weight="${over ? 'bold' : 'normal'}">exhaust spread ${num(spread)} °${u}${limit !== null ? ` · limit ${num(limit)} °${u}${over ? ` · ${ABOVE_LIMIT}` : ''}` : ''}</text>`);
   out.push(`<text x="20" y="${y0 + 18}">corrected load ${p.loadFraction === null ? '–' : Math.round(p.loadFraction * 100) + ' %'} · swirl ${num(p.swirlDeg, 0)}° · scale: circle = ring centre, dashed = ±${num(diffIn(u, maxDev / 2), 0)} °${u}</text>`);
   out.push(`<circle cx="26" cy="${y0 + 34}" r="4.5" fill="${PALETTE.hot}"/><text x="36" y="${y0 + 38}">hotter</text>`);
   out.push(`<rect x="92" y="${y0 + 30}" width="8" height="8" fill="${PALETTE.cold}"/><text x="106" y="${y0 + 38}">colder</text>`);

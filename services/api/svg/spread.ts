@@ -3,7 +3,7 @@
  * limit as a stepped dashed line, buckets above their limit marked with a filled square (so it
  * reads without colour), and alert marks along the bottom by grade.
  */
-import { PALETTE, c, diffIn, esc, num, svgOpen, niceStep, timeAxis } from './draw.ts';
+import { ABOVE_LIMIT, PALETTE, c, diffIn, esc, eventMarks, num, svgOpen, niceStep, timeAxis, type EventMark } from './draw.ts';
 import { gradeMark, type Grade } from './fleet.ts';
 
 export interface SpreadPoint {
@@ -22,6 +22,8 @@ export interface SpreadPlotInput {
   toMs: number;
   points: SpreadPoint[];
   alerts: Array<{ tMs: number; grade: Grade; label: string }>;
+  /** Maintenance events drawn as vertical lines. */
+  events?: EventMark[];
 }
 
 const W = 760;
@@ -72,6 +74,7 @@ export function spreadSvg(p: SpreadPlotInput): string {
   if (line.length) out.push(`<path class="spread" d="${line.join(' ')}" fill="none" stroke="${PALETTE.cold}" stroke-width="1.8"/>`);
   if (lim.length) out.push(`<path class="limit" d="${lim.join(' ')}" fill="none" stroke="${PALETTE.ink}" stroke-width="1.4" stroke-dasharray="6 3"/>`);
   out.push('</g>');
+  out.push(eventMarks(p.events, p.fromMs, p.toMs, x, T, ph));
   for (const a of p.alerts) {
     if (a.tMs < p.fromMs || a.tMs > p.toMs) continue;
     out.push(`<g class="alert" data-grade="${a.grade}">${gradeMark(a.grade, x(a.tMs), T + ph - 10, 0.8)}<title>${esc(a.label)}</title></g>`);
@@ -79,7 +82,7 @@ export function spreadSvg(p: SpreadPlotInput): string {
   const ly = H - 20;
   out.push(`<path d="M${L},${ly} h22" stroke="${PALETTE.cold}" stroke-width="1.8"/><text x="${L + 28}" y="${ly + 4}">spread (bucket mean, whisker min–max)</text>`);
   out.push(`<path d="M${L + 290},${ly} h22" stroke="${PALETTE.ink}" stroke-width="1.4" stroke-dasharray="6 3"/><text x="${L + 318}" y="${ly + 4}">spread limit at the load</text>`);
-  out.push(`<rect x="${L + 480}" y="${ly - 4}" width="7" height="7" fill="${PALETTE.hot}" stroke="${PALETTE.ink}" stroke-width="0.6"/><text x="${L + 494}" y="${ly + 4}">above limit</text>`);
+  out.push(`<rect x="${L + 480}" y="${ly - 4}" width="7" height="7" fill="${PALETTE.hot}" stroke="${PALETTE.ink}" stroke-width="0.6"/><text x="${L + 494}" y="${ly + 4}">${ABOVE_LIMIT}</text>`);
   out.push('</svg>');
   return out.join('');
 }

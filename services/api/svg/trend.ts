@@ -3,7 +3,7 @@
  * as bucket means with their min–max whiskers, the baseline's normal band around zero, the
  * fitted drift line, and alert marks along the bottom by grade (shape and colour).
  */
-import { PALETTE, c, diffIn, esc, num, svgOpen, niceStep, timeAxis } from './draw.ts';
+import { PALETTE, c, diffIn, esc, eventMarks, num, svgOpen, niceStep, timeAxis, type EventMark } from './draw.ts';
 
 export interface TrendPoint {
   /** Bucket start, ms since epoch. */
@@ -27,6 +27,8 @@ export interface TrendPlotInput {
   /** Drift line: residual = interceptC + slopeCPerDay · (t − fromMs) / day. */
   drift: { interceptC: number; slopeCPerDay: number; label: string } | null;
   alerts: Array<{ tMs: number; grade: 'notice' | 'warning' | 'alarm' | 'critical'; label: string }>;
+  /** Maintenance events drawn as vertical lines. */
+  events?: EventMark[];
   /** What the line is, for the axis and legend (default "residual"). */
   quantity?: string;
 }
@@ -100,6 +102,7 @@ export function trendSvg(p: TrendPlotInput): string {
     const v1 = diffIn(u, d.interceptC + (d.slopeCPerDay * span) / DAY_MS)!;
     out.push(`<line class="drift" x1="${L}" y1="${c(y(v0))}" x2="${L + pw}" y2="${c(y(v1))}" stroke="${PALETTE.drift}" stroke-width="2.2" stroke-dasharray="8 4"/>`);
   }
+  out.push(eventMarks(p.events, p.fromMs, p.toMs, x, T, ph));
   // Alerts along the bottom.
   for (const a of p.alerts) {
     if (a.tMs < p.fromMs || a.tMs > p.toMs) continue;
