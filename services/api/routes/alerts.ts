@@ -6,18 +6,26 @@
  *   POST /v1/webhooks, GET /v1/webhooks, DELETE /v1/webhooks/:id,
  *   GET  /v1/webhooks/:id/deliveries                                   (admin)
  * Unit scope: these URLs name no unit, so the handlers check it. A key limited to some units
- * lists only their alerts, and gets 403 (naming the unit, as for any other route) for an
- * alert of another unit or a unitId filter outside its scope. An unknown alert is 404.
+ * lists only their alerts and gets 403 for a unitId filter outside its scope; an alert of
+ * another unit is 404, as an unknown one is, so that an alert id tells nothing about units the
+ * key may not see.
  */
+import { lookup } from 'node:dns/promises';
 import type { FastifyInstance, FastifyRequest } from 'fastify';
 import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
 import { Type, type TSchema } from 'typebox';
 import { ADVISORY_CAUTION, type Grade } from '../../core/findings.ts';
+import { checkTarget } from '../../core/webhook-target.ts';
 import type { AlertKind } from '../../db/config.ts';
-import { AlertClosedError, createAlertsRepository, decodeAlertCursor, decodeDeliveryCursor, type AlertStateFilter } from '../../db/alerts.ts';
-import { HttpError, badRequest, conflict, notFound, unprocessable } from '../errors.ts';
-import { keyCoversUnit, unitScope } from '../auth.ts';
-import { ErrorReply, UnitId } from '../schemas.ts';
+import { AlertClosedError } from '../../db/alert-actions.ts';
+import { createAlertsRepository } from '../../db/alerts.ts';
+import { decodeAlertCursor } from '../../db/alert-reads.ts';
+import { decodeDeliveryCursor } from '../../db/webhooks.ts';
+import type { AlertStateFilter } from '../../db/alert-rows.ts';
+import { HttpError, badRequest, conflict, formatDuration, notFound, unprocessable } from '../../http/errors.ts';
+import { keyCoversUnit, unitScope } from '../../http/auth.ts';
+import { ErrorReply } from '../../http/schemas.ts';
+import { UnitId } from '../schemas.ts';
 
 const Nullable = <T extends TSchema>(t: T) => Type.Union([t, Type.Null()]);
 
@@ -34,7 +42,7 @@ export const AlertKindSchema = Type.Union([
   Type.Literal('chamber_unlit'),
   Type.Literal('start_failed'),
 ]);
-const ActionSchema = Type.Union([
+export const AlertActionSchema = Type.Union([
   Type.Literal('raised'),
   Type.Literal('reactivated'),
   Type.Literal('escalated'),
@@ -44,6 +52,7 @@ const ActionSchema = Type.Union([
   Type.Literal('shelved'),
   Type.Literal('unshelved'),
   Type.Literal('shelf_expired'),
+  Type.Literal('withdrawn'),
 ]);
 const StateSchema = Type.Union([Type.Literal('active'), Type.Literal('cleared'), Type.Literal('shelved'), Type.Literal('open'), Type.Literal('all')], {
   description: 'active: condition present and not shelved; cleared: returned to normal; shelved; open: not yet both returned to normal and acknowledged; all (default)',
@@ -55,7 +64,7 @@ export const AlertHistoryReply = Type.Object({
   sequence: Type.String({ description: 'increases with every change; orders an alert\'s history' }),
   at: Type.String({ description: 'ring time for changes made by the rules, wall-clock time for people\'s actions' }),
   recordedAt: Type.String(),
-  action: ActionSchema,
+  action: AlertActionSchema,
   grade: GradeSchema,
   fromGrade: Nullable(GradeSchema),
   by: Nullable(Type.String()),
@@ -88,6 +97,9 @@ export const AlertReply = Type.Object({
   runnerUpChamber: Nullable(Type.Integer()),
   runnerUpLikelihood: Nullable(Type.Number()),
   baselineVersion: Nullable(Type.Integer()),
+  foundInHistory: Type.Boolean({
+    description: 'raised while analysing history (a backlog, an import, a re-analysis); its times are ring times. Announced to webhooks once the unit has caught up, if still active',
+  }),
   history: Type.Optional(Type.Array(AlertHistoryReply)),
   caution: Type.Optional(Type.String()),
 });
@@ -104,19 +116,19 @@ const ListQuery = Type.Object(
     state: Type.Optional(StateSchema),
     grade: Type.Optional(GradeSchema),
     minGrade: Type.Optional(GradeSchema),
-    kind: Type.Optional(AlertKindSchema),
-    cursor: Type.Optional(Type.String({ maxLength: 400 })),
+    kind: Type.Optional({ ...AlertKindSchema, description: 'only alerts of this kind' }),
+    cursor: Type.Optional(Type.String({ maxLength: 400, description: 'the `next` of the previous page; leave out for the first page' })),
     limit: Type.Optional(Type.Integer({ minimum: 1, maximum: 200, description: 'page size, default 50' })),
   },
   { additionalProperties: false },
 );
 
-const IdParams = Type.Object({ id: Type.String({ minLength: 1, maxLength: 100 }) });
+const IdParams = Type.Object({ id: Type.String({ minLength: 1, maxLength: 100, description: 'the id of the alert (or of the webhook subscription on /v1/webhooks routes)' }) });
 const Person = Type.String({ minLength: 1, maxLength: 200, description: 'the person acting, by name' });
 
-const AckBody = Type.Object({ by: Person, comment: Type.Optional(Type.String({ maxLength: 2000 })) }, { additionalProperties: false });
+const AckBody = Type.Object({ by: Person, comment: Type.Optional(Type.String({ maxLength: 2000, description: 'what was seen or done, kept in the alert history' })) }, { additionalProperties: false });
 const ShelveBody = Type.Object(
-  { by: Person, until: Type.String({ format: 'date-time', description: 'the shelf ends then; in the future, within the configured longest shelf' }), reason: Type.String({ minLength: 1, maxLength: 2000 }) },
+  { by: Person, until: Type.String({ format: 'date-time', description: 'the shelf ends then; in the future, within the configured longest shelf' }), reason: Type.String({ minLength: 1, maxLength: 2000, description: 'why it is shelved (e.g. a known fault with work booked), kept in the alert history' }) },
   { additionalProperties: false },
 );
 const UnshelveBody = Type.Object({ by: Type.Optional(Person) }, { additionalProperties: false });
@@ -126,6 +138,7 @@ const WebhookReply = Type.Object({
   url: Type.String(),
   minGrade: GradeSchema,
   unitIds: Type.Union([Type.Array(Type.String()), Type.Null()], { description: 'null: every unit' }),
+  includeHistory: Type.Boolean({ description: 'also hears, as they happen, the changes of alerts found while analysing history' }),
   createdAt: Type.String(),
   createdBy: Nullable(Type.String()),
   deletedAt: Nullable(Type.String()),
@@ -137,6 +150,12 @@ const CreateWebhookBody = Type.Object(
     minGrade: GradeSchema,
     secret: Type.String({ minLength: 16, maxLength: 500, description: 'key of the HMAC-SHA256 signature in X-Cansight-Signature; never shown again' }),
     unitIds: Type.Optional(Type.Array(UnitId, { minItems: 1, maxItems: 1000, description: 'only these units; default every unit' })),
+    includeHistory: Type.Optional(
+      Type.Boolean({
+        description:
+          'default false: an alert found while analysing history (an import, a backlog, a re-analysis) is announced once, when its unit has caught up, and only if still active; true: every change of it is sent as it is recorded',
+      }),
+    ),
   },
   { additionalProperties: false },
 );
@@ -156,7 +175,7 @@ const DeliveryReply = Type.Object({
 });
 
 const PageQuery = Type.Object(
-  { cursor: Type.Optional(Type.String({ maxLength: 400 })), limit: Type.Optional(Type.Integer({ minimum: 1, maximum: 500 })) },
+  { cursor: Type.Optional(Type.String({ maxLength: 400, description: 'the `next` of the previous page; leave out for the first page' })), limit: Type.Optional(Type.Integer({ minimum: 1, maximum: 500, description: 'page size' })) },
   { additionalProperties: false },
 );
 
@@ -174,8 +193,7 @@ export async function alertRoutes(base: FastifyInstance): Promise<void> {
   /** The alert, after checking the key may see its unit; 404 when there is none. */
   async function visibleAlert(request: FastifyRequest, id: string) {
     const a = await repo.getRow(id);
-    if (!a) throw notFound(`No alert ${id}.`);
-    if (!keyCoversUnit(request.principal!, a.unitId)) throw outOfScope(request, a.unitId);
+    if (!a || !keyCoversUnit(request.principal!, a.unitId)) throw notFound(`No alert ${id}.`);
     return a;
   }
 
@@ -217,7 +235,7 @@ export async function alertRoutes(base: FastifyInstance): Promise<void> {
     config: { access: 'act' },
   }, async (request) => {
     await visibleAlert(request, request.params.id);
-    const r = await repo.acknowledge(request.params.id, { by: request.body.by, comment: request.body.comment ?? null, keyPrefix: request.principal!.prefix, now: new Date() });
+    const r = await repo.acknowledge(request.params.id, { by: request.body.by, comment: request.body.comment ?? null, keyId: request.principal!.keyId, now: new Date() });
     if (!r) throw notFound(`No alert ${request.params.id}.`);
     if (r.change) request.log.info({ unitId: r.alert.unitId, alertId: r.alert.id, by: request.body.by, closed: r.alert.closedAt !== null }, 'alert acknowledged');
     return r.alert;
@@ -229,15 +247,16 @@ export async function alertRoutes(base: FastifyInstance): Promise<void> {
   }, async (request) => {
     const now = new Date();
     const until = new Date(request.body.until);
+    const longest = `${formatDuration(maxShelveS)} (CANSIGHT_ALERT_MAX_SHELVE_S)`;
     if (until.getTime() <= now.getTime()) {
-      throw unprocessable(`until ${request.body.until} is not in the future; give the time the shelf should end.`, [{ field: 'until', reason: 'not in the future' }]);
+      throw unprocessable(`"until" (${request.body.until}) must lie ahead of now (${now.toISOString()}): give the time the shelf should end, at most ${longest} ahead, the longest shelf here.`, [{ field: 'until', reason: 'not in the future' }]);
     }
     if (until.getTime() - now.getTime() > maxShelveS * 1000) {
-      throw unprocessable(`until ${request.body.until} is more than ${maxShelveS} s ahead, the longest shelf allowed here; shelve for less and shelve again if needed.`, [{ field: 'until', reason: 'beyond the longest shelf' }]);
+      throw unprocessable(`"until" (${request.body.until}) is ${formatDuration((until.getTime() - now.getTime()) / 1000)} ahead; the longest shelf here is ${longest}. Shelve until a time within it, and shelve again when it ends if the reason still holds.`, [{ field: 'until', reason: 'beyond the longest shelf' }]);
     }
     await visibleAlert(request, request.params.id);
     try {
-      const r = await repo.shelve(request.params.id, { by: request.body.by, until, reason: request.body.reason, keyPrefix: request.principal!.prefix, now });
+      const r = await repo.shelve(request.params.id, { by: request.body.by, until, reason: request.body.reason, keyId: request.principal!.keyId, now });
       if (!r) throw notFound(`No alert ${request.params.id}.`);
       request.log.info({ unitId: r.alert.unitId, alertId: r.alert.id, by: request.body.by, until: until.toISOString() }, 'alert shelved');
       return r.alert;
@@ -257,7 +276,7 @@ export async function alertRoutes(base: FastifyInstance): Promise<void> {
   }, async (request) => {
     await visibleAlert(request, request.params.id);
     const by = request.body?.by ?? null;
-    const r = await repo.unshelve(request.params.id, { by, keyPrefix: request.principal!.prefix, now: new Date() });
+    const r = await repo.unshelve(request.params.id, { by, keyId: request.principal!.keyId, now: new Date() });
     if (!r) throw notFound(`No alert ${request.params.id}.`);
     if (r.change) request.log.info({ unitId: r.alert.unitId, alertId: r.alert.id, by }, 'alert unshelved');
     return r.alert;
@@ -283,6 +302,10 @@ export async function alertRoutes(base: FastifyInstance): Promise<void> {
     }
     if (url.protocol !== 'http:' && url.protocol !== 'https:') throw unprocessable(`url uses ${url.protocol}; use http:// or https://.`, [{ field: 'url', reason: 'not http or https' }]);
     if (url.username || url.password) throw unprocessable('url carries a user name or password; the signature authenticates the sender, so leave them out.', [{ field: 'url', reason: 'credentials in the URL' }]);
+    // Only public addresses, unless allowed (see core/webhook-target.ts); a name that has no
+    // address yet is taken, and checked again at each delivery.
+    const target = await checkTarget(url, (host) => lookup(host, { all: true }), app.appConfig.webhooks.allowHosts);
+    if (!target.ok && !target.unresolved) throw unprocessable(`url: ${target.reason}.`, [{ field: 'url', reason: target.reason }]);
     const unitIds = b.unitIds ? [...new Set(b.unitIds)] : null;
     if (!withinScope(request, unitIds)) {
       throw new HttpError(403, 'forbidden', `This key is limited to units ${unitScope(request)!.join(', ')}; list unitIds within them.`);
@@ -292,7 +315,7 @@ export async function alertRoutes(base: FastifyInstance): Promise<void> {
       const unknown = unitIds.filter((u) => !known.has(u));
       if (unknown.length) throw unprocessable(`unitIds names units that do not exist: ${unknown.join(', ')}.`, unknown.map((u) => ({ field: 'unitIds', reason: `no unit ${u}` })));
     }
-    const w = await repo.createWebhook({ url: url.toString(), minGrade: b.minGrade as Grade, secret: b.secret, unitIds, createdBy: request.principal!.prefix });
+    const w = await repo.createWebhook({ url: url.toString(), minGrade: b.minGrade as Grade, secret: b.secret, unitIds, includeHistory: b.includeHistory === true, createdBy: request.principal!.keyId });
     request.log.info({ webhookId: w.id, minGrade: w.minGrade, unitIds }, 'webhook subscribed');
     return reply.status(201).send(w);
   });

@@ -2,18 +2,21 @@
  * Baselines of a unit: GET /v1/units/:unitId/baselines (read) lists every version, newest
  * first, with its reference window, method, when and by whom it was fitted, and the load bins
  * of its spread baseline with their counts, and the recent fit requests; POST
- * /v1/units/:unitId/baselines (admin) fits a new version over {from, to} from the steady rings
- * analysed in that window and answers 201 with it, or, when analysis has not yet reached the
- * end of the window, records the request and answers 202: the worker fits it once analysis
- * has passed the window (GET shows the request's state and the version made). Older versions are never changed: alerts and trends keep naming the one they used.
+ * /v1/units/:unitId/baselines (admin) asks for a new version fitted over {from, to}: it records
+ * the request and answers 202 with it (Location: the list, where the request's state and the
+ * version made appear). The worker fits it once analysis has passed the window. A window that
+ * analysis has passed already and that cannot be fitted (no steady rings, no load bin with
+ * enough of them) is refused at once with 422, by the check the worker's fit makes. Older
+ * versions are never changed: alerts and trends keep naming the one they used.
  */
 import type { FastifyInstance } from 'fastify';
 import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
 import { Type, type TSchema } from 'typebox';
-import { analysisWatermarkMs, insertBaselineRequest, listBaselineRequests, listBaselines, type BaselineRecord, type BaselineRequestRecord } from '../../db/baselines.ts';
-import { BaselineFitError, fitBaseline } from '../../worker/baselines.ts';
-import { badRequest, notFound, unprocessable } from '../errors.ts';
-import { ErrorReply, UnitParams } from '../schemas.ts';
+import { baselineOptionsFor, baselineWindowProblem } from '../../core/baseline.ts';
+import { analysisWatermarkMs, insertBaselineRequest, listBaselineRequests, listBaselines, steadyWindowSupply, type BaselineRecord, type BaselineRequestRecord } from '../../db/baselines.ts';
+import { badRequest, notFound, unprocessable } from '../../http/errors.ts';
+import { ErrorReply } from '../../http/schemas.ts';
+import { UnitParams } from '../schemas.ts';
 
 const Nullable = <T extends TSchema>(t: T) => Type.Union([t, Type.Null()]);
 const Time = Type.String({ format: 'date-time' });
@@ -113,7 +116,14 @@ export async function baselineRoutes(base: FastifyInstance): Promise<void> {
   });
 
   app.post('/v1/units/:unitId/baselines', {
-    schema: { tags: ['baselines'], summary: 'Fit a new baseline version over a reference window', params: UnitParams, body: FitBody, response: { 201: BaselineReply, 202: BaselineRequestReply, ...errors } },
+    schema: {
+      tags: ['baselines'],
+      summary: 'Fit a new baseline version over a reference window',
+      description: 'Records the request and answers 202 with it; the worker fits the new version once analysis has passed the window. Watch the request (its state, then the version made) in GET /v1/units/{unitId}/baselines, named by the Location header.',
+      params: UnitParams,
+      body: FitBody,
+      response: { 202: BaselineRequestReply, ...errors },
+    },
     config: { access: 'admin' },
   }, async (request, reply) => {
     const unitId = request.params.unitId;
@@ -121,20 +131,16 @@ export async function baselineRoutes(base: FastifyInstance): Promise<void> {
     const from = Date.parse(request.body.from);
     const to = Date.parse(request.body.to);
     if (!(from < to)) throw badRequest(`"from" (${request.body.from}) must be before "to" (${request.body.to}).`);
-    const by = request.principal?.label ?? request.principal?.prefix ?? 'unknown';
+    const by = request.principal?.label ?? request.principal?.keyId ?? 'unknown';
     const watermark = await analysisWatermarkMs(app.pool, unitId);
-    if (watermark === null || watermark < to) {
-      const r = await insertBaselineRequest(app.pool, unitId, from, to, by);
-      request.log.info({ unitId, requestId: r.id, from: request.body.from, to: request.body.to }, 'baseline fit requested; waiting for analysis to reach the end of the window');
-      return reply.status(202).send(requestReply(r));
+    const analysed = watermark !== null && watermark >= to;
+    if (analysed) {
+      const options = baselineOptionsFor(app.appConfig.worker);
+      const problem = baselineWindowProblem(unitId, from, to, await steadyWindowSupply(app.pool, unitId, from, to, options), options.minCount);
+      if (problem) throw unprocessable(`${problem}.`);
     }
-    try {
-      const b = (await fitBaseline(app.pool, unitId, from, to, by, app.appConfig.worker)) as BaselineRecord;
-      request.log.info({ unitId, baselineVersion: b.version, from: request.body.from, to: request.body.to }, 'baseline fitted on request');
-      return reply.status(201).send(baselineReply(b, true));
-    } catch (err) {
-      if (err instanceof BaselineFitError) throw unprocessable(`${err.message}.`);
-      throw err;
-    }
+    const r = await insertBaselineRequest(app.pool, unitId, from, to, by);
+    request.log.info({ unitId, requestId: r.id, from: request.body.from, to: request.body.to }, analysed ? 'baseline fit requested' : 'baseline fit requested; waiting for analysis to reach the end of the window');
+    return reply.status(202).header('location', `/v1/units/${unitId}/baselines`).send(requestReply(r));
   });
 }

@@ -11,10 +11,14 @@ import type { FastifyInstance } from 'fastify';
 import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
 import { Type } from 'typebox';
 import { calibrateSwirl, calibrationResidualSigmaDeg, correctedLoadFraction, swirlDeg, type CalibrationSample } from '../../core/index.ts';
+import { checkUnitConfig } from '../../core/unit-config.ts';
+import { whatIfOutcome } from '../../core/swirl-what-if.ts';
+import type { SwirlPoint } from '../../core/types.ts';
 import { versionInForce } from '../../db/units.ts';
-import { notFound } from '../errors.ts';
-import { UnitId } from '../schemas.ts';
+import { notFound, unprocessable } from '../../http/errors.ts';
+import { UnitConfigFields, UnitId } from '../schemas.ts';
 import { readErrors, readsOf, timeWindow, unitOr404 } from './read-common.ts';
+import { ErrorReply } from '../../http/schemas.ts';
 
 export const CALIBRATION_MAX_DAYS = 31;
 export const CALIBRATION_MAX_RINGS = 20_000;
@@ -23,10 +27,10 @@ const Nullable = <T extends Parameters<typeof Type.Union>[0][number]>(t: T) => T
 
 export const CalibrateBody = Type.Object(
   {
-    from: Type.String({ format: 'date-time' }),
-    to: Type.String({ format: 'date-time' }),
+    from: Type.String({ format: 'date-time', description: 'start of a window in which the chamber was known to run cold (e.g. a fuel-bias test), at several loads' }),
+    to: Type.String({ format: 'date-time', description: 'end of the window (exclusive); at most 31 days after from' }),
     chamber: Type.Integer({ minimum: 1, maximum: 64, description: 'the chamber known to be cold, numbered from 1' }),
-    method: Type.Optional(Type.Union([Type.Literal('piecewise-linear'), Type.Literal('polynomial')], { default: 'piecewise-linear' })),
+    method: Type.Optional(Type.Union([Type.Literal('piecewise-linear'), Type.Literal('polynomial')], { default: 'piecewise-linear', description: 'piecewise-linear: one swirl per load band, joined; polynomial: a smooth curve of the given degree' })),
     degree: Type.Optional(Type.Integer({ minimum: 0, maximum: 3, description: 'polynomial degree' })),
   },
   { additionalProperties: false },
@@ -61,6 +65,48 @@ export const CalibrateReply = Type.Object({
   robustResidualSigmaDeg: Nullable(Type.Number()),
   bands: Type.Array(Band),
   advice: Type.String(),
+});
+
+export const WHAT_IF_MAX_DAYS = 31;
+export const WHAT_IF_MAX_RINGS = 5_000;
+
+export const WhatIfBody = Type.Object(
+  {
+    curve: { ...UnitConfigFields.swirl.properties.curve, description: 'the candidate swirl curve: [corrected load fraction, swirl degrees] points sorted by load, as in the unit configuration; the unit\'s sense is kept' },
+    from: Type.String({ format: 'date-time', description: 'start of the window of stored rings to re-map' }),
+    to: Type.String({ format: 'date-time', description: `end of the window (exclusive); at most ${WHAT_IF_MAX_DAYS} days after from` }),
+  },
+  { additionalProperties: false },
+);
+
+const WhatIfChamber = Type.Object({
+  chamber: Type.Integer({ description: 'numbered from 1' }),
+  deviationC: Nullable(Type.Number({ description: 'mean chamber estimate over the window, from the average chamber, °C' })),
+  residualC: Nullable(Type.Number({ description: 'deviation minus its normal in the same 5 % load band over the baseline reference window, mapped with the same curve, °C; null without a baseline' })),
+  rank: Nullable(Type.Integer({ description: '1 = coldest (by residual, or by deviation without a baseline)' })),
+  sensitivityCPerDeg: Nullable(Type.Number({ description: 'how far the estimate moves per degree of swirl error, °C per degree (central difference at ±1°)' })),
+});
+
+const WhatIfOutcomeSchema = Type.Object({
+  curve: Type.Array(Type.Tuple([Type.Number(), Type.Number()])),
+  ringsUsed: Type.Integer(),
+  ringsWithoutNormal: Type.Integer({ description: 'rings of a load band the reference window did not cover: left out of the residuals' }),
+  coldestChamber: Nullable(Type.Integer()),
+  chambers: Type.Array(WhatIfChamber),
+});
+
+export const WhatIfReply = Type.Object({
+  unitId: Type.String(),
+  from: Type.String(),
+  to: Type.String(),
+  ringsInWindow: Type.Integer({ description: 'steady analysed rings in the window' }),
+  ringsExamined: Type.Integer({ description: `after thinning evenly to at most ${WHAT_IF_MAX_RINGS}` }),
+  reference: Nullable(Type.Object({ baselineVersion: Type.Integer(), from: Type.String(), to: Type.String(), rings: Type.Integer() }, { description: 'the window the normals are learnt from: the latest baseline\'s' })),
+  current: WhatIfOutcomeSchema,
+  candidate: WhatIfOutcomeSchema,
+  callMoves: Type.Boolean({ description: 'the coldest chamber differs between the two curves' }),
+  advice: Type.String(),
+  stored: Type.Literal(false, { description: 'nothing is stored: PATCH the unit to adopt a curve' }),
 });
 
 /** Speed within this much of synchronous and load above this fraction for a ring to be used. */
@@ -142,6 +188,53 @@ export async function swirlRoutes(base: FastifyInstance): Promise<void> {
       robustResidualSigmaDeg: Number.isFinite(sigma) ? sigma : null,
       bands: bandRows,
       advice,
+    };
+  });
+
+  app.post('/v1/units/:unitId/swirl/what-if', {
+    schema: {
+      tags: ['read'],
+      summary: 'Re-map stored rings with a candidate swirl curve: chamber ranking, residuals and sensitivity per degree under the current and the candidate curve (stores nothing)',
+      description: `The window is limited to ${WHAT_IF_MAX_DAYS} days; its steady rings are thinned evenly to at most ${WHAT_IF_MAX_RINGS}, as are the reference window's.`,
+      params: Type.Object({ unitId: UnitId }),
+      body: WhatIfBody,
+      response: { 200: WhatIfReply, ...readErrors, 422: ErrorReply },
+    },
+    config: { access: 'read' },
+  }, async (request) => {
+    const unit = await unitOr404(app, request.params.unitId);
+    const b = request.body;
+    const w = timeWindow(b, Date.now(), 1, WHAT_IF_MAX_DAYS, 'A swirl what-if window');
+    const config = versionInForce(unit.versions, w.toMs)?.config ?? unit.config;
+    const candidate = b.curve as SwirlPoint[];
+    const problems = checkUnitConfig({ ...config, swirl: { ...config.swirl, curve: candidate } }).filter((p) => p.field.startsWith('swirl.curve'));
+    if (problems.length) throw unprocessable(`The candidate curve is not usable: ${problems.map((p) => `${p.field.replace('swirl.', '')} ${p.reason}`).join('; ')}.`, problems.map((p) => ({ field: p.field.replace('swirl.', ''), reason: p.reason })));
+    const [win, baseline] = await Promise.all([reads.steadyDeviations(unit.id, w.fromMs, w.toMs, WHAT_IF_MAX_RINGS), reads.latestBaseline(unit.id)]);
+    const ref = baseline ? await reads.steadyDeviations(unit.id, Date.parse(baseline.windowFrom), Date.parse(baseline.windowTo), WHAT_IF_MAX_RINGS) : null;
+    const rings = win.rings.map((r) => ({ loadFraction: r.loadFraction, deviationC: r.deviationC, validity: r.validity }));
+    const refRings = ref ? ref.rings.map((r) => ({ loadFraction: r.loadFraction, deviationC: r.deviationC, validity: r.validity })) : null;
+    const current = whatIfOutcome(config, config.swirl.curve, rings, refRings);
+    const cand = whatIfOutcome(config, candidate, rings, refRings);
+    const callMoves = current.coldestChamber !== cand.coldestChamber;
+    const worst = (o: typeof current) => o.chambers.find((c) => c.chamber === o.coldestChamber);
+    const sens = worst(current)?.sensitivityCPerDeg;
+    const advice = win.total === 0
+      ? `Unit ${unit.id} has no steady analysed ring in this window; choose a window with fired, steady running.`
+      : callMoves
+        ? `The call depends on the curve: chamber ${current.coldestChamber} is the coldest with the current curve, chamber ${cand.coldestChamber} with the candidate. Confirm the curve (a fuel-bias test and POST /v1/units/${unit.id}/swirl/calibrate) before opening either.`
+        : `Both curves name chamber ${current.coldestChamber ?? '–'} the coldest${sens !== null && sens !== undefined ? `; its estimate moves ${Math.abs(sens).toFixed(2)} °C per degree of swirl error` : ''}.`;
+    return {
+      unitId: unit.id,
+      from: new Date(w.fromMs).toISOString(),
+      to: new Date(w.toMs).toISOString(),
+      ringsInWindow: win.total,
+      ringsExamined: win.rings.length,
+      reference: baseline && ref ? { baselineVersion: baseline.version, from: baseline.windowFrom, to: baseline.windowTo, rings: ref.rings.length } : null,
+      current,
+      candidate: cand,
+      callMoves,
+      advice,
+      stored: false as const,
     };
   });
 }

@@ -6,12 +6,13 @@
 import type { FastifyInstance } from 'fastify';
 import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
 import { Type } from 'typebox';
-import { checkUnitConfig } from '../../core/unit-config.ts';
 import type { UnitConfig } from '../../core/types.ts';
 import { DuplicateEffectiveTimeError, DuplicateUnitError, type UnitRecord } from '../../db/units.ts';
-import { conflict, notFound, unprocessable } from '../errors.ts';
-import { unitScope } from '../auth.ts';
-import { CreateUnitBody, ErrorReply, PatchUnitBody, UnitParams, UnitReply } from '../schemas.ts';
+import { HttpError, conflict, notFound } from '../../http/errors.ts';
+import { assertConsistent, unitFromBody } from '../unit-body.ts';
+import { unitScope } from '../../http/auth.ts';
+import { ErrorReply } from '../../http/schemas.ts';
+import { CreateUnitBody, PatchUnitBody, UnitParams, UnitReply } from '../schemas.ts';
 
 const CONFIG_KEYS = ['ratedPowerMw', 'thermocouples', 'chambers', 'swirl', 'temperatureUnit', 'view', 'correction'] as const;
 
@@ -20,18 +21,13 @@ export function unitReply(u: UnitRecord) {
     id: u.id,
     name: u.name,
     site: u.site,
+    family: u.family ?? null,
     ...u.config,
     version: u.version,
     versions: u.versions.map((v) => ({ version: v.version, effectiveFrom: v.effectiveFrom, createdAt: v.createdAt })),
   };
 }
 
-function assertConsistent(config: UnitConfig): void {
-  const problems = checkUnitConfig(config);
-  if (problems.length) {
-    throw unprocessable(`The unit configuration is inconsistent: ${problems.map((p) => `${p.field} ${p.reason}`).join('; ')}`, problems);
-  }
-}
 
 const errors = { 400: ErrorReply, 401: ErrorReply, 403: ErrorReply, 404: ErrorReply, 409: ErrorReply, 422: ErrorReply };
 
@@ -42,11 +38,14 @@ export async function unitRoutes(base: FastifyInstance): Promise<void> {
     schema: { tags: ['units'], summary: 'Register a unit', body: CreateUnitBody, response: { 201: UnitReply, ...errors } },
     config: { access: 'admin' },
   }, async (request, reply) => {
-    const { id, name, site, ...rest } = request.body;
-    const config = { temperatureUnit: 'C', ...rest } as UnitConfig;
-    assertConsistent(config);
+    const { identity, config } = unitFromBody(request.body);
+    const { id } = identity;
+    const scope = request.principal?.unitIds ?? null;
+    if (scope !== null && !scope.includes(id)) {
+      throw new HttpError(403, 'forbidden', `This key is limited to units ${scope.join(', ')}; it may not register unit ${id}.`);
+    }
     try {
-      const unit = await app.repos.units.create({ id, name, site }, config, request.principal?.prefix ?? null);
+      const unit = await app.repos.units.create(identity, config, request.principal?.keyId ?? null);
       request.log.info({ unitId: id }, 'unit registered');
       return reply.status(201).send(unitReply(unit));
     } catch (err) {
@@ -73,13 +72,13 @@ export async function unitRoutes(base: FastifyInstance): Promise<void> {
     schema: { tags: ['units'], summary: 'Rename, or add a configuration version', params: UnitParams, body: PatchUnitBody, response: { 200: UnitReply, ...errors } },
     config: { access: 'admin' },
   }, async (request) => {
-    const { name, site, effectiveFrom, ...changes } = request.body;
+    const { name, site, family, effectiveFrom, ...changes } = request.body;
     const hasConfigChange = CONFIG_KEYS.some((k) => changes[k] !== undefined);
     const at = effectiveFrom ? new Date(effectiveFrom) : new Date();
     try {
       const unit = await app.repos.units.update(
         request.params.unitId,
-        { name, site },
+        { name, site, family },
         hasConfigChange
           ? (base) => {
               const next = { ...base } as UnitConfig & Record<string, unknown>;
@@ -89,7 +88,7 @@ export async function unitRoutes(base: FastifyInstance): Promise<void> {
             }
           : null,
         at,
-        request.principal?.prefix ?? null,
+        request.principal?.keyId ?? null,
       );
       if (!unit) throw notFound(`No unit ${request.params.unitId}.`);
       request.log.info({ unitId: unit.id, version: unit.version }, 'unit changed');
