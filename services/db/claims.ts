@@ -28,6 +28,12 @@ export async function retireWorker(q: Queryable, workerId: string): Promise<void
   await q.query(`DELETE FROM workers WHERE worker_id = $1`, [workerId]);
 }
 
+/** The other workers registered from this host, with their process ids. */
+export async function workersOnHost(q: Queryable, host: string, exceptWorkerId: string): Promise<Array<{ workerId: string; pid: number }>> {
+  const { rows } = await q.query(`SELECT worker_id, pid FROM workers WHERE host = $1 AND worker_id <> $2`, [host, exceptWorkerId]);
+  return rows.map((r) => ({ workerId: r.worker_id as string, pid: Number(r.pid) }));
+}
+
 /** Every unit gets a claim row (new units appear as unclaimed). Returns all unit ids. */
 export async function ensureClaimRows(q: Queryable): Promise<string[]> {
   // Only units without a row: a conflict check on an existing row would wait for a round that

@@ -11,8 +11,8 @@ import { from as copyFrom, to as copyTo } from 'pg-copy-streams';
 
 const SIGNATURE = Buffer.from('PGCOPY\n\xff\r\n\0', 'latin1');
 /** ms between 1970-01-01 and PostgreSQL's epoch 2000-01-01 (UTC). */
-const PG_EPOCH_MS = 946_684_800_000;
-const TWO_32 = 4_294_967_296;
+export const PG_EPOCH_MS = 946_684_800_000;
+export const TWO_32 = 4_294_967_296;
 const FLOAT4_OID = 700;
 const INT2_OID = 21;
 

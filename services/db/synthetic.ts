@@ -134,8 +134,8 @@ export async function insertRollups(q: Queryable, unitId: string, rows: Syntheti
 /** Inserts a baseline version with a minimal body. */
 export async function insertBaseline(q: Queryable, unitId: string, version: number, fromMs: number, toMs: number): Promise<void> {
   await q.query(
-    `INSERT INTO baselines (unit_id, version, window_from, window_to, method, fitted_at, fitted_by, sample_count, body)
-     VALUES ($1, $2, $3, $4, 'binned-median-mad', $4, 'synthetic', 1000, '{}'::jsonb) ON CONFLICT DO NOTHING`,
+    `INSERT INTO baselines (unit_id, version, window_from, window_to, method, fitted_at, fitted_by, sample_count, body, effective_from)
+     VALUES ($1, $2, $3, $4, 'binned-median-mad', $4, 'synthetic', 1000, '{}'::jsonb, $4) ON CONFLICT DO NOTHING`,
     [unitId, version, new Date(fromMs), new Date(toMs)],
   );
 }

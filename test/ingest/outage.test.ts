@@ -11,7 +11,7 @@ import os from 'node:os';
 import path from 'node:path';
 import type { FastifyInstance } from 'fastify';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { buildApp } from '../../services/api/app.ts';
+import { buildApp } from '../../services/cli/app.ts';
 import { loadConfig } from '../../services/db/config.ts';
 import { startEmbeddedPostgres, type EmbeddedServer } from '../../services/db/embedded.ts';
 import { createKeysRepository } from '../../services/db/keys.ts';

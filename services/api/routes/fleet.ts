@@ -9,7 +9,7 @@ import negotiate from '@fastify/accept-negotiator';
 import type { FastifyInstance } from 'fastify';
 import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
 import { Type, type Static } from 'typebox';
-import { unitScope } from '../auth.ts';
+import { unitScope } from '../../http/auth.ts';
 import { fleetSvg, rankFleet, type Freshness } from '../svg/fleet.ts';
 import type { FleetRecord, FleetStarts } from '../../db/reads.ts';
 import { StartCounters } from './starts.ts';
