@@ -11,7 +11,7 @@ import { readFileSync } from 'node:fs';
 import { writeFile } from 'node:fs/promises';
 import { monitorEventLoopDelay, performance, PerformanceObserver, type EventLoopUtilization } from 'node:perf_hooks';
 import { parentPort, workerData } from 'node:worker_threads';
-import { buildApp } from '../services/api/app.ts';
+import { buildApp } from '../services/cli/app.ts';
 import { loadConfig } from '../services/db/config.ts';
 import { createLogger } from '../services/db/logger.ts';
 import { createPool } from '../services/db/pool.ts';

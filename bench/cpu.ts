@@ -61,7 +61,7 @@ function isConnection(pid: string): boolean {
   }
 }
 
-function postgresSeconds(postmaster: number | null): { all: number; connections: number } {
+export function postgresSeconds(postmaster: number | null): { all: number; connections: number } {
   if (postmaster === null) return { all: NaN, connections: NaN };
   const own = statTimes(`/proc/${postmaster}/stat`);
   if (own === null) return { all: NaN, connections: NaN };
@@ -76,6 +76,12 @@ function postgresSeconds(postmaster: number | null): { all: number; connections:
     if (isConnection(pid)) connections += t[0] + t[1];
   }
   return { all, connections };
+}
+
+/** CPU seconds of another process and its exited children, or NaN when it cannot be read. */
+export function processSeconds(pid: number): number {
+  const t = statTimes(`/proc/${pid}/stat`);
+  return t ? t[0] + t[1] + t[2] + t[3] : NaN;
 }
 
 export function cpuSample(postmaster: number | null): CpuSample {

@@ -17,7 +17,7 @@
 import { Worker } from 'node:worker_threads';
 import { createRequire } from 'node:module';
 import { cpuSample, cpuSince, describeCpu, postmasterPid, type CpuSpent } from './cpu.ts';
-import { buildApp } from '../services/api/app.ts';
+import { buildApp } from '../services/cli/app.ts';
 import { loadConfig } from '../services/db/config.ts';
 import { startThrowawayPostgres } from '../services/db/embedded.ts';
 import { createKeysRepository } from '../services/db/keys.ts';

@@ -25,7 +25,7 @@ import { spawn } from 'node:child_process';
 import { fileURLToPath } from 'node:url';
 import { createRequire } from 'node:module';
 import { analyseRing, correctedLoadFraction, prepareUnit } from '../services/core/index.ts';
-import { buildApp } from '../services/api/app.ts';
+import { buildApp } from '../services/cli/app.ts';
 import { loadConfig } from '../services/db/config.ts';
 import { startThrowawayPostgres } from '../services/db/embedded.ts';
 import { createKeysRepository } from '../services/db/keys.ts';
@@ -34,7 +34,7 @@ import { migrate } from '../services/db/migrate.ts';
 import { createPool, type Pool } from '../services/db/pool.ts';
 import { RingCopyEncoder, copyRingsRaw } from '../services/db/rings.ts';
 import { createUnitsRepository } from '../services/db/units.ts';
-import { analysisTotals, ringsAnalysedTotal } from '../services/db/analysis.ts';
+import { analysisTotals, ringsAnalysedTotal } from '../services/db/progress.ts';
 import { demoFleet, simulateUnit, type RingBatch, type SimUnit } from '../services/sim/index.ts';
 import { startWorker } from '../services/worker/index.ts';
 

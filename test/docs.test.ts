@@ -1,9 +1,12 @@
 /**
- * The README documents every environment variable the configuration loader reads, and every
- * command the `cansight` usage text lists exists in the dispatcher.
+ * The README documents every environment variable the configuration loader reads; every
+ * command of the `cansight` usage table exists in the dispatcher and in the contributor guide,
+ * whose examples name units the demo fleet has.
  */
 import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
+import { COMMANDS } from '../services/cli/usage.ts';
+import { demoFleetConfigs } from '../services/sim/fleet.ts';
 
 const read = (p: string) => readFileSync(new URL(p, import.meta.url), 'utf8');
 
@@ -17,11 +20,21 @@ describe('documentation', () => {
     expect(missing).toEqual([]);
   });
 
-  it('every command in the usage text is handled by the dispatcher', () => {
-    const usage = read('../services/cli/usage.ts');
+  it('every command of the usage table is handled by the dispatcher and named in the contributor guide', () => {
     const main = read('../services/cli/main.ts');
-    const commands = new Set([...usage.matchAll(/^ {2}cansight ([a-z]+)/gm)].map((m) => m[1]));
+    const commands = new Set(Object.values(COMMANDS).map((c) => c.name.split(' ')[0]));
     expect(commands.size).toBeGreaterThan(5);
     for (const c of commands) expect(main, c).toContain(`case '${c}'`);
+    const guide = read('../DEVELOPERS.md');
+    const listed = /cli\/\s+the command's sub-commands: ([^;]+);/.exec(guide)?.[1] ?? '';
+    for (const c of commands) expect(listed.split(/,\s*/), c).toContain(c);
+  });
+
+  it('the contributor guide\'s examples name units of the demo fleet', () => {
+    const guide = read('../DEVELOPERS.md');
+    const ids = new Set(demoFleetConfigs().map((u) => u.id));
+    const named = [...guide.matchAll(/--units? ([a-z0-9,-]+)/g)].flatMap((m) => m[1].split(','));
+    expect(named.length).toBeGreaterThan(0);
+    for (const id of named) expect([...ids], id).toContain(id);
   });
 });

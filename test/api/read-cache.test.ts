@@ -10,8 +10,10 @@ import { gunzipSync } from 'node:zlib';
 import pg from 'pg';
 import { bearer, createTestApp, unitBody, type TestApp } from '../helpers/app.ts';
 import { insertAlerts, insertAnalyses } from '../../services/db/synthetic.ts';
-import { analysisProgress, latestAnalysis } from '../../services/db/analysis.ts';
-import { listActiveAlerts } from '../../services/db/alerts.ts';
+import { analysisProgress } from '../../services/db/progress.ts';
+import { latestAnalysis } from '../../services/db/analysis.ts';
+import { listActiveAlerts } from '../../services/db/alert-reads.ts';
+import { baselineOutlook } from '../../services/db/baselines.ts';
 import { createStartsRepository } from '../../services/db/starts.ts';
 import { unitStatusState, unitStatusStates } from '../../services/db/status-reads.ts';
 import { statusBody } from '../../services/api/routes/status.ts';
@@ -66,10 +68,11 @@ describe('the status statement', () => {
         progress: await analysisProgress(t.db.pool, unitId),
         alerts: await listActiveAlerts(t.db.pool, unitId, { now: new Date(now) }),
         starts: counters,
+        baseline: await baselineOutlook(t.db.pool, unitId).then((o) => ({ version: o!.version, firstSteadyMs: o!.firstSteadyMs, pendingRequest: o!.pendingRequest })),
         snapshot: '',
         changesAtMs: null,
-      });
-      expect(JSON.parse(JSON.stringify(statusBody(unitId, st!)))).toEqual(JSON.parse(JSON.stringify(expected)));
+      }, t.config.worker);
+      expect(JSON.parse(JSON.stringify(statusBody(unitId, st!, t.config.worker)))).toEqual(JSON.parse(JSON.stringify(expected)));
       expect((await status(unitId)).activeAlerts).toEqual(JSON.parse(JSON.stringify(expected.activeAlerts)));
     }
     expect(await unitStatusState(t.db.pool, 'cache-none', Date.now())).toBeNull();
@@ -87,7 +90,7 @@ describe('the status statement', () => {
     expect([...many.keys()].sort()).toEqual(['cache-a', 'cache-many', 'cache-quiet']);
     for (const id of ['cache-a', 'cache-many', 'cache-quiet']) {
       const one = await unitStatusState(t.db.pool, id, now);
-      expect(statusBody(id, many.get(id)!)).toEqual(statusBody(id, one!));
+      expect(statusBody(id, many.get(id)!, t.config.worker)).toEqual(statusBody(id, one!, t.config.worker));
     }
     expect(many.get('cache-many')!.alerts.map((a) => [a.unitId, a.grade])).toEqual([['cache-many', 'warning'], ['cache-many', 'notice']]);
     expect(many.get('cache-a')!.alerts.every((a) => a.unitId === 'cache-a')).toBe(true);
@@ -108,16 +111,16 @@ describe('reads after writes', () => {
     const before = await fleetRow('cache-a');
     expect(before.unacknowledged).toBe(2);
 
-    expect((await post(`/v1/alerts/${id}/ack`, { by: 'A. Operator' })).statusCode).toBe(200);
+    expect((await post(`/v1/alerts/${id}/ack`, { by: 'shift operator 1' })).statusCode).toBe(200);
     expect(alertOf(await status('cache-a'))?.acknowledged).toBe(true);
     expect((await fleetRow('cache-a')).unacknowledged).toBe(1);
 
     const until = new Date(Date.now() + 3_600_000).toISOString();
-    expect((await post(`/v1/alerts/${id}/shelve`, { by: 'A. Operator', until, reason: 'crew on site' })).statusCode).toBe(200);
+    expect((await post(`/v1/alerts/${id}/shelve`, { by: 'shift operator 1', until, reason: 'crew on site' })).statusCode).toBe(200);
     expect(alertOf(await status('cache-a'))).toBeUndefined();
     expect(await fleetRow('cache-a')).toMatchObject({ activeAlerts: 1, shelvedAlerts: 1 });
 
-    expect((await post(`/v1/alerts/${id}/unshelve`, { by: 'A. Operator' })).statusCode).toBe(200);
+    expect((await post(`/v1/alerts/${id}/unshelve`, { by: 'shift operator 1' })).statusCode).toBe(200);
     expect(alertOf(await status('cache-a'))).toBeDefined();
     expect(await fleetRow('cache-a')).toMatchObject({ activeAlerts: 2, shelvedAlerts: 0 });
   });
@@ -145,7 +148,7 @@ describe('reads after writes', () => {
   it('a shelf running out shows with no write in between', async () => {
     const [alertId] = await insertAlerts(t.db.pool, 'cache-quiet', [{ kind: 'spread_high', grade: 'warning', raisedAtMs: Date.now(), message: 'spread high' }]);
     const untilMs = Date.now() + 1500;
-    expect((await post(`/v1/alerts/${alertId}/shelve`, { by: 'A. Operator', until: new Date(untilMs).toISOString(), reason: 'a short look' })).statusCode).toBe(200);
+    expect((await post(`/v1/alerts/${alertId}/shelve`, { by: 'shift operator 1', until: new Date(untilMs).toISOString(), reason: 'a short look' })).statusCode).toBe(200);
     expect((await status('cache-quiet')).activeAlerts).toEqual([]);
     expect(await fleetRow('cache-quiet')).toMatchObject({ activeAlerts: 0, shelvedAlerts: 1 });
     // Read again as the shelf runs out: the cached answers end with it.
@@ -268,7 +271,7 @@ describe('the fleet board after writes to a few units', () => {
       { tsMs: Date.now() - 20_000, loadFraction: 0.9, spreadC: 38, spreadLimitC: 40, validity: [2, ...Array(17).fill(0)], tcDeviationC: Array(18).fill(0), chamberDeviationC: Array(10).fill(0), swirlDeg: 70 },
     ]);
     const [id] = await insertAlerts(other, 'cache-b', [{ kind: 'chamber_cold', grade: 'alarm', chamber: 3, raisedAtMs: Date.now(), message: 'chamber 3 cold' }]);
-    expect((await post(`/v1/alerts/${id}/ack`, { by: 'A. Operator' })).statusCode).toBe(200);
+    expect((await post(`/v1/alerts/${id}/ack`, { by: 'shift operator 1' })).statusCode).toBe(200);
     expect((await t.app.inject({ method: 'PATCH', url: '/v1/units/cache-a', headers: bearer(t.keys.admin), payload: { temperatureUnit: 'F' } })).statusCode).toBe(200);
     expect((await t.app.inject({ method: 'POST', url: '/v1/units', headers: bearer(t.keys.admin), payload: unitBody('cache-new') })).statusCode).toBe(201);
 

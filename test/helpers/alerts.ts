@@ -10,7 +10,9 @@ import { createRingAnalysis, type RingAnalysis } from '../../services/core/ring.
 import type { Finding, FindingKind, Grade } from '../../services/core/findings.ts';
 import type { UnitConfig } from '../../services/core/types.ts';
 import { applyAlertObservations, conditionKey, loadAlertSettings, newAlert, type AlertObservation, type AlertSettings, type AlertSubject } from '../../services/worker/alerts.ts';
-import { createWebhook, recordChange, type AlertRow } from '../../services/db/alerts.ts';
+import { createWebhook } from '../../services/db/webhooks.ts';
+import { recordChange } from '../../services/db/alert-changes.ts';
+import type { AlertRow } from '../../services/db/alert-rows.ts';
 
 export const T0 = Date.parse('2026-03-01T10:00:00Z');
 export const at = (s: number) => new Date(T0 + s * 1000);
@@ -29,7 +31,8 @@ export async function addUnit(pool: Pool, id: string): Promise<void> {
 
 /** Settings with explicit delays (seconds) for every kind, and the given overrides. */
 export function settings(o: { on?: number; off?: number; grade?: number; deadband?: number; gap?: number; silent?: number; tries?: number; base?: number; max?: number } = {}): AlertSettings {
-  const s = loadAlertSettings(loadConfig({}));
+  // The tests' receivers listen on loopback, which webhooks may reach only when allowed.
+  const s = loadAlertSettings(loadConfig({ CANSIGHT_WEBHOOK_ALLOW_HOSTS: '127.0.0.1' }));
   for (const k of Object.keys(s.onDelayS) as (keyof typeof s.onDelayS)[]) {
     s.onDelayS[k] = o.on ?? 30;
     s.offDelayS[k] = o.off ?? 120;
