@@ -28,7 +28,11 @@
  *                         SCORECARD_ALERTS_OUT (file: every alert read back, as JSON; the
  *                         realistic fleet's go to the same name with .realistic before .json),
  *                         SCORECARD_REALISTIC_SEED (101), SCORECARD_ONE_HZ_DAYS (2),
- *                         SCORECARD_FLEETS (ideal,realistic: run just one of them)
+ *                         SCORECARD_FLEETS (ideal,realistic: run just one of them),
+ *                         SCORECARD_FEED (live: day by day, all units together, the nightly
+ *                         drift run after each day; import: each unit's whole history sent in
+ *                         one go, unit after unit, with no drift run called, so baselines,
+ *                         drift and alerts follow ring time alone)
  */
 import { writeFileSync } from 'node:fs';
 import { loadConfig } from '../services/db/config.ts';
@@ -40,7 +44,7 @@ import {
   DEFAULT_SCORECARD_END, formatScorecard, formatSideBySide, floorsMet, headline, IDEAL_MISMATCH, REALISTIC_FLOORS, REALISTIC_MISMATCH,
   SCORECARD_FLOORS, scorecardFleet, type FleetMismatch, type ScorecardFloors,
 } from '../services/scorecard/scorecard.ts';
-import { runScorecard, type ScorecardRun } from '../services/scorecard/run.ts';
+import { runScorecard, type ScorecardFeed, type ScorecardRun } from '../services/scorecard/run.ts';
 
 const UNITS = Number(process.env.SCORECARD_UNITS ?? 20);
 const DAYS = Number(process.env.SCORECARD_DAYS ?? 30);
@@ -50,6 +54,8 @@ const REALISTIC_SEED = Number(process.env.SCORECARD_REALISTIC_SEED ?? 101);
 const ONE_HZ_DAYS = Number(process.env.SCORECARD_ONE_HZ_DAYS ?? REALISTIC_MISMATCH.oneHzDays);
 const END = process.env.SCORECARD_END ?? DEFAULT_SCORECARD_END;
 const FLEETS = (process.env.SCORECARD_FLEETS ?? 'ideal,realistic').split(',').map((x) => x.trim());
+const FEED = (process.env.SCORECARD_FEED ?? 'live') as ScorecardFeed;
+if (FEED !== 'live' && FEED !== 'import') throw new Error(`SCORECARD_FEED="${FEED}" is neither live nor import`);
 const say = (line: string) => process.stderr.write(line + '\n');
 
 interface FleetPlan {
@@ -100,8 +106,8 @@ async function runFleet(plan: FleetPlan, url: string): Promise<ScorecardRun> {
     const only = process.env.SCORECARD_ONLY ? new Set(process.env.SCORECARD_ONLY.split(',').map((x) => x.trim())) : null;
     const fleet = only ? { ...whole, units: whole.units.filter((u) => only.has(u.config.id)), healthy: whole.healthy.filter((id) => only.has(id)) } : whole;
     if (fleet.units.length === 0) throw new Error(`SCORECARD_ONLY names no unit of the fleet (${whole.units.map((u) => u.config.id).join(', ')})`);
-    say(`scorecard, ${plan.name} fleet: ${UNITS} units, ${REFERENCE_DAYS} + ${DAYS} days, seed ${plan.seed}, baseline after ${config.worker.baselineAutoDays} days of steady data`);
-    const run = await runScorecard({ pool, config, logger: createLogger(config.logLevel), fleet, steadyIntervalS: 60, say: (l) => say(`${plan.name}: ${l}`) });
+    say(`scorecard, ${plan.name} fleet: ${UNITS} units, ${REFERENCE_DAYS} + ${DAYS} days, seed ${plan.seed}, fed ${FEED === 'live' ? 'live, day by day' : 'as one import per unit'}, baseline after ${config.worker.baselineAutoDays} days of steady data`);
+    const run = await runScorecard({ pool, config, logger: createLogger(config.logLevel), fleet, steadyIntervalS: 60, feed: FEED, say: (l) => say(`${plan.name}: ${l}`) });
     if (process.env.SCORECARD_ALERTS_OUT) {
       const out = plan.name === 'ideal' ? process.env.SCORECARD_ALERTS_OUT : process.env.SCORECARD_ALERTS_OUT.replace(/(\.json)?$/, `.${plan.name}.json`);
       writeFileSync(out, JSON.stringify(run.alerts, null, 1));
@@ -132,7 +138,7 @@ async function main(): Promise<void> {
     summary.push({ seed: plan.seed, ...headline(run.figures), floorsMet: met, rings: run.rings, seconds: Math.round(run.seconds) });
   }
   process.stdout.write('\n' + formatSideBySide(results.map((r) => ({ name: r.plan.name, figures: r.run.figures }))) + '\n');
-  const line: Record<string, unknown> = { bench: 'scorecard' };
+  const line: Record<string, unknown> = { bench: 'scorecard', feed: FEED };
   results.forEach((r, i) => {
     if (r.plan.name === 'ideal') Object.assign(line, summary[i]);
     else line[r.plan.name] = summary[i];

@@ -80,7 +80,7 @@ export async function recordChange(c: Queryable, a: AlertRow, input: ChangeInput
 /** Outbox rows of one change for the live subscriptions whose units and minimum grade match, and which want it ('history': those that ask for history; 'live': those that do not). */
 async function enqueue(c: Queryable, a: AlertRow, change: AlertChange, who: 'all' | 'history' | 'live', fromGrade: Grade | null): Promise<void> {
   const rank = Math.max(gradeRank(a.grade), fromGrade ? gradeRank(fromGrade) : -1);
-  await c.query(
+  const { rowCount } = await c.query(
     `INSERT INTO webhook_outbox (webhook_id, alert_id, unit_id, history_id, event, body)
      SELECT id, $1, $2, $3, $4, $5 FROM webhooks
       WHERE deleted_at IS NULL AND array_position($6::text[], min_grade) - 1 <= $7
@@ -88,6 +88,8 @@ async function enqueue(c: Queryable, a: AlertRow, change: AlertChange, who: 'all
         AND ($8 = 'all' OR include_history = ($8 = 'history'))`,
     [a.id, a.unitId, change.historyId, change.action, webhookBody(randomUUID(), a, change), GRADES, rank, who],
   );
+  // A subscriber has heard of it: a re-analysis sets it aside instead of removing it (reanalysis.ts).
+  if (rowCount) await c.query(`UPDATE alerts SET pushed = true WHERE id = $1 AND NOT pushed`, [a.id]);
 }
 
 /**

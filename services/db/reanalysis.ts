@@ -6,7 +6,8 @@
  *   unit (pending conditions, open alerts, the ring time applied up to) is kept (takeAlertMark).
  * - Rewind (rewindTo): the latest mark at or before the time asked is the point analysis goes
  *   back to. Alerts raised from then on by the ring rules are removed (those a person acted on
- *   are kept, closed as withdrawn), the rules' history rows from then on are removed, the open
+ *   are kept, closed as withdrawn; those subscribers were told of are set aside, see
+ *   takeUpSetAside and withdrawSetAside), the rules' history rows from then on are removed, the open
  *   alerts, pending conditions and watermark of the mark are put back; rollups, daily residuals
  *   and drift states from then on are removed; the analysis watermark goes back to the last ring
  *   before the point. The worker then analyses the rings again in order, day by day, as it
@@ -17,7 +18,8 @@
  * or the rewind and whatever days were judged again since, never half of one.
  */
 import { KINDS_NOT_REANALYSED } from './config.ts';
-import type { Queryable } from './alert-rows.ts';
+import { ALERT_COLUMNS, alertFromDb, type Queryable } from './alert-rows.ts';
+import { recordChange } from './alert-changes.ts';
 import { isoMicros } from './pg-binary.ts';
 import { msOf } from './sql.ts';
 
@@ -70,7 +72,18 @@ export async function rewindTo(c: Queryable, unitId: string, fromMs: number): Pr
      SELECT id, unit_id, now(), 'withdrawn', grade, '{"cause":"the rings were judged again and the condition is no longer found then"}'::jsonb FROM w`,
     args,
   );
-  const removed = await c.query(`DELETE FROM alerts a WHERE a.unit_id = $1 AND a.raised_at >= $2::timestamptz AND a.kind <> ALL($3::text[]) AND NOT ${acted}`, args);
+  // Alerts subscribers were told of: set aside, to be taken up again by the same condition or withdrawn (setAsideAlerts).
+  const announced = `a.pushed`;
+  await c.query(
+    `UPDATE alerts a SET rewound_at = now(), rewound_open = (a.closed_at IS NULL), active = false, acknowledged = true,
+            cleared_at = coalesce(a.cleared_at, now()), closed_at = coalesce(a.closed_at, now()), updated_at = now()
+      WHERE a.unit_id = $1 AND a.raised_at >= $2::timestamptz AND a.kind <> ALL($3::text[]) AND a.rewound_at IS NULL AND NOT ${acted} AND ${announced}`,
+    args,
+  );
+  const removed = await c.query(
+    `DELETE FROM alerts a WHERE a.unit_id = $1 AND a.raised_at >= $2::timestamptz AND a.kind <> ALL($3::text[]) AND a.rewound_at IS NULL AND NOT ${acted}`,
+    args,
+  );
   // The rules' own history rows from the point on (people's actions stay).
   await c.query(
     `DELETE FROM alert_history h USING alerts a
@@ -127,12 +140,54 @@ export async function rewindTo(c: Queryable, unitId: string, fromMs: number): Pr
   return { pointMs, watermarkMs: w === null || w === undefined ? null : Number(w), removedAlerts: removed.rowCount ?? 0, withdrawnAlerts: withdrawn.rowCount ?? 0 };
 }
 
-/** Ends the unit's re-analysis once its watermark has reached reanalysis_to. */
-export async function finishReanalysisReached(c: Queryable, unitIds: string[]): Promise<void> {
-  if (unitIds.length === 0) return;
-  await c.query(
+/**
+ * An alert set aside by a rewind for this condition, if any (the earliest raised): taken up again
+ * by the alert the re-analysis raises for it, under the set-aside alert's id. Says whether it was
+ * open when set aside (its subscribers believe it active) and at which grade.
+ */
+export async function takeUpSetAside(c: Queryable, unitId: string, conditionKey: string): Promise<{ id: string; open: boolean; grade: string } | null> {
+  const { rows } = await c.query(
+    `UPDATE alerts a SET rewound_at = NULL, rewound_open = NULL
+       FROM (SELECT id, rewound_open FROM alerts WHERE unit_id = $1 AND condition_key = $2 AND rewound_at IS NOT NULL ORDER BY raised_at LIMIT 1 FOR UPDATE) o
+      WHERE a.id = o.id
+      RETURNING a.id, a.grade, o.rewound_open AS "wasOpen"`,
+    [unitId, conditionKey],
+  );
+  const r = rows[0] as { id: string; grade: string; wasOpen: boolean } | undefined;
+  if (!r) return null;
+  await c.query(`DELETE FROM alert_history WHERE alert_id = $1 AND by IS NULL AND action IN ('raised', 'reactivated', 'escalated', 'deescalated', 'returned_to_normal')`, [r.id]);
+  return { id: r.id, open: r.wasOpen, grade: r.grade };
+}
+
+/**
+ * Ends the re-analysis of the units whose watermark has reached reanalysis_to; their set-aside
+ * alerts that no condition took up again are withdrawn (told to subscribers if they were open
+ * when set aside). Returns the units whose re-analysis ended.
+ */
+export async function finishReanalysisReached(c: Queryable, unitIds: string[], now = new Date()): Promise<string[]> {
+  if (unitIds.length === 0) return [];
+  const { rows } = await c.query(
     `UPDATE analysis_progress SET reanalysis_to = NULL, reanalysis_from = NULL
-      WHERE unit_id = ANY($1::text[]) AND reanalysis_to IS NOT NULL AND watermark_ts >= reanalysis_to`,
+      WHERE unit_id = ANY($1::text[]) AND reanalysis_to IS NOT NULL AND watermark_ts >= reanalysis_to
+      RETURNING unit_id`,
     [unitIds],
   );
+  const ended = rows.map((r: { unit_id: string }) => r.unit_id);
+  if (ended.length) await withdrawSetAside(c, ended, now);
+  return ended;
+}
+
+async function withdrawSetAside(c: Queryable, unitIds: string[], now: Date): Promise<void> {
+  const { rows } = await c.query(
+    `UPDATE alerts a SET rewound_at = NULL, rewound_open = NULL FROM (SELECT id, rewound_open FROM alerts WHERE unit_id = ANY($1::text[]) AND rewound_at IS NOT NULL FOR UPDATE) o
+      WHERE a.id = o.id RETURNING o.rewound_open AS "wasOpen", ${ALERT_COLUMNS.split(',').map((x) => `a.${x.trim()}`).join(', ')}`,
+    [unitIds],
+  );
+  for (const r of rows) {
+    const a = alertFromDb(r);
+    a.active = false;
+    a.clearedAt ??= now;
+    a.closedAt ??= now;
+    await recordChange(c, a, { action: 'withdrawn', at: now, details: { cause: 'the rings were judged again and the condition is no longer found then' }, notify: r.wasOpen === true });
+  }
 }

@@ -30,7 +30,16 @@ export interface ScorecardRunOptions {
   steadyIntervalS?: number;
   /** Progress lines for people (default: none). */
   say?: (line: string) => void;
+  /**
+   * How the rings reach the service: `live` (default), day by day with all units together and the
+   * nightly drift run after each day, as gateways send them; `import`, each unit's whole history
+   * in one go, unit after unit, as `cansight import` sends a file, with no drift run called:
+   * baselines, drift and alerts must then follow ring time alone.
+   */
+  feed?: ScorecardFeed;
 }
+
+export type ScorecardFeed = 'live' | 'import';
 
 export interface ScorecardRun {
   figures: ScorecardFigures;
@@ -66,12 +75,21 @@ async function post(url: string, key: string, body: string): Promise<number> {
   return reply.accepted ?? 0;
 }
 
-/** Waits until every unit's analysis watermark has reached the time given for it. */
-async function waitForWatermarks(pool: Pool, lastMs: Map<string, number>): Promise<void> {
+/**
+ * Waits until every unit's analysis watermark has reached the time given for it (and, with
+ * `settled`, no re-analysis is asked for or running: a history's rings all judged by their final
+ * baseline).
+ */
+async function waitForWatermarks(pool: Pool, lastMs: Map<string, number>, settled = false): Promise<void> {
   const ids = [...lastMs.keys()];
   for (;;) {
-    const { rows } = await pool.query(`SELECT unit_id, watermark_ts FROM analysis_progress WHERE unit_id = ANY($1)`, [ids]);
-    const at = new Map<string, number>(rows.map((r: { unit_id: string; watermark_ts: Date | null }) => [r.unit_id, r.watermark_ts ? r.watermark_ts.getTime() : -Infinity]));
+    const { rows } = await pool.query(
+      `SELECT unit_id, watermark_ts, reanalyse_from IS NULL AND reanalysis_to IS NULL AS idle FROM analysis_progress WHERE unit_id = ANY($1)`,
+      [ids],
+    );
+    const at = new Map<string, number>(
+      rows.map((r: { unit_id: string; watermark_ts: Date | null; idle: boolean }) => [r.unit_id, r.watermark_ts && (r.idle || !settled) ? r.watermark_ts.getTime() : -Infinity]),
+    );
     if (ids.every((id) => (at.get(id) ?? -Infinity) >= (lastMs.get(id) as number))) return;
     await new Promise((r) => setTimeout(r, 50));
   }
@@ -111,7 +129,36 @@ export async function runScorecard(o: ScorecardRunOptions): Promise<ScorecardRun
   const url = await app.listen({ host: '127.0.0.1', port: 0 });
   const worker = await startWorker({ pool, logger, config, workerId: 'scorecard' });
   let rings = 0;
+  const sendAll = async (ringsInOrder: Iterable<{ unitId: string; ts: string }>, lastMs: Map<string, number>) => {
+    let body = '';
+    let n = 0;
+    for (const ring of ringsInOrder) {
+      body += JSON.stringify(ring) + '\n';
+      lastMs.set(ring.unitId, Date.parse(ring.ts));
+      if (++n === RINGS_PER_REQUEST) {
+        rings += await post(url, ingestKey, body);
+        body = '';
+        n = 0;
+      }
+    }
+    if (n) rings += await post(url, ingestKey, body);
+  };
+  const simulateDay = (u: ScorecardFleet['units'][number], day: number) =>
+    simulateUnit(u, { from: day, to: Math.min(day + DAY_MS, fleet.toMs), seed: fleet.seed, steadyIntervalS: ringIntervalS(fleet, u.config.id, day, steadyIntervalS) });
   try {
+    if (o.feed === 'import') {
+      // One history per unit, sent whole before the next unit's, then every unit caught up.
+      const lastMs = new Map<string, number>();
+      for (const [i, u] of fleet.units.entries()) {
+        const days: number[] = [];
+        for (let day = fleet.fromMs; day < fleet.toMs; day += DAY_MS) days.push(day);
+        await sendAll((function* () { for (const day of days) yield* simulateDay(u, day).rings(); })(), lastMs);
+        say(`unit ${i + 1}/${fleet.units.length} (${u.config.id}) imported; ${rings} rings sent (${Math.round((performance.now() - t0) / 1000)} s)`);
+      }
+      await waitForWatermarks(pool, lastMs, true);
+      say(`every unit's history analysed (${Math.round((performance.now() - t0) / 1000)} s)`);
+      return await scored();
+    }
     // Day d+1 is sent while the worker is still analysing day d; the drift run for day d waits
     // for day d's analysis (in live operation too it runs a little after midnight).
     let previous: { end: number; lastMs: Map<string, number> } | null = null;
@@ -123,24 +170,19 @@ export async function runScorecard(o: ScorecardRunOptions): Promise<ScorecardRun
     };
     for (let day = fleet.fromMs; day < fleet.toMs; day += DAY_MS) {
       const end = Math.min(day + DAY_MS, fleet.toMs);
-      const sims = fleet.units.map((u) => simulateUnit(u, { from: day, to: end, seed: fleet.seed, steadyIntervalS: ringIntervalS(fleet, u.config.id, day, steadyIntervalS) }));
       const lastMs = new Map<string, number>();
-      let body = '';
-      let n = 0;
-      for (const ring of mergeByTime(sims)) {
-        body += JSON.stringify(ring) + '\n';
-        lastMs.set(ring.unitId, Date.parse(ring.ts));
-        if (++n === RINGS_PER_REQUEST) {
-          rings += await post(url, ingestKey, body);
-          body = '';
-          n = 0;
-        }
-      }
-      if (n) rings += await post(url, ingestKey, body);
+      await sendAll(mergeByTime(fleet.units.map((u) => simulateDay(u, day))), lastMs);
       if (previous) await finishDay(previous);
       previous = { end, lastMs };
     }
     if (previous) await finishDay(previous);
+    return await scored();
+  } finally {
+    await worker.stop();
+    await app.close();
+  }
+
+  async function scored(): Promise<ScorecardRun> {
     const alerts = await readAllAlerts(url, viewerKey);
     const truths = fleetTruth(fleet);
     const depth10 = new Map<string, number | null>();
@@ -151,8 +193,5 @@ export async function runScorecard(o: ScorecardRunOptions): Promise<ScorecardRun
     }
     const figures = scoreAlerts(fleet, truths, alerts, depth10);
     return { figures, truths, alerts, rings, seconds: (performance.now() - t0) / 1000 };
-  } finally {
-    await worker.stop();
-    await app.close();
   }
 }

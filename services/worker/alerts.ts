@@ -41,6 +41,7 @@ import { closeAlert } from '../db/alert-actions.ts';
 import { isShelved, type AlertChange, type AlertRow, type ChangeInput, type Queryable } from '../db/alert-rows.ts';
 import { loadOpenRuleAlertsForUpdate, loadPending, lockAlertUnitState, savePending, setAlertWatermark, type PendingCondition } from '../db/alert-rule-state.ts';
 import { recordChange, saveAlert } from '../db/alert-changes.ts';
+import { takeUpSetAside } from '../db/reanalysis.ts';
 
 export type { AlertChange } from '../db/alert-rows.ts';
 
@@ -235,6 +236,11 @@ export interface ApplyOptions {
   history?: boolean;
   /** Kinds left as they are: their findings are ignored, their pending conditions and open alerts untouched (a re-analysis leaves start findings and the silent-unit check alone). */
   leaveKinds?: readonly string[];
+  /**
+   * The observations judge stored rings again (a re-analysis): a condition raised again takes up
+   * the alert a rewind set aside for it, under that alert's id (takeUpSetAside).
+   */
+  rerun?: boolean;
 }
 
 /**
@@ -345,7 +351,19 @@ export async function applyAlertObservations(
         alertsTouched.delete(a);
       } else {
         const created = newAlert(unitId, k, f, p.grade, o.ts, opts.history === true);
-        changes.push(await recordChange(client, created, { action: 'raised', at: o.ts, details }, true));
+        const before = opts.rerun ? await takeUpSetAside(client, unitId, k) : null;
+        if (before) {
+          // Subscribers heard of this alert before the rings were judged again: if they believe it
+          // active, it is not announced a second time (only a grade they have not heard is); if
+          // they heard it clear, it is history again, announced once if still active at the end.
+          created.id = before.id;
+          created.historyAnnounced = before.open;
+          created.foundInHistory = created.foundInHistory || !before.open;
+          const told = before.open && before.grade === created.grade;
+          changes.push(await recordChange(client, created, { action: 'raised', at: o.ts, details, notify: !told }, false));
+        } else {
+          changes.push(await recordChange(client, created, { action: 'raised', at: o.ts, details }, true));
+        }
         open.set(k, created);
       }
       activeCount++;

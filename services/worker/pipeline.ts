@@ -421,7 +421,7 @@ export async function analyseGroup(
         const observations = observationsByUnit.get(id) as BatchObservation[];
         if (observations.length) {
           const after = { idle: false };
-          await applyAlertObservations(client, id, observations, pc.alertSettings, after, { history, leaveKinds: rerun ? KINDS_NOT_REANALYSED : undefined });
+          await applyAlertObservations(client, id, observations, pc.alertSettings, after, { history, rerun, leaveKinds: rerun ? KINDS_NOT_REANALYSED : undefined });
           // Only for the rings that follow; a rollback drops the analyser, and a new one starts not idle.
           const analyser = memoryOf(pc, id).analyser;
           if (analyser) analyser.alertsIdle = after.idle;

@@ -130,7 +130,10 @@ interface AlertSeen {
 
 async function alertsOf(unitId: string): Promise<AlertSeen[]> {
   const { rows } = await t.db.pool.query(
-    `SELECT kind, chamber, thermocouple, grade, raised_at FROM alerts WHERE unit_id = $1 AND kind NOT IN ('unit_silent') ORDER BY raised_at, kind, chamber, thermocouple`,
+    // A withdrawn alert (one subscribers had heard of, no longer found when the rings were judged again) is not a finding.
+    `SELECT kind, chamber, thermocouple, grade, raised_at FROM alerts a WHERE unit_id = $1 AND kind NOT IN ('unit_silent')
+        AND NOT EXISTS (SELECT 1 FROM alert_history h WHERE h.alert_id = a.id AND h.action = 'withdrawn')
+      ORDER BY raised_at, kind, chamber, thermocouple`,
     [unitId],
   );
   return rows;
@@ -202,5 +205,33 @@ describe('alerts found in an import', () => {
     const heard = new Set(history.map((o) => o.alert_id));
     for (const a of importAlertsBeforeRefit) expect(heard.has(a.id)).toBe(true);
     expect(history.some((o) => o.event === 'returned_to_normal')).toBe(true);
+  });
+
+  it('keep their ids through the refit: one announced before is not announced again, and one no longer found is withdrawn to those who heard it', async () => {
+    const pool = t.db.pool;
+    const announced = importOutboxBeforeRefit.filter((o) => o.webhook_id === hooks.plain).map((o) => o.alert_id);
+    expect(announced.length).toBeGreaterThan(0);
+    const outbox = (await pool.query(`SELECT event, alert_id FROM webhook_outbox WHERE unit_id = 'eq-import' AND webhook_id = $1 ORDER BY id`, [hooks.plain])).rows as { event: string; alert_id: string }[];
+    const now = (await pool.query(`SELECT id, kind, chamber, thermocouple, closed_at, rewound_at FROM alerts WHERE unit_id = 'eq-import'`)).rows as { id: string; kind: string; chamber: number | null; thermocouple: number | null; closed_at: Date | null; rewound_at: Date | null }[];
+    const byId = new Map(now.map((a) => [a.id, a]));
+    // Nothing is left set aside once the re-analysis has ended.
+    expect(now.filter((a) => a.rewound_at !== null)).toEqual([]);
+    for (const id of announced) {
+      // The announced alert is still there under its id (taken up again, or withdrawn and told so).
+      const a = byId.get(id);
+      expect(a, id).toBeDefined();
+      const events = outbox.filter((o) => o.alert_id === id).map((o) => o.event);
+      expect(events.filter((e) => e === 'raised'), `${id}: ${events.join(', ')}`).toHaveLength(1);
+      if (a!.closed_at !== null) expect(events).toContain('withdrawn');
+    }
+    // No condition is announced twice under two ids.
+    const raisedPerSubject = new Map<string, number>();
+    for (const o of outbox.filter((x) => x.event === 'raised')) {
+      const a = byId.get(o.alert_id);
+      expect(a, `an announced alert ${o.alert_id} is gone`).toBeDefined();
+      const k = `${a!.kind}:${a!.chamber}:${a!.thermocouple}`;
+      raisedPerSubject.set(k, (raisedPerSubject.get(k) ?? 0) + 1);
+    }
+    for (const [k, n] of raisedPerSubject) expect(n, k).toBe(1);
   });
 });

@@ -122,7 +122,7 @@ describe('a worker killed in the middle of a re-analysis', () => {
 
   it('has the same alert changes as an uninterrupted run: none duplicated, none lost', async () => {
     const expected = await alertChanges(reference.pool);
-    expect(expected.some((c) => c.startsWith('rerun-1 chamber_cold'))).toBe(true);
+    expect(expected.some((c) => c.startsWith('rerun-1 chamber_cold')), expected.join('\n')).toBe(true);
     expect(expected.some((c) => c.startsWith('rerun-1 thermocouple_fault'))).toBe(true);
     expect(await alertChanges(crashed.pool)).toEqual(expected);
     const { rows } = await crashed.pool.query(`SELECT condition_key, count(*)::int AS n FROM alerts WHERE closed_at IS NULL GROUP BY 1 HAVING count(*) > 1`);
