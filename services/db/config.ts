@@ -166,9 +166,9 @@ export const ALERT_KINDS = ['thermocouple_fault', 'coverage_degraded', 'spread_h
 export type AlertKind = (typeof ALERT_KINDS)[number];
 /**
  * Kinds a re-analysis of stored rings leaves as they are: the silent-unit check goes by the wall
- * clock, and start findings come from the start record, which a new baseline does not change.
+ * clock. (Starts are found again from the rewind's point on, with their findings.)
  */
-export const KINDS_NOT_REANALYSED: readonly AlertKind[] = ['unit_silent', 'chamber_unlit', 'start_failed'];
+export const KINDS_NOT_REANALYSED: readonly AlertKind[] = ['unit_silent'];
 
 export interface AlertConfig {
   /** Default on-delay: a condition must hold this long (ring time) before an alert is raised, seconds. */

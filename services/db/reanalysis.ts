@@ -9,7 +9,8 @@
  *   are kept, closed as withdrawn; those subscribers were told of are set aside, see
  *   takeUpSetAside and withdrawSetAside), the rules' history rows from then on are removed, the open
  *   alerts, pending conditions and watermark of the mark are put back; rollups, daily residuals
- *   and drift states from then on are removed; the analysis watermark goes back to the last ring
+ *   and drift states from then on are removed, and so are the starts that began from then on
+ *   (the start detector's state of the mark is put back); the analysis watermark goes back to the last ring
  *   before the point. The worker then analyses the rings again in order, day by day, as it
  *   analysed them the first time; rings up to reanalysis_to are counted as re-run, not again as
  *   analysed. People's acknowledgements and shelves stay.
@@ -28,11 +29,13 @@ const SKIP = KINDS_NOT_REANALYSED as readonly string[];
 /** Keeps the unit's alert rule state as it stands now, as the state at the start of the ring-time day atMs. */
 export async function takeAlertMark(c: Queryable, unitId: string, atMs: number): Promise<void> {
   await c.query(
-    `INSERT INTO alert_state_marks (unit_id, at_ts, evaluated_to, pending, open_alerts)
+    `INSERT INTO alert_state_marks (unit_id, at_ts, evaluated_to, pending, open_alerts, start_state)
      SELECT $1, $2::timestamptz, (SELECT evaluated_to FROM alert_unit_state WHERE unit_id = $1),
             coalesce((SELECT jsonb_agg(to_jsonb(p)) FROM alert_pending p WHERE p.unit_id = $1 AND p.kind <> ALL($3::text[])), '[]'),
-            coalesce((SELECT jsonb_agg(to_jsonb(a)) FROM alerts a WHERE a.unit_id = $1 AND a.closed_at IS NULL AND a.kind <> ALL($3::text[])), '[]')
-     ON CONFLICT (unit_id, at_ts) DO UPDATE SET evaluated_to = excluded.evaluated_to, pending = excluded.pending, open_alerts = excluded.open_alerts`,
+            coalesce((SELECT jsonb_agg(to_jsonb(a)) FROM alerts a WHERE a.unit_id = $1 AND a.closed_at IS NULL AND a.kind <> ALL($3::text[])), '[]'),
+            (SELECT to_jsonb(s) FROM start_state s WHERE s.unit_id = $1)
+     ON CONFLICT (unit_id, at_ts) DO UPDATE SET evaluated_to = excluded.evaluated_to, pending = excluded.pending, open_alerts = excluded.open_alerts,
+       start_state = excluded.start_state`,
     [unitId, isoMicros(atMs), SKIP],
   );
 }
@@ -53,11 +56,11 @@ export interface Rewind {
  */
 export async function rewindTo(c: Queryable, unitId: string, fromMs: number): Promise<Rewind> {
   const mark = await c.query(
-    `SELECT ${msOf('at_ts')} AS at_ms, evaluated_to, pending, open_alerts FROM alert_state_marks
+    `SELECT ${msOf('at_ts')} AS at_ms, evaluated_to, pending, open_alerts, start_state FROM alert_state_marks
       WHERE unit_id = $1 AND at_ts <= $2::timestamptz ORDER BY at_ts DESC LIMIT 1`,
     [unitId, isoMicros(fromMs)],
   );
-  const m = mark.rows[0] as { at_ms: number; evaluated_to: Date | null; pending: unknown[]; open_alerts: unknown[] } | undefined;
+  const m = mark.rows[0] as { at_ms: number; evaluated_to: Date | null; pending: unknown[]; open_alerts: unknown[]; start_state: Record<string, unknown> | null } | undefined;
   const pointMs = m ? Number(m.at_ms) : -Infinity;
   const point = m ? isoMicros(pointMs) : '-infinity';
   const args = [unitId, point, SKIP];
@@ -118,6 +121,13 @@ export async function rewindTo(c: Queryable, unitId: string, fromMs: number): Pr
   }
   await c.query(`UPDATE alert_unit_state SET evaluated_to = $2 WHERE unit_id = $1`, [unitId, m ? m.evaluated_to : null]);
   await c.query(`DELETE FROM alert_state_marks WHERE unit_id = $1 AND at_ts > $2::timestamptz`, [unitId, point]);
+
+  // The start detector as it stood at the mark (none before the first mark), and the starts from the point on: found again.
+  await c.query(`DELETE FROM starts WHERE unit_id = $1 AND crank_at >= $2::timestamptz`, [unitId, point]);
+  await c.query(`DELETE FROM start_state WHERE unit_id = $1`, [unitId]);
+  if (m?.start_state) {
+    await c.query(`INSERT INTO start_state SELECT * FROM jsonb_populate_record(NULL::start_state, $2::jsonb || jsonb_build_object('unit_id', $1::text))`, [unitId, JSON.stringify(m.start_state)]);
+  }
 
   // What was derived from the rings from the point on.
   await c.query(`DELETE FROM analysis_rollups WHERE unit_id = $1 AND bucket >= $2::timestamptz`, [unitId, point]);

@@ -410,12 +410,11 @@ export async function analyseGroup(
       const t5 = performance.now();
       // Start analysis of every unit at once (one read and one write of the detector states),
       // then each unit's alert rules, which see the start findings merged into its observations.
-      // Rings judged again were fed to the start analysis the first time; it does not depend on a baseline.
+      // Rings judged again are fed to it again from the detector state the rewind put back (their
+      // starts were removed), so the starts of history that arrived after later rings are found.
       await recordStartsForGroup(
         client,
-        logged
-          .filter((b) => !b.rerun)
-          .map(({ unitId: id }) => ({ unitId: id, rings: ringsByUnit.get(id) as RingColumns, versions: (inputs.get(id) as AnalyserInputs).versions, observations: observationsByUnit.get(id) as BatchObservation[] })),
+        logged.map(({ unitId: id }) => ({ unitId: id, rings: ringsByUnit.get(id) as RingColumns, versions: (inputs.get(id) as AnalyserInputs).versions, observations: observationsByUnit.get(id) as BatchObservation[] })),
       );
       for (const { unitId: id, rerun, history } of logged) {
         const observations = observationsByUnit.get(id) as BatchObservation[];
