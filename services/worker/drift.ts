@@ -18,6 +18,7 @@ import type { Logger } from '../db/logger.ts';
 import type { Pool } from '../db/pool.ts';
 import type { Queryable } from '../db/alert-rows.ts';
 import { baselineInForce } from '../db/baselines.ts';
+import { lockUnits } from '../db/progress.ts';
 import { computeDailyResiduals, readDailyResiduals, readDriftStates, writeDriftStates, type DriftStateRecord, type DriftSubject } from '../db/drift.ts';
 
 const DAY_MS = 86_400_000;
@@ -131,6 +132,39 @@ export async function runDrift(deps: { pool: Pool; logger: Logger; config: Confi
       if (r.baselineVersion !== null) deps.logger.info({ unitId, baselineVersion: r.baselineVersion, days: r.days, states: r.states }, 'drift updated');
     } catch (err) {
       deps.logger.error({ unitId, err: (err as Error).message }, 'drift computation failed');
+    }
+  }
+  return out;
+}
+
+/**
+ * The nightly safety net: drift for the units whose last ring-time day has ended on the wall
+ * clock but was never ended by a later ring (data that stopped mid-day). Each unit is brought up
+ * to the end of its own last ring day (ring time, never the wall clock's day: a history months
+ * old is judged as of its own days), inside a transaction that holds the unit's progress row, so
+ * it never runs beside the unit's analysis; a unit whose rings are being judged again, or whose
+ * last day is still under way, is left to the analysis, which brings drift up to date as each
+ * ring-time day ends.
+ */
+export async function runNightlyDrift(deps: { pool: Pool; logger: Logger; config: Config }, unitIds: string[], nowMs: number): Promise<DriftRunResult[]> {
+  const out: DriftRunResult[] = [];
+  for (const unitId of unitIds) {
+    const client = await deps.pool.connect();
+    try {
+      await client.query('BEGIN');
+      const p = (await lockUnits(client, [unitId], null)).get(unitId);
+      const endOfLastDay = p?.watermarkMs == null ? null : (Math.floor(p.watermarkMs / DAY_MS) + 1) * DAY_MS;
+      if (p && endOfLastDay !== null && endOfLastDay <= nowMs && p.reanalyseFromMs === null && p.reanalysisToMs === null) {
+        const r = await runDriftForUnit(client, deps.config, unitId, endOfLastDay);
+        out.push(r);
+        if (r.baselineVersion !== null) deps.logger.info({ unitId, baselineVersion: r.baselineVersion, days: r.days, states: r.states, asOf: new Date(endOfLastDay).toISOString() }, 'drift updated (nightly)');
+      }
+      await client.query('COMMIT');
+    } catch (err) {
+      await client.query('ROLLBACK').catch(() => undefined);
+      deps.logger.error({ unitId, err: (err as Error).message }, 'drift computation failed');
+    } finally {
+      client.release();
     }
   }
   return out;

@@ -19,7 +19,7 @@ import { startAlertJobs } from './alert-jobs.ts';
 import { deadbandThresholds, loadAlertSettings } from './alerts.ts';
 import { fitDueRequests, fitFirstBaseline } from './baselines.ts';
 import { firstSteadyMs } from '../db/baselines.ts';
-import { runDrift, type DriftRunResult } from './drift.ts';
+import { runDrift, runNightlyDrift, type DriftRunResult } from './drift.ts';
 import { startListener } from './listener.ts';
 import { analyseGroup, invalidateInputs, memoryOf, reanalyseSpan, ROLLUP_HOLD_MS, rollupsDue, spansOf, type PipelineContext } from './pipeline.ts';
 
@@ -351,7 +351,7 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
   const driftTask = cron.schedule(
     s.driftCron,
     safely('drift', async () => {
-      await runDrift({ pool, logger: log, config }, [...owned]);
+      await runNightlyDrift({ pool, logger: log, config }, [...owned], Date.now());
       for (const id of owned) invalidateInputs(pc, id);
     }),
     { noOverlap: true, timezone: 'UTC', name: `drift-${workerId}` },
