@@ -269,6 +269,8 @@ export interface WorkerConfig {
   driftSigmaFloorDegC: number;
   /** Steady rings after a thermocouple replacement over which the new probe's offset is learnt. */
   probeOffsetRings: number;
+  /** Late rings found at once (older than rings already analysed) from which the unit is judged again from the earliest of them, rather than analysed in their own spans. */
+  lateRewindRings: number;
 }
 
 /** A node-cron pattern: five or six fields of digits, '*', '/', ',', '-' (names of days and months allowed). */
@@ -309,6 +311,7 @@ function workerConfig(env: Env): WorkerConfig {
     driftReferenceDays: integer(env, 'CANSIGHT_DRIFT_REFERENCE_DAYS', 7, 2, 365),
     driftSigmaFloorDegC: decimal(env, 'CANSIGHT_DRIFT_SIGMA_FLOOR_C', 1, 0.01, 100),
     probeOffsetRings: integer(env, 'CANSIGHT_PROBE_OFFSET_RINGS', 30, 1, 100_000),
+    lateRewindRings: integer(env, 'CANSIGHT_LATE_REWIND_RINGS', 1000, 1, 100_000_000),
   };
 }
 

@@ -5,9 +5,9 @@
  * - Marks: at the start of each ring-time day the worker passes, the alert rules' state of the
  *   unit (pending conditions, open alerts, the ring time applied up to) is kept (takeAlertMark).
  * - Rewind (rewindTo): the latest mark at or before the time asked is the point analysis goes
- *   back to. Alerts raised from then on by the ring rules are removed (those a person acted on
- *   are kept, closed as withdrawn; those subscribers were told of are set aside, see
- *   takeUpSetAside and withdrawSetAside), the rules' history rows from then on are removed, the open
+ *   back to. Alerts raised from then on by the ring rules are removed, but those a subscriber
+ *   heard of or a person acted on are set aside (taken up again under their ids by the same
+ *   condition, or withdrawn when the re-analysis ends), the rules' history rows from then on are removed, the open
  *   alerts, pending conditions and watermark of the mark are put back; rollups, daily residuals
  *   and drift states from then on are removed, and so are the starts that began from then on
  *   (the start detector's state of the mark is put back); the analysis watermark goes back to the last ring
@@ -45,9 +45,9 @@ export interface Rewind {
   pointMs: number;
   /** The new watermark: the last ring before the point (null: none). */
   watermarkMs: number | null;
-  /** Alerts removed, and alerts kept but withdrawn because a person had acted on them. */
+  /** Alerts removed, and alerts set aside because a subscriber had heard of them or a person had acted on them. */
   removedAlerts: number;
-  withdrawnAlerts: number;
+  setAsideAlerts: number;
 }
 
 /**
@@ -65,26 +65,18 @@ export async function rewindTo(c: Queryable, unitId: string, fromMs: number): Pr
   const point = m ? isoMicros(pointMs) : '-infinity';
   const args = [unitId, point, SKIP];
 
-  // Alerts the rules raised from the point on: removed, or withdrawn where a person acted on one.
-  const acted = `EXISTS (SELECT 1 FROM alert_history h WHERE h.alert_id = a.id AND h.by IS NOT NULL)`;
-  const withdrawn = await c.query(
-    `WITH w AS (UPDATE alerts a SET active = false, closed_at = now(), cleared_at = coalesce(a.cleared_at, now()), updated_at = now()
-                 WHERE a.unit_id = $1 AND a.raised_at >= $2::timestamptz AND a.kind <> ALL($3::text[]) AND a.closed_at IS NULL AND ${acted}
-                 RETURNING a.id, a.unit_id, a.grade)
-     INSERT INTO alert_history (alert_id, unit_id, at, action, grade, details)
-     SELECT id, unit_id, now(), 'withdrawn', grade, '{"cause":"the rings were judged again and the condition is no longer found then"}'::jsonb FROM w`,
-    args,
-  );
-  // Alerts subscribers were told of: set aside, to be taken up again by the same condition or withdrawn (setAsideAlerts).
-  const announced = `a.pushed`;
-  await c.query(
+  // Alerts the rules raised from the point on. One a subscriber heard of or a person acted on is
+  // set aside, to be taken up again under its id by the same condition (takeUpSetAside) or
+  // withdrawn when the re-analysis ends (withdrawSetAside); the others are removed.
+  const keep = `(a.pushed OR EXISTS (SELECT 1 FROM alert_history h WHERE h.alert_id = a.id AND h.by IS NOT NULL))`;
+  const setAside = await c.query(
     `UPDATE alerts a SET rewound_at = now(), rewound_open = (a.closed_at IS NULL), active = false, acknowledged = true,
             cleared_at = coalesce(a.cleared_at, now()), closed_at = coalesce(a.closed_at, now()), updated_at = now()
-      WHERE a.unit_id = $1 AND a.raised_at >= $2::timestamptz AND a.kind <> ALL($3::text[]) AND a.rewound_at IS NULL AND NOT ${acted} AND ${announced}`,
+      WHERE a.unit_id = $1 AND a.raised_at >= $2::timestamptz AND a.kind <> ALL($3::text[]) AND a.rewound_at IS NULL AND ${keep}`,
     args,
   );
   const removed = await c.query(
-    `DELETE FROM alerts a WHERE a.unit_id = $1 AND a.raised_at >= $2::timestamptz AND a.kind <> ALL($3::text[]) AND a.rewound_at IS NULL AND NOT ${acted}`,
+    `DELETE FROM alerts a WHERE a.unit_id = $1 AND a.raised_at >= $2::timestamptz AND a.kind <> ALL($3::text[]) AND a.rewound_at IS NULL AND NOT ${keep}`,
     args,
   );
   // The rules' own history rows from the point on (people's actions stay).
@@ -97,17 +89,21 @@ export async function rewindTo(c: Queryable, unitId: string, fromMs: number): Pr
   // The alerts open at the mark, as the rules had them then; people's acknowledgement and shelf as they are now.
   if (m && m.open_alerts.length) {
     await c.query(
-      `UPDATE alerts a SET grade = s.grade, chamber = s.chamber, thermocouple = s.thermocouple, active = s.active,
-              acknowledged = CASE WHEN a.acked_at IS NOT NULL AND (s.acked_at IS NULL OR a.acked_at > s.acked_at) THEN a.acknowledged ELSE s.acknowledged END,
-              acked_at = CASE WHEN a.acked_at IS NOT NULL AND (s.acked_at IS NULL OR a.acked_at > s.acked_at) THEN a.acked_at ELSE s.acked_at END,
-              acked_by = CASE WHEN a.acked_at IS NOT NULL AND (s.acked_at IS NULL OR a.acked_at > s.acked_at) THEN a.acked_by ELSE s.acked_by END,
-              ack_comment = CASE WHEN a.acked_at IS NOT NULL AND (s.acked_at IS NULL OR a.acked_at > s.acked_at) THEN a.ack_comment ELSE s.ack_comment END,
+      `WITH s AS (SELECT * FROM jsonb_populate_recordset(NULL::alerts, $2::jsonb))
+       UPDATE alerts a SET grade = s.grade, chamber = s.chamber, thermocouple = s.thermocouple, active = s.active,
               last_changed_at = s.last_changed_at, cleared_at = s.cleared_at, closed_at = NULL, message = s.message, advice = s.advice,
               evidence = s.evidence, likelihood = s.likelihood, runner_up_chamber = s.runner_up_chamber, runner_up_likelihood = s.runner_up_likelihood,
               baseline_version = s.baseline_version, last_seen_at = s.last_seen_at, absent_since = s.absent_since, pending_grade = s.pending_grade,
               pending_grade_since = s.pending_grade_since, updated_at = now()
-         FROM jsonb_populate_recordset(NULL::alerts, $2::jsonb) s
+         FROM s
         WHERE a.id = s.id AND a.unit_id = $1`,
+      [unitId, JSON.stringify(m.open_alerts)],
+    );
+    // The acknowledgement as the mark had it, unless a person acknowledged since.
+    await c.query(
+      `UPDATE alerts a SET acknowledged = s.acknowledged, acked_at = s.acked_at, acked_by = s.acked_by, ack_comment = s.ack_comment
+         FROM jsonb_populate_recordset(NULL::alerts, $2::jsonb) s
+        WHERE a.id = s.id AND a.unit_id = $1 AND NOT (a.acked_at IS NOT NULL AND (s.acked_at IS NULL OR a.acked_at > s.acked_at))`,
       [unitId, JSON.stringify(m.open_alerts)],
     );
   }
@@ -147,26 +143,46 @@ export async function rewindTo(c: Queryable, unitId: string, fromMs: number): Pr
     [unitId, point],
   );
   const w = wm.rows[0]?.wm_ms;
-  return { pointMs, watermarkMs: w === null || w === undefined ? null : Number(w), removedAlerts: removed.rowCount ?? 0, withdrawnAlerts: withdrawn.rowCount ?? 0 };
+  return { pointMs, watermarkMs: w === null || w === undefined ? null : Number(w), removedAlerts: removed.rowCount ?? 0, setAsideAlerts: setAside.rowCount ?? 0 };
+}
+
+/** What a set-aside alert brings to the alert that takes it up: its id, and what people and subscribers know of it. */
+export interface SetAsideAlert {
+  id: string;
+  /** It was open when set aside (its subscribers believe it active). */
+  open: boolean;
+  grade: string;
+  ackedAt: Date | null;
+  ackedBy: string | null;
+  ackComment: string | null;
+  shelvedUntil: Date | null;
+  shelvedAt: Date | null;
+  shelvedBy: string | null;
+  shelveReason: string | null;
 }
 
 /**
- * An alert set aside by a rewind for this condition, if any (the earliest raised): taken up again
- * by the alert the re-analysis raises for it, under the set-aside alert's id. Says whether it was
- * open when set aside (its subscribers believe it active) and at which grade.
+ * The alert set aside by a rewind for this condition, if any (the earliest raised): taken up
+ * again by the alert the re-analysis raises for it, under the set-aside alert's id, with the
+ * acknowledgement and shelf people gave it. Its rule history is cleared (people's rows stay).
  */
-export async function takeUpSetAside(c: Queryable, unitId: string, conditionKey: string): Promise<{ id: string; open: boolean; grade: string } | null> {
+export async function takeUpSetAside(c: Queryable, unitId: string, conditionKey: string): Promise<SetAsideAlert | null> {
   const { rows } = await c.query(
     `UPDATE alerts a SET rewound_at = NULL, rewound_open = NULL
        FROM (SELECT id, rewound_open FROM alerts WHERE unit_id = $1 AND condition_key = $2 AND rewound_at IS NOT NULL ORDER BY raised_at LIMIT 1 FOR UPDATE) o
       WHERE a.id = o.id
-      RETURNING a.id, a.grade, o.rewound_open AS "wasOpen"`,
+      RETURNING a.id, a.grade, o.rewound_open AS "wasOpen", a.acked_at, a.acked_by, a.ack_comment, a.shelved_until, a.shelved_at, a.shelved_by, a.shelve_reason`,
     [unitId, conditionKey],
   );
-  const r = rows[0] as { id: string; grade: string; wasOpen: boolean } | undefined;
+  const r = rows[0] as Record<string, unknown> | undefined;
   if (!r) return null;
   await c.query(`DELETE FROM alert_history WHERE alert_id = $1 AND by IS NULL AND action IN ('raised', 'reactivated', 'escalated', 'deescalated', 'returned_to_normal')`, [r.id]);
-  return { id: r.id, open: r.wasOpen, grade: r.grade };
+  return {
+    id: String(r.id), open: r.wasOpen === true, grade: String(r.grade),
+    ackedAt: (r.acked_at as Date | null) ?? null, ackedBy: (r.acked_by as string | null) ?? null, ackComment: (r.ack_comment as string | null) ?? null,
+    shelvedUntil: (r.shelved_until as Date | null) ?? null, shelvedAt: (r.shelved_at as Date | null) ?? null, shelvedBy: (r.shelved_by as string | null) ?? null,
+    shelveReason: (r.shelve_reason as string | null) ?? null,
+  };
 }
 
 /**

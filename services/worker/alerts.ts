@@ -353,10 +353,19 @@ export async function applyAlertObservations(
         const created = newAlert(unitId, k, f, p.grade, o.ts, opts.history === true);
         const before = opts.rerun ? await takeUpSetAside(client, unitId, k) : null;
         if (before) {
-          // Subscribers heard of this alert before the rings were judged again: if they believe it
-          // active, it is not announced a second time (only a grade they have not heard is); if
-          // they heard it clear, it is history again, announced once if still active at the end.
+          // Subscribers heard of this alert, or people acted on it, before the rings were judged
+          // again: it keeps its id, acknowledgement and shelf. If subscribers believe it active, it
+          // is not announced a second time (only a grade they have not heard is); if they heard it
+          // clear, it is history again, announced once if still active at the end.
           created.id = before.id;
+          created.acknowledged = before.ackedAt !== null;
+          created.ackedAt = before.ackedAt;
+          created.ackedBy = before.ackedBy;
+          created.ackComment = before.ackComment;
+          created.shelvedUntil = before.shelvedUntil;
+          created.shelvedAt = before.shelvedAt;
+          created.shelvedBy = before.shelvedBy;
+          created.shelveReason = before.shelveReason;
           created.historyAnnounced = before.open;
           created.foundInHistory = created.foundInHistory || !before.open;
           const told = before.open && before.grade === created.grade;

@@ -62,7 +62,6 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
   const { pool, config } = deps;
   const s = config.worker;
   /** Late rings of a unit found at once from which it is judged again in order (below: their spans only). */
-  const LATE_REWIND_RINGS = 1000;
   const workerId = deps.workerId ?? s.id ?? `${hostname()}-${process.pid}-${randomBytes(3).toString('hex')}`;
   const log = deps.logger.child({ component: 'worker', workerId });
   const alertSettings = loadAlertSettings(config);
@@ -149,7 +148,7 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
     const work = late.get(unitId);
     if (!work) return true;
     late.delete(unitId);
-    if (work.times.length >= LATE_REWIND_RINGS) {
+    if (work.times.length >= s.lateRewindRings) {
       // History arriving out of order (months of an import in any order): judge everything from
       // the earliest late ring on again, in ring order, alerts and drift with it, as if it had
       // come in order. A few late rings are analysed in their span (below); alerts stay as they are.

@@ -259,7 +259,7 @@ export async function analyseGroup(
           mem.autoFitFromMs = null;
           mem.autoFitDueReached = false;
           pc.logger.info(
-            { unitId: id, from: Number.isFinite(r.pointMs) ? new Date(r.pointMs).toISOString() : 'first ring', to: new Date(p.reanalysisToMs as number).toISOString(), alertsRemoved: r.removedAlerts, alertsWithdrawn: r.withdrawnAlerts },
+            { unitId: id, from: Number.isFinite(r.pointMs) ? new Date(r.pointMs).toISOString() : 'first ring', to: new Date(p.reanalysisToMs as number).toISOString(), alertsRemoved: r.removedAlerts, alertsSetAside: r.setAsideAlerts },
             'rings to be judged again',
           );
         }
