@@ -19,7 +19,7 @@
  * or the rewind and whatever days were judged again since, never half of one.
  */
 import { KINDS_NOT_REANALYSED } from './config.ts';
-import { ALERT_COLUMNS, alertFromDb, type Queryable } from './alert-rows.ts';
+import { ALERT_COLUMNS, alertFromDb, type AlertRow, type Queryable } from './alert-rows.ts';
 import { recordChange } from './alert-changes.ts';
 import { isoMicros } from './pg-binary.ts';
 import { msOf } from './sql.ts';
@@ -146,19 +146,16 @@ export async function rewindTo(c: Queryable, unitId: string, fromMs: number): Pr
   return { pointMs, watermarkMs: w === null || w === undefined ? null : Number(w), removedAlerts: removed.rowCount ?? 0, setAsideAlerts: setAside.rowCount ?? 0 };
 }
 
-/** What a set-aside alert brings to the alert that takes it up: its id, and what people and subscribers know of it. */
+/** What people gave an alert: its acknowledgement and shelf. */
+export type PeoplesPart = Pick<AlertRow, 'ackedAt' | 'ackedBy' | 'ackComment' | 'shelvedUntil' | 'shelvedAt' | 'shelvedBy' | 'shelveReason'>;
+
+/** What a set-aside alert brings to the alert that takes it up. */
 export interface SetAsideAlert {
   id: string;
   /** It was open when set aside (its subscribers believe it active). */
   open: boolean;
   grade: string;
-  ackedAt: Date | null;
-  ackedBy: string | null;
-  ackComment: string | null;
-  shelvedUntil: Date | null;
-  shelvedAt: Date | null;
-  shelvedBy: string | null;
-  shelveReason: string | null;
+  people: PeoplesPart;
 }
 
 /**
@@ -171,19 +168,18 @@ export async function takeUpSetAside(c: Queryable, unitId: string, conditionKey:
     `UPDATE alerts a SET rewound_at = NULL, rewound_open = NULL
        FROM (SELECT id, rewound_open FROM alerts WHERE unit_id = $1 AND condition_key = $2 AND rewound_at IS NOT NULL ORDER BY raised_at LIMIT 1 FOR UPDATE) o
       WHERE a.id = o.id
-      RETURNING a.id, a.grade, o.rewound_open AS "wasOpen", a.acked_at, a.acked_by, a.ack_comment, a.shelved_until, a.shelved_at, a.shelved_by, a.shelve_reason`,
+      RETURNING o.rewound_open AS "wasOpen", ${qualified('a')}`,
     [unitId, conditionKey],
   );
-  const r = rows[0] as Record<string, unknown> | undefined;
-  if (!r) return null;
-  await c.query(`DELETE FROM alert_history WHERE alert_id = $1 AND by IS NULL AND action IN ('raised', 'reactivated', 'escalated', 'deescalated', 'returned_to_normal')`, [r.id]);
-  return {
-    id: String(r.id), open: r.wasOpen === true, grade: String(r.grade),
-    ackedAt: (r.acked_at as Date | null) ?? null, ackedBy: (r.acked_by as string | null) ?? null, ackComment: (r.ack_comment as string | null) ?? null,
-    shelvedUntil: (r.shelved_until as Date | null) ?? null, shelvedAt: (r.shelved_at as Date | null) ?? null, shelvedBy: (r.shelved_by as string | null) ?? null,
-    shelveReason: (r.shelve_reason as string | null) ?? null,
-  };
+  if (rows.length === 0) return null;
+  const a = alertFromDb(rows[0]);
+  await c.query(`DELETE FROM alert_history WHERE alert_id = $1 AND by IS NULL AND action IN ('raised', 'reactivated', 'escalated', 'deescalated', 'returned_to_normal')`, [a.id]);
+  const { ackedAt, ackedBy, ackComment, shelvedUntil, shelvedAt, shelvedBy, shelveReason } = a;
+  return { id: a.id, open: rows[0].wasOpen === true, grade: a.grade, people: { ackedAt, ackedBy, ackComment, shelvedUntil, shelvedAt, shelvedBy, shelveReason } };
 }
+
+/** The alert columns, qualified by a table alias. */
+const qualified = (alias: string) => ALERT_COLUMNS.split(',').map((x) => `${alias}.${x.trim()}`).join(', ');
 
 /**
  * Ends the re-analysis of the units whose watermark has reached reanalysis_to; their set-aside
@@ -206,7 +202,7 @@ export async function finishReanalysisReached(c: Queryable, unitIds: string[], n
 async function withdrawSetAside(c: Queryable, unitIds: string[], now: Date): Promise<void> {
   const { rows } = await c.query(
     `UPDATE alerts a SET rewound_at = NULL, rewound_open = NULL FROM (SELECT id, rewound_open FROM alerts WHERE unit_id = ANY($1::text[]) AND rewound_at IS NOT NULL FOR UPDATE) o
-      WHERE a.id = o.id RETURNING o.rewound_open AS "wasOpen", ${ALERT_COLUMNS.split(',').map((x) => `a.${x.trim()}`).join(', ')}`,
+      WHERE a.id = o.id RETURNING o.rewound_open AS "wasOpen", ${qualified('a')}`,
     [unitIds],
   );
   for (const r of rows) {

@@ -358,14 +358,8 @@ export async function applyAlertObservations(
           // is not announced a second time (only a grade they have not heard is); if they heard it
           // clear, it is history again, announced once if still active at the end.
           created.id = before.id;
-          created.acknowledged = before.ackedAt !== null;
-          created.ackedAt = before.ackedAt;
-          created.ackedBy = before.ackedBy;
-          created.ackComment = before.ackComment;
-          created.shelvedUntil = before.shelvedUntil;
-          created.shelvedAt = before.shelvedAt;
-          created.shelvedBy = before.shelvedBy;
-          created.shelveReason = before.shelveReason;
+          Object.assign(created, before.people);
+          created.acknowledged = before.people.ackedAt !== null;
           created.historyAnnounced = before.open;
           created.foundInHistory = created.foundInHistory || !before.open;
           const told = before.open && before.grade === created.grade;
