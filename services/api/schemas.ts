@@ -106,5 +106,5 @@ export const NotJudgedList = Type.Array(
 /** The settings a judgement needs from the worker's configuration. */
 export interface JudgementSettings {
   baselineAutoDays: number;
-  driftCron?: string;
+  driftCron?: string | null;
 }

@@ -33,7 +33,7 @@ export interface JudgementInput {
   /** Drift states computed against the newest baseline; omitted where drift is not shown. */
   driftStates?: number;
   /** When the drift job runs (a cron pattern, UTC), for the drift reason. */
-  driftSchedule?: string;
+  driftSchedule?: string | null;
 }
 
 export interface Judgement {
@@ -85,7 +85,7 @@ export function judgement(i: JudgementInput): Judgement {
     out.push({ part: 'limit', reason: `Baseline version ${i.latest.baselineVersion} has too few steady rings at this load${at} to set a limit there: the spread limit is the default one.` });
   }
   if (i.driftStates === 0 && i.baselineVersion !== null) {
-    out.push({ part: 'drift', reason: `No drift computed yet against baseline version ${i.baselineVersion}: drift is fitted from the daily residuals after the baseline by the drift job${i.driftSchedule ? ` (${i.driftSchedule}, UTC)` : ''}.` });
+    out.push({ part: 'drift', reason: `No drift computed yet against baseline version ${i.baselineVersion}: drift is brought up to date from the daily residuals as each ring-time day after the baseline ends (a later ring ends a day; for a unit whose data stopped, the nightly job${i.driftSchedule ? ` at ${i.driftSchedule} UTC` : ''} does once the day has ended on the clock).` });
   }
   return { notJudged: out, baselineDueMs };
 }

@@ -245,7 +245,8 @@ export interface WorkerConfig {
   /** node-cron pattern of the safety-net sweep (new and late rings). */
   sweepCron: string;
   /** node-cron pattern of the nightly drift computation (UTC). */
-  driftCron: string;
+  /** The nightly drift safety net's schedule (null: CANSIGHT_DRIFT_CRON=off, none). */
+  driftCron: string | null;
   /** Window of the steady-state test, seconds. */
   steadyWindowS: number;
   /** Window of the frozen / erratic / drifting-alone thermocouple tests, minutes, and how often they run. */
@@ -297,7 +298,7 @@ function workerConfig(env: Env): WorkerConfig {
     claimEveryS,
     maxUnits: integer(env, 'CANSIGHT_WORKER_MAX_UNITS', 0, 0, 1_000_000),
     sweepCron: cronPattern(env, 'CANSIGHT_WORKER_SWEEP_CRON', '*/10 * * * * *'),
-    driftCron: cronPattern(env, 'CANSIGHT_DRIFT_CRON', '17 2 * * *'),
+    driftCron: text(env, 'CANSIGHT_DRIFT_CRON', '').trim() === 'off' ? null : cronPattern(env, 'CANSIGHT_DRIFT_CRON', '17 2 * * *'),
     steadyWindowS: integer(env, 'CANSIGHT_STEADY_WINDOW_S', 600, 10, 86_400),
     windowTestMinutes: integer(env, 'CANSIGHT_WINDOW_TEST_MINUTES', 30, 1, 1440),
     windowTestEveryMinutes: integer(env, 'CANSIGHT_WINDOW_TEST_EVERY_MINUTES', 30, 1, 1440),

@@ -347,14 +347,16 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
 
   const listener = startListener(pool, log, (units) => mark(units === '*' ? owned : units));
   const sweepTask = cron.schedule(s.sweepCron, safely('sweep', sweep), { noOverlap: true, name: `sweep-${workerId}` });
-  const driftTask = cron.schedule(
-    s.driftCron,
-    safely('drift', async () => {
-      await runNightlyDrift({ pool, logger: log, config }, [...owned], Date.now());
-      for (const id of owned) invalidateInputs(pc, id);
-    }),
-    { noOverlap: true, timezone: 'UTC', name: `drift-${workerId}` },
-  );
+  const driftTask = s.driftCron
+    ? cron.schedule(
+        s.driftCron,
+        safely('drift', async () => {
+          await runNightlyDrift({ pool, logger: log, config }, [...owned], Date.now());
+          for (const id of owned) invalidateInputs(pc, id);
+        }),
+        { noOverlap: true, timezone: 'UTC', name: `drift-${workerId}` },
+      )
+    : null;
   const alertJobs = startAlertJobs({ pool, logger: deps.logger, config });
   void safely('sweep', sweep)();
   log.info({ units: [...owned], leaseS: s.leaseS, batchRings: s.batchRings }, 'worker started');
@@ -385,7 +387,7 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
       if (stopped) return;
       stopped = true;
       await sweepTask.destroy();
-      await driftTask.destroy();
+      await driftTask?.destroy();
       if (claimTimer) clearTimeout(claimTimer);
       clearInterval(rollupTimer);
       await listener.stop();

@@ -51,7 +51,7 @@ describe('the sentences', () => {
     expect(judgement({ ...judged, latest: { ...judged.latest, steady: false } }).notJudged.map((x) => x.part)).toEqual(['residuals']);
     const thin = judgement({ ...judged, latest: { ...judged.latest, limitFromBaseline: false, loadFraction: 0.42 } });
     expect(thin.notJudged[0]).toMatchObject({ part: 'limit', reason: expect.stringContaining('(42 % corrected load)') });
-    expect(judgement({ ...judged, driftStates: 0, driftSchedule: '17 2 * * *' }).notJudged[0]).toMatchObject({ part: 'drift', reason: expect.stringContaining('(17 2 * * *, UTC)') });
+    expect(judgement({ ...judged, driftStates: 0, driftSchedule: '17 2 * * *' }).notJudged[0]).toMatchObject({ part: 'drift', reason: expect.stringMatching(/as each ring-time day after the baseline ends.*nightly job at 17 2 \* \* \* UTC/) });
   });
 });
 

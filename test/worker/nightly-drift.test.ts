@@ -10,6 +10,7 @@
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createLogger } from '../../services/db/logger.ts';
+import { loadConfig } from '../../services/db/config.ts';
 import { readDriftStates } from '../../services/db/drift.ts';
 import { startWorker } from '../../services/worker/index.ts';
 import { runNightlyDrift } from '../../services/worker/drift.ts';
@@ -71,5 +72,13 @@ describe('the nightly drift job', () => {
     const later = await readDriftStates(db.pool, 'nightly-1');
     const strip = (xs: typeof after) => xs.map(({ updatedAt: _u, ...rest }) => rest);
     expect(strip(later)).toEqual(strip(after));
+  });
+});
+
+describe('the nightly drift job\'s schedule', () => {
+  it('is 02:17 UTC by default, can be turned off, and a bad pattern is refused by name', () => {
+    expect(loadConfig({}).worker.driftCron).toBe('17 2 * * *');
+    expect(loadConfig({ CANSIGHT_DRIFT_CRON: 'off' }).worker.driftCron).toBeNull();
+    expect(() => loadConfig({ CANSIGHT_DRIFT_CRON: 'nightly' })).toThrow(/CANSIGHT_DRIFT_CRON/);
   });
 });
