@@ -78,6 +78,23 @@ export async function fitFirstBaseline(pool: Pool, unitId: string, fromMs: numbe
 }
 
 /**
+ * The automatic fit of a baseline period started by maintenance: over [fromMs, toMs) (from the
+ * work to baselineAutoDays later), in force from toMs. 'present' when the baseline in force at
+ * toMs was already learnt within the period (a fit requested by a person, or made before); null
+ * when no load bin holds enough steady rings yet.
+ */
+export async function fitPeriodBaseline(pool: Pool, unitId: string, fromMs: number, toMs: number, settings: WorkerConfig): Promise<BaselineRecord | 'present' | null> {
+  const b = await baselineInForce(pool, unitId, toMs);
+  if (b && b.windowFrom.getTime() >= fromMs) return 'present';
+  try {
+    return await fitBaseline(pool, unitId, fromMs, toMs, 'automatic', settings);
+  } catch (err) {
+    if (err instanceof BaselineFitError) return null;
+    throw err;
+  }
+}
+
+/**
  * Fits the pending requests of these units whose window analysis has passed. Returns the
  * units that got a new version.
  */

@@ -22,6 +22,7 @@ import type { ConfigVersionRecord } from '../db/units.ts';
 import { ReadingsWindow, RecentCodes, SteadyWindow } from './windows.ts';
 import type { ProbeReplacement } from '../db/events.ts';
 import { ProbeOffsets, type LearntOffset } from './probe-offsets.ts';
+import { baselinePeriodAt, baselineStanding, chambersReached, NEW_PERIOD_KINDS, type BaselinePeriod, type PeriodEvent } from '../core/baseline-periods.ts';
 
 export interface AnalyserInputs {
   unitId: string;
@@ -36,6 +37,29 @@ export interface AnalyserInputs {
   settings: WorkerConfig;
   /** Thermocouple replacements (maintenance events), oldest first; none when left out. */
   replacements?: ProbeReplacement[];
+  /**
+   * Maintenance events that start a new baseline period (fuel nozzles worked on, a combustion
+   * inspection, combustor tuning), oldest first; none when left out.
+   */
+  periods?: PeriodEvent[];
+}
+
+/**
+ * How the rings of one stretch of ring time stand to the baseline judging them (no event
+ * between fromMs and untilMs): superseded by work on the machine, with the caution and the
+ * drift inputs left after the work (the chambers concerned, and every thermocouple, whose
+ * drift restarts), or current.
+ */
+export interface PeriodStanding {
+  fromMs: number;
+  untilMs: number;
+  period: BaselinePeriod | null;
+  /** Null when the baseline is current. */
+  caution: string | null;
+  /** Ring time an automatic fit from the period falls due; null when current. */
+  fitDueMs: number | null;
+  driftChambers: (ChamberDriftInput | null)[];
+  driftThermocouples: (ChamberDriftInput | null)[];
 }
 
 export interface RingResult {
@@ -89,6 +113,51 @@ export class UnitAnalyser {
   alertsIdle = false;
   private readonly steadyOptions: SteadyStateOptions;
   private probeOffsets: ProbeOffsets | null = null;
+  private standingCache: PeriodStanding | null = null;
+
+  /**
+   * The baseline period in force at tsMs and how the baseline judging the rings stands in it
+   * (core/baseline-periods.ts). Kept for the stretch of ring time up to the next event, so a
+   * ring costs a comparison.
+   */
+  standingAt(tsMs: number): PeriodStanding {
+    const c = this.standingCache;
+    if (c && tsMs >= c.fromMs && tsMs < c.untilMs) return c;
+    const events = (this.inputs.periods ?? []).filter((e) => (NEW_PERIOD_KINDS as readonly string[]).includes(e.kind));
+    let fromMs = -Infinity;
+    let untilMs = Infinity;
+    for (const e of events) {
+      if (e.atMs <= tsMs) fromMs = Math.max(fromMs, e.atMs);
+      else untilMs = Math.min(untilMs, e.atMs);
+    }
+    const b = this.inputs.baseline;
+    const period = baselinePeriodAt(events, tsMs);
+    const st = baselineStanding(period, b ? Date.parse(b.window.from) : null, this.inputs.settings.baselineAutoDays);
+    let driftChambers = this.inputs.driftChambers;
+    let driftThermocouples = this.inputs.driftThermocouples;
+    if (b && period && st.state === 'superseded') {
+      // A change since the work is the work's: the chambers concerned and their neighbours (all,
+      // for the whole unit) and the thermocouples are not judged for drift until the new fit.
+      const n = this.inputs.versions.reduce((mx, v) => Math.max(mx, v.config.chambers.count), 0);
+      const reached = chambersReached(period.chambers, n);
+      driftChambers = driftChambers.map((d, k) => (reached.includes(k + 1) ? null : d));
+      driftThermocouples = driftThermocouples.map(() => null);
+    }
+    const out: PeriodStanding = { fromMs, untilMs, period, caution: b ? st.caution : null, fitDueMs: b ? st.fitDueMs : null, driftChambers, driftThermocouples };
+    this.standingCache = out;
+    return out;
+  }
+
+  /** Findings judged on a baseline from before the work: said so, in their evidence and message. */
+  private withCaution(findings: Finding[], s: PeriodStanding): Finding[] {
+    if (s.caution === null || findings.length === 0) return findings;
+    const when = new Date(s.period!.fromMs).toISOString();
+    return findings.map((f) => ({
+      ...f,
+      evidence: { ...f.evidence, baselineCaution: s.caution, workAt: when },
+      message: `${f.message} (Judged on the baseline from before the work of ${when}; a new baseline is fitted after it.)`,
+    }));
+  }
 
   private buildProbeOffsets(): void {
     const r = this.inputs.replacements ?? [];
@@ -116,6 +185,7 @@ export class UnitAnalyser {
     const events = (i: AnalyserInputs) => `${i.baseline?.version ?? 0}|` + (i.replacements ?? []).map((r) => `${r.eventId}/${r.thermocouple}@${r.atMs}`).join(',');
     const eventsChanged = events(inputs) !== events(this.inputs);
     this.inputs = inputs;
+    this.standingCache = null;
     if (eventsChanged) this.buildProbeOffsets();
     if (changed) {
       this.contexts.clear();
@@ -272,11 +342,16 @@ export class UnitAnalyser {
         recentMissingCounts: views.missing,
         windowVerdicts: this.verdicts,
       };
-      const drift = { chambers: this.inputs.driftChambers, thermocouples: this.inputs.driftThermocouples };
+      const standing = this.standingAt(tsMs);
+      const drift = { chambers: standing.driftChambers, thermocouples: standing.driftThermocouples };
       const plumeShare = { left: ctx.responseLeft, right: ctx.responseRight };
       raise = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.raise, temperatureUnit: cfg.temperatureUnit });
       if (raise.length > 0) this.alertsIdle = false;
       hold = this.alertsIdle ? [] : evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.hold, temperatureUnit: cfg.temperatureUnit });
+      if (standing.caution !== null) {
+        raise = this.withCaution(raise, standing);
+        hold = this.withCaution(hold, standing);
+      }
     }
     // A spread jump is a change between consecutive steady rings: a ring that is not steady (a
     // start, a stop, a load change) ends the comparison, so the first steady ring after it is not
