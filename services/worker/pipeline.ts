@@ -206,6 +206,7 @@ function sliceRings(rings: RingColumns, n: number): RingColumns {
     exhaustC: rings.exhaustC.slice(0, n),
     fuelFlowKgS: rings.fuelFlowKgS.subarray(0, n),
     flameDetected: rings.flameDetected.subarray(0, n),
+    ...(rings.mode ? { mode: rings.mode.slice(0, n) } : {}),
   };
 }
 
