@@ -226,7 +226,8 @@ export function validateRing(raw: unknown, unitId: string, ctx: ValidationContex
     fuelFlowKgS,
     flameDetected: typeof flame === 'boolean' ? flame : null,
     exhaustC: out,
-    mode: typeof mode === 'string' ? mode : null,
+    // Only a ring that has one carries it (the byte reader's rings, which never do, are the same).
+    ...(typeof mode === 'string' ? { mode } : {}),
   };
 }
 

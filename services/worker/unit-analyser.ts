@@ -22,6 +22,7 @@ import type { ConfigVersionRecord } from '../db/units.ts';
 import { ReadingsWindow, RecentCodes, SteadyWindow } from './windows.ts';
 import type { ProbeReplacement } from '../db/events.ts';
 import { ProbeOffsets, type LearntOffset } from './probe-offsets.ts';
+import { baselineForMode, ModeTracker, type ModalBaseline } from '../core/modes.ts';
 import { baselinePeriodAt, baselineStanding, chambersReached, NEW_PERIOD_KINDS, type BaselinePeriod, type PeriodEvent } from '../core/baseline-periods.ts';
 
 export interface AnalyserInputs {
@@ -114,6 +115,35 @@ export class UnitAnalyser {
   private readonly steadyOptions: SteadyStateOptions;
   private probeOffsets: ProbeOffsets | null = null;
   private standingCache: PeriodStanding | null = null;
+  /** The combustion mode ring by ring, and whether a ring is inside a transfer (core/modes.ts). */
+  private modes: ModeTracker;
+  private modeBaseline: { source: UnitBaseline | null; mode: string | null; baseline: UnitBaseline | null; caution: string | null } | null = null;
+
+  /** The baseline judging rings of `mode` (its own, or the all-mode one with a caution). */
+  private baselineOf(mode: string | null): { baseline: UnitBaseline | null; caution: string | null } {
+    const src = this.inputs.baseline;
+    const c = this.modeBaseline;
+    if (c && c.source === src && c.mode === mode) return c;
+    const r = baselineForMode(src as ModalBaseline | null, mode);
+    this.modeBaseline = { source: src, mode, ...r };
+    return this.modeBaseline;
+  }
+
+  /** Thresholds of a mode whose unit configuration sets its own spread limit. */
+  private modeThresholds: { key: string; raise: Thresholds; hold: Thresholds } | null = null;
+  private thresholdsOf(cfg: { modes?: Record<string, { spreadLimitC?: number }> }, mode: string | null): { raise: Thresholds; hold: Thresholds } {
+    const limit = mode === null ? undefined : cfg.modes?.[mode]?.spreadLimitC;
+    if (limit === undefined) return { raise: this.inputs.raise, hold: this.inputs.hold };
+    const key = `${mode}|${limit}`;
+    const c = this.modeThresholds;
+    if (c && c.key === key && c.raise.spreadMarginDegC === this.inputs.raise.spreadMarginDegC) return c;
+    // The mode's limit in place of the learnt one: floor, ceiling and default all at it; the
+    // hold level keeps its deadband below the raise level.
+    const fixed = (t: Thresholds, at: number): Thresholds => ({ ...t, spreadDefaultLimitDegC: at, spreadLimitFloorDegC: at, spreadLimitCeilingDegC: at });
+    const band = this.inputs.raise.spreadDefaultLimitDegC - this.inputs.hold.spreadDefaultLimitDegC;
+    this.modeThresholds = { key, raise: fixed(this.inputs.raise, limit), hold: fixed(this.inputs.hold, limit - band) };
+    return this.modeThresholds;
+  }
 
   /**
    * The baseline period in force at tsMs and how the baseline judging the rings stands in it
@@ -148,6 +178,12 @@ export class UnitAnalyser {
     return out;
   }
 
+  /** Findings of a mode judged on the all-mode baseline: said so, in their evidence. */
+  private withModeCaution(findings: Finding[], caution: string): Finding[] {
+    if (findings.length === 0) return findings;
+    return findings.map((f) => ({ ...f, evidence: { ...f.evidence, modeCaution: caution } }));
+  }
+
   /** Findings judged on a baseline from before the work: said so, in their evidence and message. */
   private withCaution(findings: Finding[], s: PeriodStanding): Finding[] {
     if (s.caution === null || findings.length === 0) return findings;
@@ -176,6 +212,7 @@ export class UnitAnalyser {
     this.steadyWindow = new SteadyWindow(this.steadyWindowS);
     this.readingsWindow = new ReadingsWindow(this.windowMs, WINDOW_TEST_RINGS);
     this.recentCodes = new RecentCodes(inputs.settings.recentRings, MAX_M, VALIDITY.isolated_outlier, VALIDITY.missing);
+    this.modes = new ModeTracker(this.steadyWindowS * 1000);
   }
 
   /** New baseline, drift state or configuration versions; the memory of recent rings is kept. */
@@ -280,6 +317,7 @@ export class UnitAnalyser {
       const { ctx } = this.context(t);
       const load = correctedLoadFraction(rings.loadMw[j], rings.ambientC[j], rings.ambientKPa[j], ctx.config);
       this.pushLoad(t / 1000, load);
+      this.modes.push(t, rings.mode ? rings.mode[j] : null);
       const inService = this.inService(rings.speedPct[j], load);
       this.pushReadings(t, rings.exhaustC[j], load, inService);
       if (inService) this.refreshVerdicts(ctx.m);
@@ -299,7 +337,11 @@ export class UnitAnalyser {
     const speed = rings.speedPct[j];
     const readings = rings.exhaustC[j];
     this.pushLoad(tsMs / 1000, load);
-    const st = this.steadyWindow.steadyAt(speed, tsMs / 1000, this.steadyOptions);
+    // A change of combustion mode is a transient: the rings of the transfer are not steady, and
+    // findings are held through it (no observation: the alert rules keep what they have).
+    const transfer = this.modes.push(tsMs, rings.mode ? rings.mode[j] : null);
+    const st0 = this.steadyWindow.steadyAt(speed, tsMs / 1000, this.steadyOptions);
+    const st = transfer && st0.steady ? { ...st0, steady: false } : st0;
     const inService = this.inService(speed, load);
     this.pushReadings(tsMs, readings, load, inService);
     if (inService) this.refreshVerdicts(ctx.m);
@@ -309,7 +351,10 @@ export class UnitAnalyser {
     const validity = a.validity;
     this.recentCodes.push(validity);
 
-    const b = this.inputs.baseline;
+    // The baseline of the ring's mode (a unit without modes: the unit's baseline).
+    const mb = this.baselineOf(this.modes.mode);
+    const b = mb.baseline;
+    const th = this.thresholdsOf(cfg, this.modes.mode);
     // Residuals against the baseline at this load: each thermocouple's deviation less its own
     // normal, and the chamber map of that pattern (chamberResidualsFromThermocouples). Findings
     // judge every ring in service by them; the stored analysis keeps them for steady rings.
@@ -331,11 +376,11 @@ export class UnitAnalyser {
     const chamberRes = res ? res.chamberDegC : null;
     const tcResidual = st.steady ? tcRes : null;
     const chamberResidual = st.steady && tcRes ? (chamberRes ?? new Float64Array(ctx.n).fill(NaN)) : null;
-    const limit = spreadLimitDegC(b, load, this.inputs.raise);
+    const limit = spreadLimitDegC(b, load, th.raise);
 
     let raise: Finding[] | null = null;
     let hold: Finding[] | null = null;
-    if (inService) {
+    if (inService && !transfer) {
       const history = {
         previousSteadySpreadDegC: this.prevSteadySpread,
         recentOutlierCounts: views.outliers,
@@ -345,12 +390,16 @@ export class UnitAnalyser {
       const standing = this.standingAt(tsMs);
       const drift = { chambers: standing.driftChambers, thermocouples: standing.driftThermocouples };
       const plumeShare = { left: ctx.responseLeft, right: ctx.responseRight };
-      raise = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.raise, temperatureUnit: cfg.temperatureUnit });
+      raise = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: th.raise, temperatureUnit: cfg.temperatureUnit });
       if (raise.length > 0) this.alertsIdle = false;
-      hold = this.alertsIdle ? [] : evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.hold, temperatureUnit: cfg.temperatureUnit });
+      hold = this.alertsIdle ? [] : evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: th.hold, temperatureUnit: cfg.temperatureUnit });
       if (standing.caution !== null) {
         raise = this.withCaution(raise, standing);
         hold = this.withCaution(hold, standing);
+      }
+      if (mb.caution !== null) {
+        raise = this.withModeCaution(raise, mb.caution);
+        hold = this.withModeCaution(hold, mb.caution);
       }
     }
     // A spread jump is a change between consecutive steady rings: a ring that is not steady (a
