@@ -129,11 +129,16 @@ export class UnitAnalyser {
     return this.modeBaseline;
   }
 
+  private unitThresholds: { raise: Thresholds; hold: Thresholds } | null = null;
   /** Thresholds of a mode whose unit configuration sets its own spread limit. */
   private modeThresholds: { key: string; raise: Thresholds; hold: Thresholds } | null = null;
   private thresholdsOf(cfg: { modes?: Record<string, { spreadLimitC?: number }> }, mode: string | null): { raise: Thresholds; hold: Thresholds } {
     const limit = mode === null ? undefined : cfg.modes?.[mode]?.spreadLimitC;
-    if (limit === undefined) return { raise: this.inputs.raise, hold: this.inputs.hold };
+    if (limit === undefined) {
+      const d = this.unitThresholds;
+      if (d && d.raise === this.inputs.raise && d.hold === this.inputs.hold) return d;
+      return (this.unitThresholds = { raise: this.inputs.raise, hold: this.inputs.hold });
+    }
     const key = `${mode}|${limit}`;
     const c = this.modeThresholds;
     if (c && c.key === key && c.raise.spreadMarginDegC === this.inputs.raise.spreadMarginDegC) return c;

@@ -51,7 +51,7 @@ function inputsOf(unit: SimUnit, baseline: ModalBaseline | null): AnalyserInputs
   return { unitId: id, versions: [{ version: 1, effectiveFrom: null, createdAt: new Date(0).toISOString(), config }], baseline, driftChambers: [], driftThermocouples: [], raise: defaultThresholds, hold: defaultThresholds, settings };
 }
 
-interface Judged { tsMs: number; mode: string; steady: boolean; findings: Finding[] | null }
+interface Judged { tsMs: number; mode: string; steady: boolean; findings: Finding[] | null; limit: number }
 
 function run(unit: SimUnit, withModes: boolean): { baseline: ModalBaseline; after: Judged[] } {
   const b = simulate(unit, FROM, TO);
@@ -69,7 +69,7 @@ function run(unit: SimUnit, withModes: boolean): { baseline: ModalBaseline; afte
   const after: Judged[] = [];
   for (let j = 0; j < cols.count; j++) {
     const r = a.analyse(cols, j);
-    after.push({ tsMs: cols.tsMs[j], mode: modeAt(cols.tsMs[j]), steady: r.row.steady, findings: r.raise });
+    after.push({ tsMs: cols.tsMs[j], mode: modeAt(cols.tsMs[j]), steady: r.row.steady, findings: r.raise, limit: r.row.spreadLimit });
   }
   return { baseline, after };
 }
@@ -126,5 +126,13 @@ describe('a unit alternating between two combustion modes', () => {
     expect(baselineForMode(withModes.baseline, 'c')).toMatchObject({ baseline: withModes.baseline, caution: expect.stringContaining('Mode c had too few steady rings') });
     expect(baselineForMode(withModes.baseline, 'b').caution).toBeNull();
     expect(baselineForMode(withModes.baseline, null)).toEqual({ baseline: withModes.baseline, caution: null });
+  });
+
+  it('a mode given its own spread limit in the unit configuration is judged by it; the other mode keeps the learnt one', () => {
+    const unit: SimUnit = { ...healthy, config: { ...healthy.config, modes: { b: { spreadLimitC: 61.5 } } } };
+    const { after } = run(unit, true);
+    const limits = (mode: string) => [...new Set(after.filter((x) => x.mode === mode && x.steady).map((x) => x.limit))];
+    expect(limits('b')).toEqual([61.5]);
+    expect(limits('a')).not.toContain(61.5);
   });
 });
