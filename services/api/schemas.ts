@@ -42,6 +42,16 @@ export const UnitConfigFields = {
       { additionalProperties: false, description: 'corrected power = P / (δ^deltaExponent · θ^thetaExponent)' },
     ),
   ),
+  modes: Type.Optional(
+    Type.Record(
+      Type.String({ pattern: '^[A-Za-z0-9_.-]{1,16}$' }),
+      Type.Object(
+        { spreadLimitC: Type.Optional(Type.Number({ minimum: 5, maximum: 200, description: "the spread limit in this mode, °C (hottest − coldest thermocouple), in place of the one learnt from the baseline" })) },
+        { additionalProperties: false, description: 'settings of one combustion mode' },
+      ),
+      { description: "combustion modes by the code the site sends with each ring (the ring field mode), each with its own settings, e.g. {\"premix\": {\"spreadLimitC\": 35}}; a mode left out has the unit's settings" },
+    ),
+  ),
 };
 
 export const CreateUnitBody = Type.Object(
@@ -69,6 +79,7 @@ export const PatchUnitBody = Type.Object(
     temperatureUnit: Type.Optional(UnitConfigFields.temperatureUnit),
     view: UnitConfigFields.view,
     correction: UnitConfigFields.correction,
+    modes: UnitConfigFields.modes,
     effectiveFrom: Type.Optional(Type.String({ format: 'date-time', description: 'when the new configuration takes effect; default now' })),
   },
   { additionalProperties: false, minProperties: 1 },

@@ -66,3 +66,16 @@ export function baselineStanding(period: BaselinePeriod | null, baselineFromMs: 
     caution: `After the ${what} of ${new Date(period.fromMs).toISOString()}, ${where} ${period.chambers?.length === 1 ? 'is' : 'are'} judged on the baseline from before the work until a new one is fitted (due at ${new Date(due).toISOString()}): a change since the work is the work's, not drift.`,
   };
 }
+
+/**
+ * The chambers whose drift restarts for work on `chambers` (numbered from 1) of a ring of n: each
+ * of them and its two neighbours, since a chamber's plume reaches its neighbours' estimates in
+ * the chamber map (a change in one shows, smaller, in the next ones). Null (the whole unit): all.
+ * Example: chamber 1 of 10 → [1, 2, 10].
+ */
+export function chambersReached(chambers: readonly number[] | null, n: number): number[] {
+  if (chambers === null) return Array.from({ length: n }, (_, k) => k + 1);
+  const out = new Set<number>();
+  for (const c of chambers) for (const d of [-1, 0, 1]) out.add((((c - 1 + d) % n) + n) % n + 1);
+  return [...out].sort((a, b) => a - b);
+}

@@ -7,6 +7,8 @@
  * that a null or a dash is never left unexplained.
  */
 
+import { baselinePeriodAt, baselineStanding, type PeriodEvent } from './baseline-periods.ts';
+
 export type NotJudgedPart = 'analysis' | 'baseline' | 'residuals' | 'limit' | 'drift';
 
 export interface NotJudged {
@@ -34,12 +36,21 @@ export interface JudgementInput {
   driftStates?: number;
   /** When the drift job runs (a cron pattern, UTC), for the drift reason. */
   driftSchedule?: string | null;
+  /** Start of the reference window of the baseline in force at the watermark (ms), or null. */
+  baselineInForceFromMs?: number | null;
+  /** Maintenance starting a new baseline period, up to the watermark (core/baseline-periods.ts). */
+  periods?: readonly PeriodEvent[];
 }
 
 export interface Judgement {
   notJudged: NotJudged[];
   /** Ring time at which the automatic first baseline falls due, when the unit has none. */
   baselineDueMs: number | null;
+  /**
+   * Work on the machine since the baseline in force was learnt: the rings are judged on the
+   * baseline from before the work until the new one is fitted; null when none.
+   */
+  baselineCaution: string | null;
 }
 
 const DAY_MS = 86_400_000;
@@ -87,5 +98,13 @@ export function judgement(i: JudgementInput): Judgement {
   if (i.driftStates === 0 && i.baselineVersion !== null) {
     out.push({ part: 'drift', reason: `No drift computed yet against baseline version ${i.baselineVersion}: drift is brought up to date from the daily residuals as each ring-time day after the baseline ends (a later ring ends a day; for a unit whose data stopped, the nightly job${i.driftSchedule ? ` at ${i.driftSchedule} UTC` : ''} does once the day has ended on the clock).` });
   }
-  return { notJudged: out, baselineDueMs };
+  let baselineCaution: string | null = null;
+  if (i.periods?.length && i.baselineInForceFromMs !== undefined && i.baselineInForceFromMs !== null && i.watermarkMs !== null) {
+    const st = baselineStanding(baselinePeriodAt(i.periods, i.watermarkMs), i.baselineInForceFromMs, i.baselineAutoDays);
+    if (st.caution) {
+      baselineCaution = st.caution;
+      out.push({ part: 'baseline', reason: `${st.caution} Drift of the chambers concerned restarts after the work.` });
+    }
+  }
+  return { notJudged: out, baselineDueMs, baselineCaution };
 }

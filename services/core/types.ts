@@ -23,6 +23,8 @@ export interface UnitConfig {
   view?: 'downstream' | 'upstream';
   /** Exponents of the corrected-power group P / (δ^a · θ^b); a = 1, b = 0.5 by default. */
   correction?: { deltaExponent: number; thetaExponent: number };
+  /** Combustion modes by the code sent with the rings, each with its own settings. */
+  modes?: Record<string, { spreadLimitC?: number }>;
 }
 
 /** Plume kernel shape used to map the ring to chambers. */

@@ -19,6 +19,8 @@ export interface RingColumns {
   fuelFlowKgS: Float64Array;
   /** Flame detected: 1 yes, 0 no, -1 not sent. */
   flameDetected: Int8Array;
+  /** Combustion mode code per ring (null where none was sent); left out: no ring has one. */
+  mode?: (string | null)[];
 }
 
 /** Ring rows being decoded from a binary COPY, column by column. */
@@ -31,6 +33,8 @@ class RingColumnsBuilder {
   private ex: Float64Array[] = [];
   private fuel: number[] = [];
   private flame: number[] = [];
+  private mode: (string | null)[] = [];
+  private anyMode = false;
 
   /** Reads the RING_READ_COLUMNS of the reader's current row. */
   add(r: CopyBinaryReader, arena: Float64Arena): void {
@@ -43,6 +47,9 @@ class RingColumnsBuilder {
     this.fuel.push(r.float4());
     const f = r.bool();
     this.flame.push(f === null ? -1 : f ? 1 : 0);
+    const m = r.text();
+    if (m !== null) this.anyMode = true;
+    this.mode.push(m);
   }
 
   columns(): RingColumns {
@@ -56,6 +63,7 @@ class RingColumnsBuilder {
       exhaustC: this.ex,
       fuelFlowKgS: Float64Array.from(this.fuel),
       flameDetected: Int8Array.from(this.flame),
+      ...(this.anyMode ? { mode: this.mode } : {}),
     };
   }
 }
@@ -68,7 +76,7 @@ function decodeRings(buf: Buffer): RingColumns {
   return b.columns();
 }
 
-const RING_READ_COLUMNS = 'ts, load_mw, ambient_c, ambient_kpa, speed_pct, exhaust_c, fuel_flow_kg_s, flame_detected';
+const RING_READ_COLUMNS = 'ts, load_mw, ambient_c, ambient_kpa, speed_pct, exhaust_c, fuel_flow_kg_s, flame_detected, mode';
 
 /** Rings of a unit with ts > afterMs (all when null), oldest first, at most limit. */
 export async function readRingsAfter(client: pg.ClientBase, unitId: string, afterMs: number | null, limit: number): Promise<RingColumns> {

@@ -112,6 +112,8 @@ export interface BaselineSampleColumns {
   spread: Float64Array;
   tcDeviation: Float64Array[];
   chamberDeviation: Float64Array[];
+  /** The combustion mode of each ring (null where none was sent). */
+  mode: (string | null)[];
 }
 
 /**
@@ -124,7 +126,9 @@ export async function readBaselineSamples(client: pg.ClientBase, unitId: string,
   const sample = k > 1 ? ` AND abs(hashtext(ts::text)) % ${k} = 0` : '';
   const body = await copyOut(
     client,
-    `SELECT load_fraction, ring_mean, spread, tc_deviation, chamber_deviation FROM ring_analysis WHERE unit_id = ${lit(unitId)} AND ts >= ${tsLit(fromMs)} AND ts < ${tsLit(toMs)} AND steady${sample} ORDER BY ts`,
+    `SELECT load_fraction, ring_mean, spread, tc_deviation, chamber_deviation,
+            (SELECT r.mode FROM rings r WHERE r.unit_id = a.unit_id AND r.ts = a.ts) AS mode
+       FROM ring_analysis a WHERE unit_id = ${lit(unitId)} AND ts >= ${tsLit(fromMs)} AND ts < ${tsLit(toMs)} AND steady${sample} ORDER BY ts`,
   );
   const r = new CopyBinaryReader(body);
   const arena = r.arena();
@@ -133,14 +137,16 @@ export async function readBaselineSamples(client: pg.ClientBase, unitId: string,
   const spread: number[] = [];
   const tcDev: Float64Array[] = [];
   const chDev: Float64Array[] = [];
+  const mode: (string | null)[] = [];
   while (r.nextRow() > 0) {
     load.push(r.float4());
     mean.push(r.float4());
     spread.push(r.float4());
     tcDev.push(r.numberArray(arena) ?? new Float64Array(0));
     chDev.push(r.numberArray(arena) ?? new Float64Array(0));
+    mode.push(r.text());
   }
-  return { count: load.length, loadFraction: Float64Array.from(load), ringMean: Float64Array.from(mean), spread: Float64Array.from(spread), tcDeviation: tcDev, chamberDeviation: chDev };
+  return { count: load.length, loadFraction: Float64Array.from(load), ringMean: Float64Array.from(mean), spread: Float64Array.from(spread), tcDeviation: tcDev, chamberDeviation: chDev, mode };
 }
 
 /** Steady analysed rings of a unit in [fromMs, toMs). */

@@ -8,6 +8,7 @@
 import type pg from 'pg';
 import { loadBinCount, parseBaseline, type BaselineOptions, type UnitBaseline, type WindowSupply } from '../core/baseline.ts';
 import { isoMicros } from './pg-binary.ts';
+import type { PeriodEvent } from '../core/baseline-periods.ts';
 import { requestReanalysis } from './progress.ts';
 
 type Queryable = pg.Pool | pg.ClientBase;
@@ -217,12 +218,19 @@ export async function analysisWatermarkMs(q: Queryable, unitId: string): Promise
 export const BASELINE_OUTLOOK_COLUMNS = `
        (SELECT max(version) FROM baselines WHERE unit_id = u.id) AS bo_version,
        (SELECT ts FROM ring_analysis WHERE unit_id = u.id AND steady AND NOT EXISTS (SELECT 1 FROM baselines WHERE unit_id = u.id) ORDER BY ts LIMIT 1) AS bo_first_steady,
-       (SELECT ARRAY[window_from, window_to] FROM baseline_requests WHERE unit_id = u.id AND state = 'pending' ORDER BY requested_at, id LIMIT 1) AS bo_pending`;
+       (SELECT ARRAY[window_from, window_to] FROM baseline_requests WHERE unit_id = u.id AND state = 'pending' ORDER BY requested_at, id LIMIT 1) AS bo_pending,
+       (SELECT window_from FROM baselines WHERE unit_id = u.id AND effective_from <= coalesce(p.watermark_ts, '-infinity') ORDER BY version DESC LIMIT 1) AS bo_in_force_from,
+       (SELECT jsonb_agg(jsonb_build_object('kind', kind, 'atMs', (extract(epoch from at) * 1000)::float8, 'chambers', chambers) ORDER BY at)
+          FROM maintenance_events WHERE unit_id = u.id AND kind IN ('nozzles_worked', 'combustion_inspection', 'combustor_tuning') AND at <= coalesce(p.watermark_ts, '-infinity')) AS bo_periods`;
 
 export interface BaselineOutlook {
   version: number | null;
   firstSteadyMs: number | null;
   pendingRequest: { fromMs: number; toMs: number } | null;
+  /** Start of the reference window of the baseline in force at the watermark, or null. */
+  inForceFromMs: number | null;
+  /** Maintenance that starts a new baseline period, up to the watermark, oldest first. */
+  periods: PeriodEvent[];
 }
 
 export function baselineOutlookOf(r: Record<string, unknown>): BaselineOutlook {
@@ -231,6 +239,8 @@ export function baselineOutlookOf(r: Record<string, unknown>): BaselineOutlook {
     version: r.bo_version === null || r.bo_version === undefined ? null : Number(r.bo_version),
     firstSteadyMs: r.bo_first_steady instanceof Date ? r.bo_first_steady.getTime() : null,
     pendingRequest: pending ? { fromMs: pending[0].getTime(), toMs: pending[1].getTime() } : null,
+    inForceFromMs: r.bo_in_force_from instanceof Date ? r.bo_in_force_from.getTime() : null,
+    periods: ((r.bo_periods as PeriodEvent[] | null) ?? []).map((e) => ({ kind: e.kind, atMs: Number(e.atMs), chambers: e.chambers ?? null })),
   };
 }
 

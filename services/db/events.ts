@@ -4,6 +4,8 @@
  * unit with the offsets learnt so far, and the writing of a learnt offset.
  */
 import type pg from 'pg';
+import { NEW_PERIOD_KINDS, type PeriodEvent } from '../core/baseline-periods.ts';
+import { requestReanalysis } from './progress.ts';
 
 type Queryable = Pick<pg.ClientBase, 'query'>;
 
@@ -71,6 +73,18 @@ export async function probeReplacements(q: Queryable, unitId: string): Promise<P
   );
 }
 
+/** The events of a unit that start a new baseline period (core/baseline-periods.ts), oldest first. */
+export async function periodEvents(q: Queryable, unitId: string): Promise<PeriodEvent[]> {
+  const { rows } = await q.query(
+    `SELECT kind, (extract(epoch from at) * 1000)::float8 AS at_ms, chambers FROM maintenance_events WHERE unit_id = $1 AND kind = ANY($2::text[]) ORDER BY at, recorded_at`,
+    [unitId, NEW_PERIOD_KINDS],
+  );
+  return rows.map((r: { kind: string; at_ms: number; chambers: number[] | null }) => ({ kind: r.kind, atMs: Number(r.at_ms), chambers: r.chambers ?? null }));
+}
+
+/** Kinds whose recording changes how rings are judged: recorded or removed in the past, the rings after them are judged again. */
+export const ANALYSED_EVENT_KINDS: readonly string[] = ['thermocouple_replaced', ...NEW_PERIOD_KINDS];
+
 /** Records the offset learnt for one replaced probe (worker). */
 export async function recordLearntOffset(q: Queryable, unitId: string, eventId: string, thermocouple: number, offsetC: number): Promise<void> {
   await q.query(`UPDATE maintenance_events SET learnt_offsets = learnt_offsets || jsonb_build_object($3::text, $4::float8) WHERE unit_id = $1 AND id = $2`, [unitId, eventId, String(thermocouple + 1), offsetC]);
@@ -78,19 +92,66 @@ export async function recordLearntOffset(q: Queryable, unitId: string, eventId: 
 
 export function createEventsRepository(pool: pg.Pool) {
   return {
-    async create(e: { unitId: string; kind: EventKind; at: Date; thermocouples: number[] | null; chambers: number[] | null; by: string; note: string | null; keyId: string | null }): Promise<MaintenanceEvent> {
-      const { rows } = await pool.query(
-        `INSERT INTO maintenance_events (unit_id, kind, at, thermocouples, chambers, recorded_by, note, key_id) VALUES ($1, $2, $3, $4, $5, $6, $7, $8) RETURNING ${COLUMNS}`,
-        [e.unitId, e.kind, e.at, e.thermocouples, e.chambers, e.by, e.note, e.keyId],
-      );
-      return eventFromDb(rows[0]);
+    /**
+     * Records an event. One that changes how rings are judged (ANALYSED_EVENT_KINDS), at or
+     * before the unit's analysis watermark, asks for the rings from its time on to be judged
+     * again (requestReanalysis), in the same transaction: history then gives the answer the
+     * rings would have had with the event recorded before them.
+     */
+    async create(e: { unitId: string; kind: EventKind; at: Date; thermocouples: number[] | null; chambers: number[] | null; by: string; note: string | null; keyId: string | null }): Promise<MaintenanceEvent & { reanalysed: boolean }> {
+      const client = await pool.connect();
+      try {
+        await client.query('BEGIN');
+        const { rows } = await client.query(
+          `INSERT INTO maintenance_events (unit_id, kind, at, thermocouples, chambers, recorded_by, note, key_id) VALUES ($1, $2, $3, $4, $5, $6, $7, $8) RETURNING ${COLUMNS}`,
+          [e.unitId, e.kind, e.at, e.thermocouples, e.chambers, e.by, e.note, e.keyId],
+        );
+        const reanalysed = ANALYSED_EVENT_KINDS.includes(e.kind) ? await requestReanalysis(client, e.unitId, e.at.getTime()) : false;
+        await client.query('COMMIT');
+        return { ...eventFromDb(rows[0]), reanalysed };
+      } catch (err) {
+        await client.query('ROLLBACK').catch(() => {});
+        throw err;
+      } finally {
+        client.release();
+      }
     },
     list: (unitId: string, fromMs?: number, toMs?: number) => unitEvents(pool, unitId, fromMs, toMs),
-    /** Deletes one event; false when the unit has no such event. */
+    /**
+     * Deletes one event; false when the unit has no such event. Removing one that changed how
+     * rings were judged, at or before the watermark, has them judged again from its time, and
+     * the baseline fitted automatically for the period it started (its window from the event's
+     * time on, fitted by the worker) goes with it unless another such event shares that time:
+     * the rings are then judged as if the event had never been recorded.
+     */
     async remove(unitId: string, id: string): Promise<boolean> {
       if (!/^[0-9a-f]{8}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{12}$/i.test(id)) return false;
-      const { rowCount } = await pool.query(`DELETE FROM maintenance_events WHERE unit_id = $1 AND id = $2`, [unitId, id]);
-      return (rowCount ?? 0) > 0;
+      const client = await pool.connect();
+      try {
+        await client.query('BEGIN');
+        const { rows } = await client.query(`DELETE FROM maintenance_events WHERE unit_id = $1 AND id = $2 RETURNING kind, at`, [unitId, id]);
+        if (rows.length === 0) {
+          await client.query('ROLLBACK');
+          return false;
+        }
+        const kind = rows[0].kind as string;
+        const at = rows[0].at as Date;
+        if ((NEW_PERIOD_KINDS as readonly string[]).includes(kind)) {
+          await client.query(
+            `DELETE FROM baselines b WHERE b.unit_id = $1 AND b.fitted_by = 'automatic' AND b.window_from = $2
+                AND NOT EXISTS (SELECT 1 FROM maintenance_events e WHERE e.unit_id = $1 AND e.at = $2 AND e.kind = ANY($3::text[]))`,
+            [unitId, at, NEW_PERIOD_KINDS],
+          );
+        }
+        if (ANALYSED_EVENT_KINDS.includes(kind)) await requestReanalysis(client, unitId, at.getTime());
+        await client.query('COMMIT');
+        return true;
+      } catch (err) {
+        await client.query('ROLLBACK').catch(() => {});
+        throw err;
+      } finally {
+        client.release();
+      }
     },
   };
 }

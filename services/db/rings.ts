@@ -27,10 +27,12 @@ export interface RingRow {
   flameDetected: boolean | null;
   /** Thermocouple readings in thermocouple order (index 0 = thermocouple 1). */
   exhaustC: ArrayLike<number>;
+  /** Combustion mode code the site sent (1–16 characters); null or left out: none. */
+  mode?: string | null;
 }
 
-export const RING_COLUMNS = 'unit_id, ts, load_mw, ambient_c, ambient_kpa, speed_pct, cdt_c, cdp_kpa, fuel_flow_kg_s, flame_detected, exhaust_c';
-const FIELD_COUNT = 11;
+export const RING_COLUMNS = 'unit_id, ts, load_mw, ambient_c, ambient_kpa, speed_pct, cdt_c, cdp_kpa, fuel_flow_kg_s, flame_detected, exhaust_c, mode';
+const FIELD_COUNT = 12;
 /** Microseconds between 1970-01-01 and PostgreSQL's epoch 2000-01-01 (UTC), in ms. */
 const PG_EPOCH_MS = 946_684_800_000;
 const SIGNATURE = Buffer.from('PGCOPY\n\xff\r\n\0', 'latin1');
@@ -125,7 +127,9 @@ export class RingCopyEncoder {
     }
     const id = this.lastIdBytes;
     const n = r.exhaustC.length;
-    this.room(2 + 4 + id.length + 12 + 8 * 7 + 5 + 4 + 20 + 8 * n);
+    const mode = r.mode ?? null;
+    const modeBytes = mode === null ? 0 : Buffer.byteLength(mode, 'utf8');
+    this.room(2 + 4 + id.length + 12 + 8 * 7 + 5 + 4 + 20 + 8 * n + 4 + modeBytes);
     const d = this.view;
     let p = this.pos;
     d.setInt16(p, FIELD_COUNT);
@@ -161,6 +165,14 @@ export class RingCopyEncoder {
       p += 5;
     }
     p = writeFloat4ArrayField(d, p, r.exhaustC, n);
+    if (mode === null) {
+      d.setInt32(p, -1);
+      p += 4;
+    } else {
+      d.setInt32(p, modeBytes);
+      this.buf.write(mode, p + 4, modeBytes, 'utf8');
+      p += 4 + modeBytes;
+    }
     this.pos = p;
     this.count++;
   }
@@ -438,6 +450,7 @@ export async function readRings(pool: pg.Pool | pg.ClientBase, unitId: string, f
       cdpKPa: r.cdp_kpa,
       fuelFlowKgS: r.fuel_flow_kg_s,
       flameDetected: r.flame_detected,
+      mode: (r.mode as string | null) ?? null,
       exhaustC: ex,
       receivedAt: r.received_at,
     };

@@ -189,7 +189,7 @@ export async function ingestRoutes(app: FastifyInstance): Promise<void> {
     schema: {
       tags: ['ingest'],
       summary: 'Store rings of one unit: a JSON batch, or a CSV or NDJSON stream',
-      description: 'application/json: { rings: [...] } (index in replies from 0). text/csv: header ts,load_mw,ambient_c,ambient_kpa,speed_pct,tc1,…,tcM (tcN_f for °F, tcN_mv for Type K mV with cold_junction_c; optional cdt_c, cdp_kpa, fuel_flow_kg_s, flame_detected); rows numbered from 1. application/x-ndjson: one ring per line (unitId optional). One transaction per request.',
+      description: 'application/json: { rings: [...] } (index in replies from 0). text/csv: header ts,load_mw,ambient_c,ambient_kpa,speed_pct,tc1,…,tcM (tcN_f for °F, tcN_mv for Type K mV with cold_junction_c; optional cdt_c, cdp_kpa, fuel_flow_kg_s, flame_detected, mode); rows numbered from 1. application/x-ndjson: one ring per line (unitId optional). One transaction per request.',
       params: UnitRingsParams,
       body: RingBatchBody,
       response: { 200: IngestReply, ...errors },

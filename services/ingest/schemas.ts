@@ -23,6 +23,7 @@ export const RingInput = Type.Object(
     exhaustF: Type.Optional(Type.Array(Reading, { description: 'instead of exhaustC: readings in °F' })),
     exhaustMv: Type.Optional(Type.Array(Reading, { description: 'instead of exhaustC: Type K EMF in mV, with coldJunctionC' })),
     coldJunctionC: Type.Optional(Type.Number({ description: 'reference junction temperature for exhaustMv, °C' })),
+    mode: Type.Optional(Type.Union([Type.String({ pattern: '^[A-Za-z0-9_.-]{1,16}$' }), Type.Null()], { description: "combustion mode the unit runs in, the site's own short code (1–16 letters, digits, '-', '_', '.'; e.g. \"premix\"): baselines are fitted per mode and a change of mode is a transient; leave out (or null) on a unit without modes" })),
   },
   { additionalProperties: false, description: 'one exhaust ring: exactly one of exhaustC, exhaustF, exhaustMv' },
 );

@@ -335,6 +335,7 @@ const CSV_SCALARS: Record<string, string> = {
   fuel_flow_kg_s: 'fuelFlowKgS',
   flame_detected: 'flameDetected',
   cold_junction_c: 'coldJunctionC',
+  mode: 'mode',
 };
 const CSV_REQUIRED = ['ts', 'load_mw', 'ambient_c', 'ambient_kpa', 'speed_pct'];
 const TC_RE = /^tc(\d{1,3})(_f|_mv)?$/;
@@ -421,7 +422,7 @@ export function csvLayout(header: string): CsvLayout {
     }
     problems.push({
       field: name || `column ${i + 1}`,
-      reason: `is not a known column (expected ${CSV_REQUIRED.join(', ')}, tc1…tcM, and optionally cdt_c, cdp_kpa, fuel_flow_kg_s, flame_detected, cold_junction_c)`,
+      reason: `is not a known column (expected ${CSV_REQUIRED.join(', ')}, tc1…tcM, and optionally cdt_c, cdp_kpa, fuel_flow_kg_s, flame_detected, cold_junction_c, mode)`,
     });
   });
   for (const r of CSV_REQUIRED) if (!seen.has(r)) problems.push({ field: r, reason: 'is a required column' });
@@ -495,6 +496,7 @@ export async function ingestCsv(source: AsyncIterable<Buffer | string>, unitId: 
       }
       const f = layout.scalar[i]!;
       if (f === 'ts') rec.ts = cell.trim() === '' ? undefined : cell.trim();
+      else if (f === 'mode') rec.mode = cell.trim() === '' ? undefined : cell.trim();
       else if (f === 'flameDetected') {
         const c = cell.trim().toLowerCase();
         rec.flameDetected = c === '' ? undefined : c === 'true' || c === '1' ? true : c === 'false' || c === '0' ? false : cell;

@@ -36,8 +36,11 @@ export function isRejection(v: RingRow | Rejection): v is Rejection {
 /** Field names of a ring, with what each holds, for messages. */
 const RING_FIELDS = new Set([
   'unitId', 'ts', 'loadMw', 'ambientC', 'ambientKPa', 'speedPct', 'cdtC', 'cdpKPa', 'fuelFlowKgS',
-  'flameDetected', 'exhaustC', 'exhaustF', 'exhaustMv', 'coldJunctionC',
+  'flameDetected', 'exhaustC', 'exhaustF', 'exhaustMv', 'coldJunctionC', 'mode',
 ]);
+
+/** A combustion mode code: 1–16 letters, digits, '-', '_' or '.'. */
+export const MODE_RE = /^[A-Za-z0-9_.-]{1,16}$/;
 
 const EARLIEST_MS = 0; // 1970-01-01T00:00:00Z
 
@@ -161,6 +164,11 @@ export function validateRing(raw: unknown, unitId: string, ctx: ValidationContex
     return { field: 'flameDetected', reason: `is not true or false (got ${describe(flame)})` };
   }
 
+  const mode = r.mode;
+  if (mode !== undefined && mode !== null && (typeof mode !== 'string' || !MODE_RE.test(mode))) {
+    return { field: 'mode', reason: `is not a combustion mode code of 1 to 16 letters, digits, '-', '_' or '.' (got ${describe(mode)})` };
+  }
+
   const given = (r.exhaustC != null ? 1 : 0) + (r.exhaustF != null ? 1 : 0) + (r.exhaustMv != null ? 1 : 0);
   if (given === 0) return { field: 'exhaustC', reason: 'is required (or exhaustF in °F, or exhaustMv in Type K millivolts with coldJunctionC)' };
   const field = r.exhaustC != null ? 'exhaustC' : r.exhaustF != null ? 'exhaustF' : 'exhaustMv';
@@ -218,6 +226,8 @@ export function validateRing(raw: unknown, unitId: string, ctx: ValidationContex
     fuelFlowKgS,
     flameDetected: typeof flame === 'boolean' ? flame : null,
     exhaustC: out,
+    // Only a ring that has one carries it (the byte reader's rings, which never do, are the same).
+    ...(typeof mode === 'string' ? { mode } : {}),
   };
 }
 

@@ -269,8 +269,10 @@ export class UnitSimulation {
       }
       case 'nozzle_plugging': {
         const k = this.checkChamber(f.chamber, f.kind) - 1;
-        this.chamberFaults.push({ k, kind: f.kind, at, end: Infinity, amount: f.depthPct / 100, rampMs: f.days * DAY_MS });
-        this.faultTruth.push({ ...base, kind: f.kind, chamber: k + 1, params: { days: f.days, depthPct: f.depthPct, fullDepthAt: isoTime(at + f.days * DAY_MS) }, plumeAngleDegAtBase: this.plumeAtBase(k) });
+        const end = f.cleanedAt === undefined ? Infinity : toMs(f.cleanedAt, `${f.kind}.cleanedAt`);
+        if (end <= at) throw new Error(`nozzle_plugging of chamber ${f.chamber}: cleanedAt must come after at`);
+        this.chamberFaults.push({ k, kind: f.kind, at, end, amount: f.depthPct / 100, rampMs: f.days * DAY_MS });
+        this.faultTruth.push({ ...base, kind: f.kind, chamber: k + 1, until: Number.isFinite(end) ? isoTime(end) : undefined, params: { days: f.days, depthPct: f.depthPct, fullDepthAt: isoTime(at + f.days * DAY_MS), cleanedAt: Number.isFinite(end) ? isoTime(end) : null }, plumeAngleDegAtBase: this.plumeAtBase(k) });
         break;
       }
       case 'hot_chamber': {
@@ -318,8 +320,8 @@ export class UnitSimulation {
     const cf = this.chamberFaults;
     for (let j = 0; j < cf.length; j++) {
       const c = cf[j];
-      if (c.k !== k || t < c.at) continue;
-      if (c.kind === 'flame_loss') { if (t < c.end) f *= 1 - c.amount; continue; }
+      if (c.k !== k || t < c.at || t >= c.end) continue;
+      if (c.kind === 'flame_loss') { f *= 1 - c.amount; continue; }
       const ramp = c.rampMs > 0 ? Math.min(1, (t - c.at) / c.rampMs) : 1;
       f *= c.kind === 'nozzle_plugging' ? 1 - c.amount * ramp : 1 + c.amount * ramp;
     }

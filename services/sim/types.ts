@@ -99,7 +99,7 @@ export type FaultSpec =
   | { kind: 'tc_erratic'; thermocouple: number; at: TimeInput; until?: TimeInput; sigmaC: number }
   | { kind: 'tc_frozen'; thermocouple: number; at: TimeInput; until?: TimeInput }
   /** Fuel share of the chamber falls linearly from 100 % to (100 − depthPct) % over `days`, then stays. */
-  | { kind: 'nozzle_plugging'; chamber: number; at: TimeInput; days: number; depthPct: number }
+  | { kind: 'nozzle_plugging'; chamber: number; at: TimeInput; days: number; depthPct: number; /** The nozzles are cleaned then: the chamber is whole again from that instant. */ cleanedAt?: TimeInput }
   /** The chamber's flame goes out (depthFrac of its heat lost, default 1) until `durationH` or the next stop; optional trip after tripAfterS. */
   | { kind: 'flame_loss'; chamber: number; at: TimeInput; durationH?: number; depthFrac?: number; tripAfterS?: number }
   /** The chamber takes excessPct more fuel share, reached over rampDays (0 = sudden). */

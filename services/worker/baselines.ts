@@ -6,7 +6,8 @@
  * load bins with fewer than `baselineMinBinCount` rings are "no baseline here". Each fit is a
  * new version; nothing already analysed is changed.
  */
-import { baselineOptionsFor, baselineWindowProblem, fitUnitBaseline, type BaselineSample } from '../core/baseline.ts';
+import { baselineOptionsFor, baselineWindowProblem, type BaselineSample } from '../core/baseline.ts';
+import { fitModalBaseline } from '../core/modes.ts';
 import type { WorkerConfig } from '../db/config.ts';
 import { countSteady, readBaselineSamples } from '../db/analysis.ts';
 import { baselineInForce, dueBaselineRequests, finishBaselineRequest, insertBaseline, type BaselineRecord } from '../db/baselines.ts';
@@ -37,7 +38,7 @@ export async function fitBaseline(
   if (total === 0) throw new BaselineFitError(baselineWindowProblem(unitId, fromMs, toMs, { steadyRings: 0, fullestBin: 0 }, options.minCount) as string);
   const sampleEvery = Math.ceil(total / MAX_FIT_SAMPLES);
   const client = await pool.connect();
-  let samples: BaselineSample[];
+  let samples: (BaselineSample & { mode: string | null })[];
   try {
     const c = await readBaselineSamples(client, unitId, fromMs, toMs, sampleEvery);
     samples = [];
@@ -48,13 +49,15 @@ export async function fitBaseline(
         spreadDegC: c.spread[i],
         thermocoupleDeviationDegC: c.tcDeviation[i],
         chamberDeviationDegC: c.chamberDeviation[i],
+        mode: c.mode[i],
       });
     }
   } finally {
     client.release();
   }
   const window = { from: new Date(fromMs).toISOString(), to: new Date(toMs).toISOString() };
-  const probe = fitUnitBaseline(samples, { version: 0, window, fittedAt: new Date(nowMs).toISOString(), fittedBy: by }, options);
+  // The unit's baseline over every mode, with one per combustion mode that has enough steady rings.
+  const probe = fitModalBaseline(samples, { version: 0, window, fittedAt: new Date(nowMs).toISOString(), fittedBy: by }, options);
   const fullestBin = Math.max(0, ...probe.spread.bins.map((b) => b.count));
   const problem = baselineWindowProblem(unitId, fromMs, toMs, { steadyRings: total, fullestBin }, options.minCount);
   if (problem) throw new BaselineFitError(problem);
@@ -69,6 +72,23 @@ export async function fitBaseline(
  */
 export async function fitFirstBaseline(pool: Pool, unitId: string, fromMs: number, toMs: number, settings: WorkerConfig): Promise<BaselineRecord | null> {
   if (await baselineInForce(pool, unitId, toMs)) return null;
+  try {
+    return await fitBaseline(pool, unitId, fromMs, toMs, 'automatic', settings);
+  } catch (err) {
+    if (err instanceof BaselineFitError) return null;
+    throw err;
+  }
+}
+
+/**
+ * The automatic fit of a baseline period started by maintenance: over [fromMs, toMs) (from the
+ * work to baselineAutoDays later), in force from toMs. 'present' when the baseline in force at
+ * toMs was already learnt within the period (a fit requested by a person, or made before); null
+ * when no load bin holds enough steady rings yet.
+ */
+export async function fitPeriodBaseline(pool: Pool, unitId: string, fromMs: number, toMs: number, settings: WorkerConfig): Promise<BaselineRecord | 'present' | null> {
+  const b = await baselineInForce(pool, unitId, toMs);
+  if (b && b.windowFrom.getTime() >= fromMs) return 'present';
   try {
     return await fitBaseline(pool, unitId, fromMs, toMs, 'automatic', settings);
   } catch (err) {

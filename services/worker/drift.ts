@@ -11,7 +11,8 @@
  * The state is recomputed from the stored daily aggregates each run, so a run repeated gives
  * the same state; it names the baseline version it was computed against.
  */
-import { probeReplacements } from '../db/events.ts';
+import { periodEvents, probeReplacements } from '../db/events.ts';
+import { chambersReached } from '../core/baseline-periods.ts';
 import { createCusum, createEwma, driftRate, removeCommonMode, robustSigma, updateCusum, updateEwma } from '../core/drift.ts';
 import type { Config } from '../db/config.ts';
 import type { Logger } from '../db/logger.ts';
@@ -60,6 +61,22 @@ export async function runDriftForUnit(pool: Pool | Queryable, config: Config, un
   // (the day of the work holds both probes).
   const restartAfterDay = new Map<number, string>();
   for (const r of await probeReplacements(pool, unitId)) restartAfterDay.set(r.thermocouple, dayText(r.atMs));
+  // Work that starts a new baseline period (fuel nozzles, an inspection, tuning) after this
+  // baseline's window began: the drift of the chambers concerned and their neighbours (all, for
+  // the whole unit) restarts after the day of the work, and so does every thermocouple's (their plumes reach
+  // them), until the period's own baseline is fitted.
+  const latest = (a: string | null | undefined, b: string | null | undefined): string | undefined => (a && b ? (a > b ? a : b) : (a ?? b ?? undefined));
+  const chamberRestartAfterDay = new Map<number, string>();
+  const chamberCount = base.baseline.chambers.length;
+  let allChambersAfter: string | undefined;
+  let thermocouplesAfter: string | undefined;
+  for (const e of await periodEvents(pool, unitId)) {
+    if (e.atMs <= base.windowFrom.getTime() || e.atMs > asOfMs) continue;
+    const d = dayText(e.atMs);
+    if (e.chambers === null) allChambersAfter = latest(allChambersAfter, d);
+    else for (const k of chambersReached(e.chambers, chamberCount)) chamberRestartAfterDay.set(k - 1, latest(chamberRestartAfterDay.get(k - 1), d) as string);
+    thermocouplesAfter = latest(thermocouplesAfter, d);
+  }
   for (const subject of ['chamber', 'thermocouple'] as DriftSubject[]) {
     const rows = daily.filter((d) => d.subject === subject);
     if (rows.length === 0) continue;
@@ -81,7 +98,7 @@ export async function runDriftForUnit(pool: Pool | Queryable, config: Config, un
         const v = cm[j][i];
         if (Number.isFinite(v)) series.push({ day: days[j], t: dayMs(days[j]) / 1000, v, fired: firedAt[j] });
       }
-      const after = subject === 'thermocouple' ? restartAfterDay.get(i) : undefined;
+      const after = subject === 'thermocouple' ? latest(restartAfterDay.get(i), thermocouplesAfter) : latest(chamberRestartAfterDay.get(i), allChambersAfter);
       if (after !== undefined) series.splice(0, series.length, ...series.filter((p) => p.day > after));
       if (series.length === 0) continue;
       const ref = series.slice(0, s.driftReferenceDays);

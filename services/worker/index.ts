@@ -17,7 +17,7 @@ import { ensureProgressRows, findLateRings, receivedHorizon, requestReanalysis, 
 import { claimUnits, ensureClaimRows, heartbeat, liveWorkerCount, releaseUnits, renewLeases, retireWorker, workersOnHost } from '../db/claims.ts';
 import { startAlertJobs } from './alert-jobs.ts';
 import { deadbandThresholds, loadAlertSettings } from './alerts.ts';
-import { fitDueRequests, fitFirstBaseline } from './baselines.ts';
+import { fitDueRequests, fitFirstBaseline, fitPeriodBaseline } from './baselines.ts';
 import { firstSteadyMs } from '../db/baselines.ts';
 import { runDrift, runNightlyDrift, type DriftRunResult } from './drift.ts';
 import { startListener } from './listener.ts';
@@ -190,6 +190,7 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
           dirty.add(unitId);
         } else backlog.delete(unitId);
         await firstBaselineWhenDue(unitId, r.status === 'more');
+        await periodBaselineWhenDue(unitId);
       }
     } catch (err) {
       for (const unitId of unitIds) {
@@ -231,6 +232,27 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
     if (fitted) log.info({ unitId, baselineVersion: fitted.version, from: fitted.windowFrom, to: fitted.windowTo }, 'first baseline fitted');
     // Too few steady rings per load bin yet: try again with one more day of data.
     else mem.autoFitDueMs = mem.watermarkMs + 86_400_000;
+  }
+
+  /**
+   * Fits the baseline of a period started by maintenance once analysis has passed the ring time
+   * it falls due (baselineAutoDays after the work), from the steady rings since the work.
+   */
+  async function periodBaselineWhenDue(unitId: string): Promise<void> {
+    const mem = memoryOf(pc, unitId);
+    const pf = mem.periodFit;
+    if (!pf || mem.watermarkMs === null || !Number.isFinite(mem.watermarkMs)) return;
+    if (mem.watermarkMs < pf.dueMs && !pf.reached) return;
+    pf.reached = false;
+    const fitted = await fitPeriodBaseline(pool, unitId, pf.fromMs, pf.dueMs, s);
+    invalidateInputs(pc, unitId);
+    if (fitted === 'present') mem.periodFit = null;
+    else if (fitted) {
+      mem.periodFit = null;
+      log.info({ unitId, baselineVersion: fitted.version, from: fitted.windowFrom, to: fitted.windowTo }, 'baseline fitted for the period since maintenance');
+    }
+    // Too few steady rings per load bin since the work: try again with one more day of data.
+    else pf.dueMs = mem.watermarkMs + 86_400_000;
   }
 
   /**

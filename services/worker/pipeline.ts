@@ -7,7 +7,8 @@
  * watermark, without analysis) are analysed by re-running their span with the memory of the
  * rings before it, and the hours and days they touch are recomputed from stored analysis.
  */
-import { probeReplacements, recordLearntOffset } from '../db/events.ts';
+import { periodEvents, probeReplacements, recordLearntOffset } from '../db/events.ts';
+import { baselinePeriodAt, baselineStanding } from '../core/baseline-periods.ts';
 import type { LearntOffset } from './probe-offsets.ts';
 import type { Thresholds } from '../core/findings.ts';
 import type { Config } from '../db/config.ts';
@@ -72,6 +73,13 @@ export interface UnitMemory {
   /** The last batch stopped at autoFitDueMs: the first baseline is fitted before any later ring. */
   autoFitDueReached: boolean;
   /**
+   * A baseline period started by maintenance (fuel nozzles, an inspection, tuning) whose rings
+   * are judged on a baseline from before the work: the automatic fit from the period's start
+   * falls due at dueMs in ring time (core/baseline-periods.ts), and `reached` says the last
+   * batch stopped there, so the fit comes before any later ring.
+   */
+  periodFit: { fromMs: number; dueMs: number; reached: boolean } | null;
+  /**
    * Rollups of in-order rings analysed and committed but not written yet: exactly the rings after
    * the stored rollups_to up to the watermark. Kept only together with the analyser's memory.
    */
@@ -101,7 +109,7 @@ export function memoryOf(pc: PipelineContext, unitId: string): UnitMemory {
   if (!m)
     pc.memory.set(
       unitId,
-      (m = { analyser: null, watermarkMs: null, inputs: null, inputsLoadedAt: 0, baselines: null, baselineVersion: null, driftStamp: null, driftStates: null, lastAutoFitCheck: 0, autoFitDueMs: null, autoFitFromMs: null, autoFitDueReached: false, rollups: null, rollupsSince: 0, historySinceAnnounced: true }),
+      (m = { analyser: null, watermarkMs: null, inputs: null, inputsLoadedAt: 0, baselines: null, baselineVersion: null, driftStamp: null, driftStates: null, lastAutoFitCheck: 0, autoFitDueMs: null, autoFitFromMs: null, autoFitDueReached: false, periodFit: null, rollups: null, rollupsSince: 0, historySinceAnnounced: true }),
     );
   return m;
 }
@@ -130,9 +138,10 @@ async function loadInputs(pc: PipelineContext, q: Queryable, unitId: string, mem
     mem.baselines = (await listBaselines(q, unitId)).reverse();
     const stamp = await driftStateStamp(q, unitId);
     const replacements = await probeReplacements(q, unitId);
+    const periods = await periodEvents(q, unitId);
     if (stamp !== mem.driftStamp) mem.driftStates = null;
     mem.driftStamp = stamp;
-    mem.inputs = { unitId, versions, baseline: null, driftChambers: [], driftThermocouples: [], raise: pc.raise, hold: pc.hold, settings: pc.config.worker, replacements };
+    mem.inputs = { unitId, versions, baseline: null, driftChambers: [], driftThermocouples: [], raise: pc.raise, hold: pc.hold, settings: pc.config.worker, replacements, periods };
     mem.baselineVersion = -1;
     mem.inputsLoadedAt = now - jitter;
   }
@@ -197,6 +206,7 @@ function sliceRings(rings: RingColumns, n: number): RingColumns {
     exhaustC: rings.exhaustC.slice(0, n),
     fuelFlowKgS: rings.fuelFlowKgS.subarray(0, n),
     flameDetected: rings.flameDetected.subarray(0, n),
+    ...(rings.mode ? { mode: rings.mode.slice(0, n) } : {}),
   };
 }
 
@@ -258,6 +268,7 @@ export async function analyseGroup(
           mem.autoFitDueMs = null;
           mem.autoFitFromMs = null;
           mem.autoFitDueReached = false;
+          mem.periodFit = null;
           pc.logger.info(
             { unitId: id, from: Number.isFinite(r.pointMs) ? new Date(r.pointMs).toISOString() : 'first ring', to: new Date(p.reanalysisToMs as number).toISOString(), alertsRemoved: r.removedAlerts, alertsSetAside: r.setAsideAlerts },
             'rings to be judged again',
@@ -340,6 +351,28 @@ export async function analyseGroup(
             n = k;
             mem.autoFitDueReached = true;
           }
+        }
+        // A batch starts and stays within one baseline period (work on the machine starts a new
+        // one), and, on a baseline from before the work, stops at the ring time the new one falls
+        // due, so the fit comes there (index.ts) and later rings are judged with it.
+        const periods = inForce.inputs.periods ?? [];
+        if (periods.length) {
+          let next = Infinity;
+          for (const e of periods) if (e.atMs > rings.tsMs[0] && e.atMs < next) next = e.atMs;
+          n = countBefore(rings, n, next);
+          const b = inForce.inputs.baseline;
+          const period = b ? baselinePeriodAt(periods, rings.tsMs[0]) : null;
+          const standing = b && period ? baselineStanding(period, Date.parse(b.window.from), pc.config.worker.baselineAutoDays) : null;
+          if (period && standing && standing.state === 'superseded') {
+            if (!mem.periodFit || mem.periodFit.fromMs !== period.fromMs) mem.periodFit = { fromMs: period.fromMs, dueMs: standing.fitDueMs as number, reached: false };
+            if (rings.tsMs[0] < mem.periodFit.dueMs) {
+              const k = countBefore(rings, n, mem.periodFit.dueMs);
+              if (k < n) {
+                n = k;
+                mem.periodFit.reached = true;
+              }
+            }
+          } else mem.periodFit = null;
         }
         // Rings judged again (up to where the re-analysis began) go in batches of their own.
         const rerun = p.reanalysisToMs !== null && rings.tsMs[0] <= p.reanalysisToMs;

@@ -22,6 +22,8 @@ import type { ConfigVersionRecord } from '../db/units.ts';
 import { ReadingsWindow, RecentCodes, SteadyWindow } from './windows.ts';
 import type { ProbeReplacement } from '../db/events.ts';
 import { ProbeOffsets, type LearntOffset } from './probe-offsets.ts';
+import { baselineForMode, ModeTracker, type ModalBaseline } from '../core/modes.ts';
+import { baselinePeriodAt, baselineStanding, chambersReached, NEW_PERIOD_KINDS, type BaselinePeriod, type PeriodEvent } from '../core/baseline-periods.ts';
 
 export interface AnalyserInputs {
   unitId: string;
@@ -36,6 +38,29 @@ export interface AnalyserInputs {
   settings: WorkerConfig;
   /** Thermocouple replacements (maintenance events), oldest first; none when left out. */
   replacements?: ProbeReplacement[];
+  /**
+   * Maintenance events that start a new baseline period (fuel nozzles worked on, a combustion
+   * inspection, combustor tuning), oldest first; none when left out.
+   */
+  periods?: PeriodEvent[];
+}
+
+/**
+ * How the rings of one stretch of ring time stand to the baseline judging them (no event
+ * between fromMs and untilMs): superseded by work on the machine, with the caution and the
+ * drift inputs left after the work (the chambers concerned, and every thermocouple, whose
+ * drift restarts), or current.
+ */
+export interface PeriodStanding {
+  fromMs: number;
+  untilMs: number;
+  period: BaselinePeriod | null;
+  /** Null when the baseline is current. */
+  caution: string | null;
+  /** Ring time an automatic fit from the period falls due; null when current. */
+  fitDueMs: number | null;
+  driftChambers: (ChamberDriftInput | null)[];
+  driftThermocouples: (ChamberDriftInput | null)[];
 }
 
 export interface RingResult {
@@ -89,6 +114,91 @@ export class UnitAnalyser {
   alertsIdle = false;
   private readonly steadyOptions: SteadyStateOptions;
   private probeOffsets: ProbeOffsets | null = null;
+  private standingCache: PeriodStanding | null = null;
+  /** The combustion mode ring by ring, and whether a ring is inside a transfer (core/modes.ts). */
+  private modes: ModeTracker;
+  private modeBaseline: { source: UnitBaseline | null; mode: string | null; baseline: UnitBaseline | null; caution: string | null } | null = null;
+
+  /** The baseline judging rings of `mode` (its own, or the all-mode one with a caution). */
+  private baselineOf(mode: string | null): { baseline: UnitBaseline | null; caution: string | null } {
+    const src = this.inputs.baseline;
+    const c = this.modeBaseline;
+    if (c && c.source === src && c.mode === mode) return c;
+    const r = baselineForMode(src as ModalBaseline | null, mode);
+    this.modeBaseline = { source: src, mode, ...r };
+    return this.modeBaseline;
+  }
+
+  private unitThresholds: { raise: Thresholds; hold: Thresholds } | null = null;
+  /** Thresholds of a mode whose unit configuration sets its own spread limit. */
+  private modeThresholds: { key: string; raise: Thresholds; hold: Thresholds } | null = null;
+  private thresholdsOf(cfg: { modes?: Record<string, { spreadLimitC?: number }> }, mode: string | null): { raise: Thresholds; hold: Thresholds } {
+    const limit = mode === null ? undefined : cfg.modes?.[mode]?.spreadLimitC;
+    if (limit === undefined) {
+      const d = this.unitThresholds;
+      if (d && d.raise === this.inputs.raise && d.hold === this.inputs.hold) return d;
+      return (this.unitThresholds = { raise: this.inputs.raise, hold: this.inputs.hold });
+    }
+    const key = `${mode}|${limit}`;
+    const c = this.modeThresholds;
+    if (c && c.key === key && c.raise.spreadMarginDegC === this.inputs.raise.spreadMarginDegC) return c;
+    // The mode's limit in place of the learnt one: floor, ceiling and default all at it; the
+    // hold level keeps its deadband below the raise level.
+    const fixed = (t: Thresholds, at: number): Thresholds => ({ ...t, spreadDefaultLimitDegC: at, spreadLimitFloorDegC: at, spreadLimitCeilingDegC: at });
+    const band = this.inputs.raise.spreadDefaultLimitDegC - this.inputs.hold.spreadDefaultLimitDegC;
+    this.modeThresholds = { key, raise: fixed(this.inputs.raise, limit), hold: fixed(this.inputs.hold, limit - band) };
+    return this.modeThresholds;
+  }
+
+  /**
+   * The baseline period in force at tsMs and how the baseline judging the rings stands in it
+   * (core/baseline-periods.ts). Kept for the stretch of ring time up to the next event, so a
+   * ring costs a comparison.
+   */
+  standingAt(tsMs: number): PeriodStanding {
+    const c = this.standingCache;
+    if (c && tsMs >= c.fromMs && tsMs < c.untilMs) return c;
+    const events = (this.inputs.periods ?? []).filter((e) => (NEW_PERIOD_KINDS as readonly string[]).includes(e.kind));
+    let fromMs = -Infinity;
+    let untilMs = Infinity;
+    for (const e of events) {
+      if (e.atMs <= tsMs) fromMs = Math.max(fromMs, e.atMs);
+      else untilMs = Math.min(untilMs, e.atMs);
+    }
+    const b = this.inputs.baseline;
+    const period = baselinePeriodAt(events, tsMs);
+    const st = baselineStanding(period, b ? Date.parse(b.window.from) : null, this.inputs.settings.baselineAutoDays);
+    let driftChambers = this.inputs.driftChambers;
+    let driftThermocouples = this.inputs.driftThermocouples;
+    if (b && period && st.state === 'superseded') {
+      // A change since the work is the work's: the chambers concerned and their neighbours (all,
+      // for the whole unit) and the thermocouples are not judged for drift until the new fit.
+      const n = this.inputs.versions.reduce((mx, v) => Math.max(mx, v.config.chambers.count), 0);
+      const reached = chambersReached(period.chambers, n);
+      driftChambers = driftChambers.map((d, k) => (reached.includes(k + 1) ? null : d));
+      driftThermocouples = driftThermocouples.map(() => null);
+    }
+    const out: PeriodStanding = { fromMs, untilMs, period, caution: b ? st.caution : null, fitDueMs: b ? st.fitDueMs : null, driftChambers, driftThermocouples };
+    this.standingCache = out;
+    return out;
+  }
+
+  /** Findings of a mode judged on the all-mode baseline: said so, in their evidence. */
+  private withModeCaution(findings: Finding[], caution: string): Finding[] {
+    if (findings.length === 0) return findings;
+    return findings.map((f) => ({ ...f, evidence: { ...f.evidence, modeCaution: caution } }));
+  }
+
+  /** Findings judged on a baseline from before the work: said so, in their evidence and message. */
+  private withCaution(findings: Finding[], s: PeriodStanding): Finding[] {
+    if (s.caution === null || findings.length === 0) return findings;
+    const when = new Date(s.period!.fromMs).toISOString();
+    return findings.map((f) => ({
+      ...f,
+      evidence: { ...f.evidence, baselineCaution: s.caution, workAt: when },
+      message: `${f.message} (Judged on the baseline from before the work of ${when}; a new baseline is fitted after it.)`,
+    }));
+  }
 
   private buildProbeOffsets(): void {
     const r = this.inputs.replacements ?? [];
@@ -107,6 +217,7 @@ export class UnitAnalyser {
     this.steadyWindow = new SteadyWindow(this.steadyWindowS);
     this.readingsWindow = new ReadingsWindow(this.windowMs, WINDOW_TEST_RINGS);
     this.recentCodes = new RecentCodes(inputs.settings.recentRings, MAX_M, VALIDITY.isolated_outlier, VALIDITY.missing);
+    this.modes = new ModeTracker(this.steadyWindowS * 1000);
   }
 
   /** New baseline, drift state or configuration versions; the memory of recent rings is kept. */
@@ -116,6 +227,7 @@ export class UnitAnalyser {
     const events = (i: AnalyserInputs) => `${i.baseline?.version ?? 0}|` + (i.replacements ?? []).map((r) => `${r.eventId}/${r.thermocouple}@${r.atMs}`).join(',');
     const eventsChanged = events(inputs) !== events(this.inputs);
     this.inputs = inputs;
+    this.standingCache = null;
     if (eventsChanged) this.buildProbeOffsets();
     if (changed) {
       this.contexts.clear();
@@ -210,6 +322,7 @@ export class UnitAnalyser {
       const { ctx } = this.context(t);
       const load = correctedLoadFraction(rings.loadMw[j], rings.ambientC[j], rings.ambientKPa[j], ctx.config);
       this.pushLoad(t / 1000, load);
+      this.modes.push(t, rings.mode ? rings.mode[j] : null);
       const inService = this.inService(rings.speedPct[j], load);
       this.pushReadings(t, rings.exhaustC[j], load, inService);
       if (inService) this.refreshVerdicts(ctx.m);
@@ -229,7 +342,11 @@ export class UnitAnalyser {
     const speed = rings.speedPct[j];
     const readings = rings.exhaustC[j];
     this.pushLoad(tsMs / 1000, load);
-    const st = this.steadyWindow.steadyAt(speed, tsMs / 1000, this.steadyOptions);
+    // A change of combustion mode is a transient: the rings of the transfer are not steady, and
+    // findings are held through it (no observation: the alert rules keep what they have).
+    const transfer = this.modes.push(tsMs, rings.mode ? rings.mode[j] : null);
+    const st0 = this.steadyWindow.steadyAt(speed, tsMs / 1000, this.steadyOptions);
+    const st = transfer && st0.steady ? { ...st0, steady: false } : st0;
     const inService = this.inService(speed, load);
     this.pushReadings(tsMs, readings, load, inService);
     if (inService) this.refreshVerdicts(ctx.m);
@@ -239,7 +356,10 @@ export class UnitAnalyser {
     const validity = a.validity;
     this.recentCodes.push(validity);
 
-    const b = this.inputs.baseline;
+    // The baseline of the ring's mode (a unit without modes: the unit's baseline).
+    const mb = this.baselineOf(this.modes.mode);
+    const b = mb.baseline;
+    const th = this.thresholdsOf(cfg, this.modes.mode);
     // Residuals against the baseline at this load: each thermocouple's deviation less its own
     // normal, and the chamber map of that pattern (chamberResidualsFromThermocouples). Findings
     // judge every ring in service by them; the stored analysis keeps them for steady rings.
@@ -261,22 +381,31 @@ export class UnitAnalyser {
     const chamberRes = res ? res.chamberDegC : null;
     const tcResidual = st.steady ? tcRes : null;
     const chamberResidual = st.steady && tcRes ? (chamberRes ?? new Float64Array(ctx.n).fill(NaN)) : null;
-    const limit = spreadLimitDegC(b, load, this.inputs.raise);
+    const limit = spreadLimitDegC(b, load, th.raise);
 
     let raise: Finding[] | null = null;
     let hold: Finding[] | null = null;
-    if (inService) {
+    if (inService && !transfer) {
       const history = {
         previousSteadySpreadDegC: this.prevSteadySpread,
         recentOutlierCounts: views.outliers,
         recentMissingCounts: views.missing,
         windowVerdicts: this.verdicts,
       };
-      const drift = { chambers: this.inputs.driftChambers, thermocouples: this.inputs.driftThermocouples };
+      const standing = this.standingAt(tsMs);
+      const drift = { chambers: standing.driftChambers, thermocouples: standing.driftThermocouples };
       const plumeShare = { left: ctx.responseLeft, right: ctx.responseRight };
-      raise = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.raise, temperatureUnit: cfg.temperatureUnit });
+      raise = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: th.raise, temperatureUnit: cfg.temperatureUnit });
       if (raise.length > 0) this.alertsIdle = false;
-      hold = this.alertsIdle ? [] : evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.hold, temperatureUnit: cfg.temperatureUnit });
+      hold = this.alertsIdle ? [] : evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: th.hold, temperatureUnit: cfg.temperatureUnit });
+      if (standing.caution !== null) {
+        raise = this.withCaution(raise, standing);
+        hold = this.withCaution(hold, standing);
+      }
+      if (mb.caution !== null) {
+        raise = this.withModeCaution(raise, mb.caution);
+        hold = this.withModeCaution(hold, mb.caution);
+      }
     }
     // A spread jump is a change between consecutive steady rings: a ring that is not steady (a
     // start, a stop, a load change) ends the comparison, so the first steady ring after it is not

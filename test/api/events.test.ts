@@ -19,6 +19,8 @@ beforeAll(async () => {
     tsMs: T0 + i * MIN, loadFraction: 0.8, spreadC: 25, spreadLimitC: 40, validity: Array(18).fill(0), tcDeviationC: Array(18).fill(0),
     chamberDeviationC: Array(10).fill(0), chamberResidualC: Array(10).fill(0), swirlDeg: 60, baselineVersion: 1,
   })));
+  // Analysis has come up to the last of those rings.
+  await t.db.pool.query(`UPDATE analysis_progress SET watermark_ts = $1 WHERE unit_id = 'ev-1'`, [new Date(T0 + 119 * MIN)]);
 });
 afterAll(async () => t.close());
 
@@ -29,12 +31,16 @@ describe('maintenance events', () => {
     const e = r.json();
     expect(e).toMatchObject({ unitId: 'ev-1', kind: 'thermocouple_replaced', at: new Date(T0 + 30 * MIN).toISOString(), thermocouples: [7], chambers: null, by: 'instrument technician', learntOffsetsC: {} });
     expect(e.effect).toContain('learnt again from the 30 steady rings');
-    // Rings after it were analysed already.
-    expect(e.effect).toContain('keep their analysis until they are analysed again');
+    // Rings after it were analysed already: they are judged again from its time.
+    expect(e.effect).toContain('the rings from then on are judged again with it');
+    const asked = await t.db.pool.query(`SELECT reanalyse_from FROM analysis_progress WHERE unit_id = 'ev-1'`);
+    expect((asked.rows[0].reanalyse_from as Date).getTime()).toBe(T0 + 30 * MIN);
     const wash = await post({ kind: 'compressor_wash', at: new Date(T0 + 90 * MIN).toISOString(), by: 'shift operator 1' });
     expect(wash.statusCode).toBe(201);
     const nozzles = await post({ kind: 'nozzles_worked', at: new Date(T0 + 100 * MIN).toISOString(), by: 'combustion engineer', chambers: [4, 4, 3] });
     expect(nozzles.json().chambers).toEqual([3, 4]);
+    expect(nozzles.json().effect).toContain('A new baseline period starts');
+    expect(nozzles.json().effect).toContain('chambers 3, 4');
   });
 
   it('refuses what does not fit the unit, naming the field', async () => {

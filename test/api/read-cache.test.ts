@@ -68,7 +68,7 @@ describe('the status statement', () => {
         progress: await analysisProgress(t.db.pool, unitId),
         alerts: await listActiveAlerts(t.db.pool, unitId, { now: new Date(now) }),
         starts: counters,
-        baseline: await baselineOutlook(t.db.pool, unitId).then((o) => ({ version: o!.version, firstSteadyMs: o!.firstSteadyMs, pendingRequest: o!.pendingRequest })),
+        baseline: await baselineOutlook(t.db.pool, unitId).then((o) => ({ version: o!.version, firstSteadyMs: o!.firstSteadyMs, pendingRequest: o!.pendingRequest, inForceFromMs: o!.inForceFromMs, periods: o!.periods })),
         snapshot: '',
         changesAtMs: null,
       }, t.config.worker);

@@ -3,7 +3,8 @@
  * stands in it. Every expected value is worked by hand from the events given.
  */
 import { describe, expect, it } from 'vitest';
-import { baselinePeriodAt, baselineStanding } from '../../services/core/baseline-periods.ts';
+import { baselinePeriodAt, baselineStanding, chambersReached } from '../../services/core/baseline-periods.ts';
+import { judgement } from '../../services/core/judgement.ts';
 
 const DAY = 86_400_000;
 const events = [
@@ -30,5 +31,21 @@ describe('baseline periods', () => {
     expect(baselineStanding(p, 11 * DAY, 14)).toEqual({ state: 'current', fitDueMs: null, caution: null });
     expect(baselineStanding(null, 0, 14).state).toBe('current');
     expect(baselineStanding(p, null, 14).state).toBe('superseded');
+  });
+
+  it('work on a chamber reaches its two neighbours round the ring (worked by hand for a ring of 10)', () => {
+    expect(chambersReached([4], 10)).toEqual([3, 4, 5]);
+    expect(chambersReached([1], 10)).toEqual([1, 2, 10]);
+    expect(chambersReached([10, 4], 10)).toEqual([1, 3, 4, 5, 9, 10]);
+    expect(chambersReached(null, 4)).toEqual([1, 2, 3, 4]);
+  });
+
+  it('the status says so while the baseline in force predates the work, and not once one is learnt after it', () => {
+    const base = { unitId: 'u', ringsStored: 10, ringsAnalysed: 10, latest: null, baselineVersion: 1, firstSteadyMs: null, pendingRequest: null, baselineAutoDays: 14, periods: events };
+    const during = judgement({ ...base, watermarkMs: 16 * DAY, baselineInForceFromMs: 0 });
+    expect(during.baselineCaution).toContain('due at ' + new Date(24 * DAY).toISOString());
+    expect(during.notJudged.some((x) => x.part === 'baseline' && x.reason.includes('not drift'))).toBe(true);
+    expect(judgement({ ...base, watermarkMs: 16 * DAY, baselineInForceFromMs: 10 * DAY }).baselineCaution).toBeNull();
+    expect(judgement({ ...base, watermarkMs: 7 * DAY, baselineInForceFromMs: 0 }).baselineCaution).toBeNull();
   });
 });

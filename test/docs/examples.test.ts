@@ -157,7 +157,7 @@ async function record(): Promise<Record<string, Example>> {
     await call('PATCH /v1/units/:unitId', { method: 'PATCH', url: `/v1/units/${UNIT}`, payload: { name: 'Brackwater unit 2 (peaking)' } });
     const early = now - 10 * DAY;
     const ringAt = (ms: number) => ({ ts: new Date(ms).toISOString().replace('.000Z', 'Z'), loadMw: 25.8, ambientC: 11.5, ambientKPa: 100.6, speedPct: 100, exhaustC: ring(5, 0.82, 26) });
-    await call('POST /v1/units/:unitId/rings', { method: 'POST', url: `/v1/units/${UNIT}/rings`, key: t.keys.ingest, payload: { rings: [ringAt(early), ringAt(early + MIN)] } });
+    await call('POST /v1/units/:unitId/rings', { method: 'POST', url: `/v1/units/${UNIT}/rings`, key: t.keys.ingest, payload: { rings: [ringAt(early), { ...ringAt(early + MIN), mode: 'premix' }] } });
     const lines = [ringAt(early + 2 * MIN), ringAt(early + 3 * MIN)].map((r) => JSON.stringify({ unitId: UNIT, ...r })).join('\n') + '\n';
     await call('POST /v1/rings', { method: 'POST', url: '/v1/rings', key: t.keys.ingest, headers: { 'content-type': 'application/x-ndjson' }, payload: lines });
     const endMs = await seed(t, now);

@@ -12,10 +12,11 @@ import type { FastifyInstance } from 'fastify';
 import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
 import { Type } from 'typebox';
 import { createEventsRepository, type EventKind, type MaintenanceEvent } from '../../db/events.ts';
+import { NEW_PERIOD_KINDS } from '../../core/baseline-periods.ts';
 import { notFound, unprocessable } from '../../http/errors.ts';
 import { ErrorReply } from '../../http/schemas.ts';
 import { UnitParams } from '../schemas.ts';
-import { DAY_MS, Window, readsOf, timeWindow, unitOr404 } from './read-common.ts';
+import { DAY_MS, Window, timeWindow, unitOr404 } from './read-common.ts';
 
 const Nullable = <T extends Parameters<typeof Type.Union>[0][number]>(t: T) => Type.Union([t, Type.Null()]);
 
@@ -69,19 +70,21 @@ const EventParams = Type.Object({ ...UnitParams.properties, eventId: Type.String
 const errors = { 400: ErrorReply, 401: ErrorReply, 403: ErrorReply, 404: ErrorReply, 422: ErrorReply };
 
 /** What recording an event does, in words, for the reply. */
-function effectOf(e: MaintenanceEvent, probeOffsetRings: number, analysedToMs: number | null): string {
+function effectOf(e: MaintenanceEvent, probeOffsetRings: number, baselineAutoDays: number, reanalysed: boolean): string {
+  const where = e.chambers ? `chamber${e.chambers.length > 1 ? 's' : ''} ${e.chambers.join(', ')}` : 'the whole unit';
   const what =
     e.kind === 'thermocouple_replaced'
       ? `The offset of thermocouple${e.thermocouples!.length > 1 ? 's' : ''} ${e.thermocouples!.join(', ')} is learnt again from the ${probeOffsetRings} steady rings after ${e.at} and taken off ${e.thermocouples!.length > 1 ? 'their' : 'its'} residual; no step finding is raised for it, and its drift restarts.`
-      : 'The event is drawn on the trend pictures and listed in the pre-outage review.';
-  const past = analysedToMs !== null && Date.parse(e.at) <= analysedToMs ? ' Rings already analysed after it keep their analysis until they are analysed again.' : '';
+      : (NEW_PERIOD_KINDS as readonly string[]).includes(e.kind)
+        ? `A new baseline period starts at ${e.at} for ${where}: a baseline is fitted automatically from the steady rings of the ${baselineAutoDays} days after it; until then the rings are judged on the baseline from before the work with a caution, not as drift, and the drift of ${where} restarts.`
+        : 'The event is drawn on the trend pictures and listed in the pre-outage review.';
+  const past = reanalysed ? ' Analysis had passed it: the rings from then on are judged again with it.' : '';
   return what + past;
 }
 
 export async function eventRoutes(base: FastifyInstance): Promise<void> {
   const app = base.withTypeProvider<TypeBoxTypeProvider>();
   const repo = createEventsRepository(app.pool);
-  const reads = readsOf(app);
 
   app.post('/v1/units/:unitId/events', {
     schema: {
@@ -115,9 +118,9 @@ export async function eventRoutes(base: FastifyInstance): Promise<void> {
       note: b.note ?? null,
       keyId: request.principal!.keyId,
     });
-    const latest = await reads.analysisNear(unit.id, null);
-    request.log.info({ unitId: unit.id, eventId: e.id, kind: e.kind, at: e.at }, 'maintenance event recorded');
-    return reply.status(201).send({ ...e, effect: effectOf(e, app.appConfig.worker.probeOffsetRings, latest ? Date.parse(latest.ts) : null) });
+    const { reanalysed, ...event } = e;
+    request.log.info({ unitId: unit.id, eventId: e.id, kind: e.kind, at: e.at, reanalysed }, 'maintenance event recorded');
+    return reply.status(201).send({ ...event, effect: effectOf(event, app.appConfig.worker.probeOffsetRings, app.appConfig.worker.baselineAutoDays, reanalysed) });
   });
 
   app.get('/v1/units/:unitId/events', {

@@ -181,6 +181,8 @@ export async function notJudgedOf(
     baselineAutoDays: settings.baselineAutoDays,
     driftStates,
     driftSchedule: settings.driftCron,
+    baselineInForceFromMs: o?.inForceFromMs ?? null,
+    periods: o?.periods ?? [],
   });
   return { notJudged: j.notJudged, baselineDueTs: j.baselineDueMs === null ? null : new Date(j.baselineDueMs).toISOString() };
 }

@@ -89,6 +89,7 @@ export const StatusReply = Type.Object({
   starts: StartCounters,
   notJudged: NotJudgedList,
   baselineDueTs: Nullable(Type.String({ format: 'date-time', description: 'ring time at which the automatic first baseline falls due (the unit has none yet), else null' })),
+  baselineCaution: Nullable(Type.String({ description: 'fuel nozzles worked on, a combustion inspection or combustor tuning since the baseline in force was learnt: the rings are judged on the baseline from before the work, not as drift, until a new one is fitted (when, said here); null when none' })),
   caution: Type.String(),
 });
 
@@ -115,6 +116,8 @@ export function statusBody(unitId: string, st: UnitStatusState, settings: Judgem
     firstSteadyMs: st.baseline.firstSteadyMs,
     pendingRequest: st.baseline.pendingRequest,
     baselineAutoDays: settings.baselineAutoDays,
+    baselineInForceFromMs: st.baseline.inForceFromMs,
+    periods: st.baseline.periods,
   });
   const validity = a?.validity ?? [];
   return {
@@ -163,6 +166,7 @@ export function statusBody(unitId: string, st: UnitStatusState, settings: Judgem
     starts: st.starts,
     notJudged: judged.notJudged,
     baselineDueTs: judged.baselineDueMs === null ? null : new Date(judged.baselineDueMs).toISOString(),
+    baselineCaution: judged.baselineCaution,
     caution: ADVISORY_CAUTION,
   };
 }

@@ -14,7 +14,7 @@ import { unitScope } from '../../http/auth.ts';
 import { ErrorReply } from '../../http/schemas.ts';
 import { CreateUnitBody, PatchUnitBody, UnitParams, UnitReply } from '../schemas.ts';
 
-const CONFIG_KEYS = ['ratedPowerMw', 'thermocouples', 'chambers', 'swirl', 'temperatureUnit', 'view', 'correction'] as const;
+const CONFIG_KEYS = ['ratedPowerMw', 'thermocouples', 'chambers', 'swirl', 'temperatureUnit', 'view', 'correction', 'modes'] as const;
 
 export function unitReply(u: UnitRecord) {
   return {
