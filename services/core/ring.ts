@@ -73,6 +73,16 @@ export interface AnalysisOptions {
    * is 0.145, half of it is allowed, 0.0725 × 14 ≈ 1 °C).
    */
   loneSensorNoiseDegC: number;
+  /**
+   * A chamber's plume covers a thermocouple where the plume kernel (the solver's, at the ring's
+   * swirl) puts at least this share of its peak on it. A chamber that covers no valid
+   * thermocouple is not observable (its estimate is null, not a healthy 0), and a thermocouple
+   * departing alone explains the drift of the chambers that cover it only. Engineering
+   * judgement: 0.1, the edge of a plume (at the kernel's width of half a pitch, a probe one
+   * pitch from a plume's centre sees 0.135 of it, one and a half pitches 0.011): a chamber
+   * stays observable through the probe beside a failed one, not behind two adjacent failures.
+   */
+  plumeCoverResponse: number;
 }
 
 /** Defaults: engineering judgement unless stated in the field's own comment. */
@@ -89,6 +99,7 @@ export const defaultAnalysisOptions: AnalysisOptions = {
   swirlUncertaintyDeg: 8,
   loneSensorMinDegC: 6,
   loneSensorNoiseDegC: 1,
+  plumeCoverResponse: 0.1,
 };
 
 /** Options that may be given in part; nested groups are merged field by field. */
@@ -155,6 +166,8 @@ export interface UnitContext {
   readonly binCount: number;
   /** ψ at each load bin's centre, degrees. */
   readonly binSwirlDeg: Float64Array;
+  /** Per load bin, once asked for: the plume kernel's response of each chamber at each thermocouple (plumeResponseAt). */
+  readonly binResponse: (Float64Array | null)[];
   /** Solvers built so far (for inspection and tests). */
   solversBuilt: number;
   /** Current number of cached solvers. */
@@ -239,6 +252,7 @@ export function prepareUnit(config: UnitConfig, options: AnalysisOptionsInput = 
     loadMax,
     binCount,
     binSwirlDeg,
+    binResponse: new Array<Float64Array | null>(binCount).fill(null),
     solversBuilt: 0,
     cache: new Map(),
     recent: new Array<ChamberSolver | null>(binCount * RECENT_PER_BIN).fill(null),
@@ -262,6 +276,24 @@ export function loadBinOf(ctx: UnitContext, loadFraction: number): number {
 /** Load fraction at the centre of a bin. */
 export function loadOfBin(ctx: UnitContext, bin: number): number {
   return ctx.binCount === 1 ? ctx.loadMin : Math.min(ctx.loadMin + bin * ctx.options.loadBinWidth, ctx.loadMax);
+}
+
+/**
+ * The plume kernel's response of every chamber at every thermocouple at a load: M × N row-major,
+ * element i·N + k is how much of chamber k's plume (relative to its peak) thermocouple i sees at
+ * the swirl of the load's bin. Built once per bin and kept; do not modify.
+ */
+export function plumeResponseAt(ctx: UnitContext, loadFraction: number): Float64Array {
+  const bin = loadBinOf(ctx, loadFraction);
+  let r = ctx.binResponse[bin];
+  if (!r) {
+    const { m, n } = ctx;
+    r = new Float64Array(m * n);
+    const shift = ctx.config.swirl.sense * ctx.binSwirlDeg[bin];
+    for (let i = 0; i < m; i++) for (let k = 0; k < n; k++) r[i * n + k] = plumeKernel(ctx.tcAnglesDeg[i] - ctx.chamberAnglesDeg[k] - shift, ctx.kernel);
+    ctx.binResponse[bin] = r;
+  }
+  return r;
 }
 
 /** The chamber solver for (bin, usable mask): from the recent slots, the cache, or built anew. */

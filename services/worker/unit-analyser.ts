@@ -6,7 +6,7 @@
  * rebuilds it from stored rings and analysis after a restart or a takeover and the next ring
  * is analysed exactly as it would have been without the interruption. No I/O here.
  */
-import { analyseRing, baselineResidualsInto, createResidualBuffers, prepareUnit, type BaselineResiduals, type ResidualBuffers, type UnitContext } from '../core/ring.ts';
+import { analyseRing, baselineResidualsInto, createResidualBuffers, plumeResponseAt, prepareUnit, type BaselineResiduals, type ResidualBuffers, type UnitContext } from '../core/ring.ts';
 import { chamberScatterInto, worstChamberVerdict, type ChamberFindingRef, type WorstChamberVerdict } from '../core/worst-chamber.ts';
 import type { UnitBaseline } from '../core/baseline.ts';
 import { correctedLoadFraction, defaultSteadyStateOptions, type SteadyStateOptions } from '../core/correction.ts';
@@ -273,7 +273,7 @@ export class UnitAnalyser {
         windowVerdicts: this.verdicts,
       };
       const drift = { chambers: this.inputs.driftChambers, thermocouples: this.inputs.driftThermocouples };
-      const plumeShare = { left: ctx.responseLeft, right: ctx.responseRight };
+      const plumeShare = { left: ctx.responseLeft, right: ctx.responseRight, response: plumeResponseAt(ctx, load), coverResponse: ctx.options.plumeCoverResponse };
       raise = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.raise, temperatureUnit: cfg.temperatureUnit });
       if (raise.length > 0) this.alertsIdle = false;
       hold = this.alertsIdle ? [] : evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.hold, temperatureUnit: cfg.temperatureUnit });
