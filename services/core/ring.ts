@@ -321,7 +321,7 @@ export function solverFor(ctx: UnitContext, bin: number, usable: Uint8Array, mas
     ctx.cache.set(key, solver);
   } else {
     const shift = ctx.config.swirl.sense * ctx.binSwirlDeg[bin];
-    solver = buildChamberSolver(ctx.tcAnglesDeg, ctx.chamberAnglesDeg, shift, usable, ctx.kernel, ctx.options.ridgeFraction);
+    solver = buildChamberSolver(ctx.tcAnglesDeg, ctx.chamberAnglesDeg, shift, usable, ctx.kernel, ctx.options.ridgeFraction, ctx.options.plumeCoverResponse);
     solver.bin = bin;
     ctx.solversBuilt++;
     ctx.cache.set(key, solver);
@@ -402,18 +402,18 @@ export function analyseRing(
   estimateChambers(solver, values, centre, ctx.options.residualFloorDegC, ctx.scratch, ctx.fit, out);
   let worst = -1;
   let worstAbs = -1;
-  let cold = 0;
-  let hot = 0;
+  let cold = -1;
+  let hot = -1;
   const dev = out.chamberDeviationDegC;
   for (let k = 0; k < n; k++) {
     const v = dev[k];
-    if (!(v === v)) continue;
+    if (!(v === v)) continue; // not observable
     if (Math.abs(v) > worstAbs) {
       worstAbs = Math.abs(v);
       worst = k;
     }
-    if (v < dev[cold]) cold = k;
-    if (v > dev[hot]) hot = k;
+    if (cold < 0 || v < dev[cold]) cold = k;
+    if (hot < 0 || v > dev[hot]) hot = k;
   }
   if (worst < 0) {
     clearChambers(out, n);
@@ -442,6 +442,40 @@ function clearChambers(out: RingAnalysis, n: number): void {
   out.runnerUpLikelihood = NaN;
   out.coldestChamber = null;
   out.hottestChamber = null;
+}
+
+/** Why a chamber has no estimate, in the words the API, the pictures and the review use. */
+export const NOT_OBSERVABLE = {
+  tooFewProbes: 'not observable: too few valid thermocouples to map the chambers',
+  noProbeUnderPlume: 'not observable: no valid thermocouple under its plume at this load',
+} as const;
+
+/**
+ * Why chamber k (from 0) of an analysis has no estimate, null when it has one: every chamber
+ * without one (too few valid thermocouples for a map), or this one alone (its plume covers no
+ * valid thermocouple at the ring's swirl, AnalysisOptions.plumeCoverResponse). Reads the stored
+ * form as well (null for NaN).
+ */
+export function chamberNotObservableReason(chamberDeviationDegC: ArrayLike<number | null>, k: number): string | null {
+  const v = chamberDeviationDegC[k];
+  if (typeof v === 'number' && Number.isFinite(v)) return null;
+  for (let j = 0; j < chamberDeviationDegC.length; j++) {
+    const w = chamberDeviationDegC[j];
+    if (typeof w === 'number' && Number.isFinite(w)) return NOT_OBSERVABLE.noProbeUnderPlume;
+  }
+  return NOT_OBSERVABLE.tooFewProbes;
+}
+
+/** Chambers (numbered from 1) of an analysis with no estimate while others have one: blind behind failed probes. */
+export function blindChambers(chamberDeviationDegC: ArrayLike<number | null>): number[] {
+  const out: number[] = [];
+  let any = false;
+  for (let k = 0; k < chamberDeviationDegC.length; k++) {
+    const v = chamberDeviationDegC[k];
+    if (typeof v === 'number' && Number.isFinite(v)) any = true;
+    else out.push(k + 1);
+  }
+  return any ? out : [];
 }
 
 /** A deep copy of an analysis result (typed arrays copied). */
@@ -474,7 +508,8 @@ export interface RingAnalysisJson {
   coverage: Coverage;
   invalid: { thermocouple: number; reason: ValidityReason }[];
   deviationDegC: (number | null)[];
-  chambers: { chamber: number; deviationDegC: number | null; uncertaintyDegC: number | null }[];
+  /** observable false: deviation and uncertainty are null and notObservableReason says why. */
+  chambers: { chamber: number; deviationDegC: number | null; uncertaintyDegC: number | null; observable: boolean; notObservableReason: string | null }[];
   ringLevelDegC: number | null;
   fitResidualSdDegC: number | null;
   worstChamber: number | null;
@@ -492,7 +527,10 @@ export function ringAnalysisToJson(a: RingAnalysis): RingAnalysisJson {
   const invalid: { thermocouple: number; reason: ValidityReason }[] = [];
   for (let i = 0; i < a.thermocoupleCount; i++) if (a.validity[i] !== VALIDITY.valid) invalid.push({ thermocouple: i + 1, reason: VALIDITY_REASONS[a.validity[i]] });
   const chambers = [];
-  for (let k = 0; k < a.chamberCount; k++) chambers.push({ chamber: k + 1, deviationDegC: num(a.chamberDeviationDegC[k]), uncertaintyDegC: num(a.chamberUncertaintyDegC[k]) });
+  for (let k = 0; k < a.chamberCount; k++) {
+    const why = chamberNotObservableReason(a.chamberDeviationDegC, k);
+    chambers.push({ chamber: k + 1, deviationDegC: num(a.chamberDeviationDegC[k]), uncertaintyDegC: why ? null : num(a.chamberUncertaintyDegC[k]), observable: why === null, notObservableReason: why });
+  }
   const s = a.spread;
   return {
     loadFraction: num(a.loadFraction),
