@@ -171,7 +171,7 @@ export interface FindingInput {
   residuals?: Pick<BaselineResiduals, 'thermocoupleDegC' | 'chamberDegC' | 'chamberUncertaintyDegC' | 'lone'> & Partial<Pick<BaselineResiduals, 'chamberCommonModeDegC'>> | null;
   /**
    * The plume kernel's response at each thermocouple's left and right neighbour, relative to
-   * its peak (UnitContext.responseLeft / responseRight): how much of a chamber's plume peaking
+   * its peak, for the narrowest plume allowed for (UnitContext.loneShareLeft / loneShareRight): how much of a chamber's plume peaking
    * on a thermocouple its neighbours must see. With it, a departure that stays on one
    * thermocouple is reported as that sensor's, not as a chamber's.
    */

@@ -83,6 +83,31 @@ export interface AnalysisOptions {
    * stays observable through the probe beside a failed one, not behind two adjacent failures.
    */
   plumeCoverResponse: number;
+  /**
+   * The narrowest true plume the lone-probe test allows for, σ as a fraction of the chamber
+   * pitch: how much of a chamber's plume peaking on a probe its neighbours must see is read off
+   * a kernel this wide (or the solver's, if narrower). Real mixing differs from the solver's
+   * kernel by tens of per cent; with the solver's own width a narrower real plume (its crest
+   * probe's neighbours seeing less than the kernel says) passed for a sensor. Engineering
+   * judgement: 0.3 (the solver's 0.5 less 40 %).
+   */
+  loneSensorNarrowestPlumeFraction: number;
+  /**
+   * A probe this far from its normal, alone, is not taken for a sensor, °C: a lost flame under a
+   * narrow plume sits on one probe by 100–250 °C (the simulator's flame loss: about 200 °C),
+   * while a sensor failing that far while still in range is rare (open circuits and broken
+   * junctions read out of range); the chamber map names the chamber instead. Engineering
+   * judgement: 80 °C, the default critical level of a cold chamber (findings.ts).
+   */
+  loneSensorMaxDegC: number;
+  /**
+   * Departures smaller than this share of the ring's largest are not judged by the lone-probe
+   * test: a lost flame moves every probe's residual by a few degrees (the corrected load and the
+   * ring's centre move with it), enough for a flank probe to look alone beside a 250 °C plume.
+   * A lone probe beside a chamber's plume of comparable depth (a nozzle plugging elsewhere) is
+   * still judged. Engineering judgement: 0.25.
+   */
+  loneSensorMinShareOfLargest: number;
 }
 
 /** Defaults: engineering judgement unless stated in the field's own comment. */
@@ -100,6 +125,9 @@ export const defaultAnalysisOptions: AnalysisOptions = {
   loneSensorMinDegC: 6,
   loneSensorNoiseDegC: 1,
   plumeCoverResponse: 0.1,
+  loneSensorNarrowestPlumeFraction: 0.3,
+  loneSensorMaxDegC: 80,
+  loneSensorMinShareOfLargest: 0.25,
 };
 
 /** Options that may be given in part; nested groups are merged field by field. */
@@ -161,6 +189,9 @@ export interface UnitContext {
   /** Kernel response at the left / right neighbour's angle for a plume centred on each thermocouple. */
   readonly responseLeft: Float64Array;
   readonly responseRight: Float64Array;
+  /** The same for the narrowest plume the lone-probe test allows for (AnalysisOptions.loneSensorNarrowestPlumeFraction). */
+  readonly loneShareLeft: Float64Array;
+  readonly loneShareRight: Float64Array;
   readonly loadMin: number;
   readonly loadMax: number;
   readonly binCount: number;
@@ -227,9 +258,14 @@ export function prepareUnit(config: UnitConfig, options: AnalysisOptionsInput = 
   const kernel: KernelSpec = { shape: opts.kernel, widthDeg: opts.plumeWidthFraction * pitch };
   const responseLeft = new Float64Array(m);
   const responseRight = new Float64Array(m);
+  const loneShareLeft = new Float64Array(m);
+  const loneShareRight = new Float64Array(m);
+  const narrow: KernelSpec = { shape: opts.kernel, widthDeg: Math.min(opts.plumeWidthFraction, opts.loneSensorNarrowestPlumeFraction) * pitch };
   for (let i = 0; i < m; i++) {
     responseLeft[i] = m > 1 ? plumeKernel(arcDistanceDeg(tc[i], tc[(i - 1 + m) % m]), kernel) : 0;
     responseRight[i] = m > 1 ? plumeKernel(arcDistanceDeg(tc[i], tc[(i + 1) % m]), kernel) : 0;
+    loneShareLeft[i] = m > 1 ? plumeKernel(arcDistanceDeg(tc[i], tc[(i - 1 + m) % m]), narrow) : 0;
+    loneShareRight[i] = m > 1 ? plumeKernel(arcDistanceDeg(tc[i], tc[(i + 1) % m]), narrow) : 0;
   }
   const curve = config.swirl.curve;
   const loadMin = curve[0][0];
@@ -248,6 +284,8 @@ export function prepareUnit(config: UnitConfig, options: AnalysisOptionsInput = 
     kernel,
     responseLeft,
     responseRight,
+    loneShareLeft,
+    loneShareRight,
     loadMin,
     loadMax,
     binCount,
@@ -659,7 +697,7 @@ export function baselineResidualsInto(ctx: UnitContext, a: RingAnalysis, baselin
   const common = nf ? medianOfSorted(finite, nf) : 0;
   const apart = buf.apart;
   for (let i = 0; i < m; i++) apart[i] = tc[i] - common;
-  const found = loneThermocouple(apart, m, ctx.responseLeft, ctx.responseRight, ctx.options.loneSensorMinDegC, 0.5, ctx.options.loneSensorNoiseDegC);
+  const found = loneThermocouple(apart, m, ctx.loneShareLeft, ctx.loneShareRight, ctx.options.loneSensorMinDegC, 0.5, ctx.options.loneSensorNoiseDegC, ctx.options.loneSensorMaxDegC, ctx.options.loneSensorMinShareOfLargest);
   const lone = found ? { index: found.index, value: tc[found.index] } : null;
   let mapped: Float64Array = tc;
   if (lone) {

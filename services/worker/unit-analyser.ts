@@ -273,7 +273,7 @@ export class UnitAnalyser {
         windowVerdicts: this.verdicts,
       };
       const drift = { chambers: this.inputs.driftChambers, thermocouples: this.inputs.driftThermocouples };
-      const plumeShare = { left: ctx.responseLeft, right: ctx.responseRight, response: plumeResponseAt(ctx, load), coverResponse: ctx.options.plumeCoverResponse };
+      const plumeShare = { left: ctx.loneShareLeft, right: ctx.loneShareRight, response: plumeResponseAt(ctx, load), coverResponse: ctx.options.plumeCoverResponse };
       raise = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.raise, temperatureUnit: cfg.temperatureUnit });
       if (raise.length > 0) this.alertsIdle = false;
       hold = this.alertsIdle ? [] : evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: this.inputs.hold, temperatureUnit: cfg.temperatureUnit });
