@@ -81,8 +81,20 @@ export interface ChamberSolver {
   design: Float64Array;
   /** Solution operator, (N+1) × M row-major. */
   operator: Float64Array;
-  /** ‖row k of G‖₂: the standard error of xₖ per unit residual σ. */
+  /** ‖row k of G‖₂: the standard error of xₖ per unit residual σ (the estimator's spread alone). */
   rowNorm: Float64Array;
+  /**
+   * √ of the diagonal of the constrained normal equations' inverse, [(DᵀD + Λ | C)⁻¹]ₖₖ: the
+   * one-σ uncertainty of xₖ per unit residual σ as the fit's own conditioning gives it (the
+   * ridge read as a prior, so a chamber the probes hardly see gets about σ/√λ, not a small
+   * number from being shrunk to 0).
+   */
+  posteriorSd: Float64Array;
+  /**
+   * Per chamber (index 0 = chamber 1), 1 when its plume covers a usable thermocouple (the
+   * kernel's response there at least the solver's coverResponse), else 0: not observable.
+   */
+  observable: Uint8Array;
   /** Residual degrees of freedom: valid count − trace of the hat matrix. */
   residualDof: number;
   validCount: number;
@@ -109,6 +121,7 @@ export function buildChamberSolver(
   usable: ArrayLike<boolean | number>,
   kernel: KernelSpec,
   ridgeFraction: number,
+  coverResponse = 0,
 ): ChamberSolver {
   const m = tcAnglesDeg.length;
   const n = chamberAnglesDegArr.length;
@@ -145,6 +158,10 @@ export function buildChamberSolver(
     kkt[p * q + k] = 1;
   }
   if (validCount === 0) kkt[0] = 1; // no data: the ring level is undetermined, keep the system regular
+  // The inverse of the system (its diagonal is the fit's conditioning), before the solve destroys it.
+  const inv = new Float64Array(q * q);
+  for (let r = 0; r < q; r++) inv[r * q + r] = 1;
+  const invOk = solveInPlace(kkt.slice(), inv, q, q);
   const rhs = new Float64Array(q * m);
   for (let r = 0; r < p; r++) for (let i = 0; i < m; i++) rhs[r * m + i] = design[i * p + r];
   const ok = solveInPlace(kkt, rhs, q, m);
@@ -156,6 +173,14 @@ export function buildChamberSolver(
     let s = 0;
     for (let i = 0; i < m; i++) s += operator[r * m + i] * operator[r * m + i];
     rowNorm[r] = Math.sqrt(s);
+  }
+  const posteriorSd = new Float64Array(p);
+  for (let r = 0; r < p; r++) posteriorSd[r] = invOk ? Math.sqrt(Math.max(inv[r * q + r], 0)) : NaN;
+  const observable = new Uint8Array(n);
+  for (let k = 0; k < n; k++) {
+    let best = 0;
+    for (let i = 0; i < m; i++) if (usable[i] && design[i * p + 1 + k] > best) best = design[i * p + 1 + k];
+    observable[k] = validCount > 0 && best >= coverResponse ? 1 : 0;
   }
   let trace = 0;
   for (let i = 0; i < m; i++) for (let r = 0; r < p; r++) trace += design[i * p + r] * operator[r * m + i];
@@ -171,7 +196,7 @@ export function buildChamberSolver(
     }
   }
   return {
-    m, n, design, operator, rowNorm, residualDof: validCount - trace, validCount,
+    m, n, design, operator, rowNorm, posteriorSd, observable, residualDof: validCount - trace, validCount,
     validIndex, operatorCompact, designCompact, maskLo, maskHi, bin: -1, shiftDeg,
   };
 }
@@ -186,9 +211,12 @@ export interface ChamberEstimateOut {
 
 /**
  * Chamber estimates from valid readings: x = G·(reading − centre); residual σ from
- * RSS / residual dof (floored at residualFloorDegC); uncertainty of aₖ = σ·‖Gₖ‖.
- * values holds the readings; only the solver's valid thermocouples are read. scratchY needs
- * room for M values, scratchFit for N+1.
+ * RSS / residual dof (floored at residualFloorDegC, and that floor, a probe's noise, when the
+ * fit has no spare degrees of freedom); uncertainty of aₖ = σ·√[(DᵀD + Λ | C)⁻¹]ₖₖ, the fit's
+ * own conditioning (solver.posteriorSd), so a chamber the probes barely see is uncertain
+ * however few degrees of freedom are left. A chamber the solver finds not observable gets NaN
+ * for both. values holds the readings; only the solver's valid thermocouples are read.
+ * scratchY needs room for M values, scratchFit for N+1.
  */
 export function estimateChambers(
   solver: ChamberSolver,
@@ -199,7 +227,7 @@ export function estimateChambers(
   scratchFit: Float64Array,
   out: ChamberEstimateOut,
 ): void {
-  const { n, validCount: nv, validIndex, operatorCompact: g, designCompact: d, rowNorm } = solver;
+  const { n, validCount: nv, validIndex, operatorCompact: g, designCompact: d, posteriorSd, observable } = solver;
   const p = n + 1;
   for (let j = 0; j < nv; j++) scratchY[j] = values[validIndex[j]] - centreDegC;
   for (let r = 0; r < p; r++) {
@@ -222,8 +250,9 @@ export function estimateChambers(
   out.ringLevelDegC = centreDegC + scratchFit[0];
   out.fitResidualSdDegC = sd;
   for (let k = 0; k < n; k++) {
-    out.chamberDeviationDegC[k] = scratchFit[k + 1];
-    out.chamberUncertaintyDegC[k] = sigma * rowNorm[k + 1];
+    const seen = observable[k] === 1;
+    out.chamberDeviationDegC[k] = seen ? scratchFit[k + 1] : NaN;
+    out.chamberUncertaintyDegC[k] = seen ? sigma * posteriorSd[k + 1] : NaN;
   }
 }
 

@@ -1,7 +1,9 @@
 /**
  * Drift rules: a chamber drifting at a significant rate (its interval excluding zero) of at
  * least the configured rate, only the strongest of neighbours drifting the same way, and none
- * where one thermocouple drifting alone explains it (that probe's finding names the drift).
+ * where one thermocouple drifting alone explains it (that probe's finding names the drift): a
+ * chamber whose plume covers that thermocouple at this ring's load. A chamber elsewhere on the
+ * ring drifts for its own reasons and is raised.
  */
 import { loneThermocouple } from './validity.ts';
 import { differenceText, r1, type ChamberDriftInput, type Finding, type FindingInput, type Grade, type Thresholds } from './findings.ts';
@@ -40,6 +42,17 @@ function loneDrift(
   return lone;
 }
 
+/**
+ * Whether a thermocouple's own drift can explain chamber k's: k's plume covers the thermocouple
+ * at this ring's load (response at least coverResponse). Without the responses every chamber
+ * may be explained.
+ */
+function explainsChamber(share: NonNullable<FindingInput['plumeShare']>, tc: number, k: number, n: number): boolean {
+  const r = share.response;
+  if (!r || r.length < (tc + 1) * n) return true;
+  return r[tc * n + k] >= (share.coverResponse ?? 0.1);
+}
+
 export function driftFindings(input: FindingInput, t: Thresholds, version: number | null, out: Finding[]): void {
   const unit = input.temperatureUnit;
   const chambers = input.drift?.chambers ?? [];
@@ -65,7 +78,7 @@ export function driftFindings(input: FindingInput, t: Thresholds, version: numbe
     const l = significantRate(chambers[(k - 1 + n) % n]) * sign;
     const r = significantRate(chambers[(k + 1) % n]) * sign;
     if (n > 1 && (l > mag || r > mag)) continue;
-    if (lone) {
+    if (lone && explainsChamber(share!, lone.index, k, n)) {
       explained.push(k + 1);
       continue;
     }

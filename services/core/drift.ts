@@ -4,7 +4,7 @@
  * tabular CUSUM and EWMA on standardised residuals as serialisable incremental state, and
  * removal of the common-mode part shared by all chambers. Pure; time is a parameter.
  */
-import { linearRegression, slopeConfidenceInterval, type LinearFit } from './regression.ts';
+import { linearRegression, slopeConfidenceInterval, slopeNeweyWestInterval, type LinearFit } from './regression.ts';
 import { MAD_TO_SIGMA, medianOfSorted, sortedFinite } from './stats.ts';
 
 export const SECONDS_PER_DAY = 86_400;
@@ -59,23 +59,51 @@ export interface DriftRate {
   significant: boolean;
 }
 
+/** How the drift rate's interval is made. */
+export interface DriftRateOptions {
+  /** Two-sided confidence of the interval (default 0.95). */
+  confidence?: number;
+  /**
+   * 'newey-west' (default): the slope's standard error allows for autocorrelated residuals
+   * (daily residuals wander with the weather, washes and the season, so neighbouring days are
+   * alike and the ordinary interval is too narrow); 'ols': the ordinary t-interval, for
+   * independent points.
+   */
+  interval?: 'newey-west' | 'ols';
+  /** A rate over fewer days than this (first to last point) is never significant. Default 0. */
+  minSpanDays?: number;
+}
+
 /**
- * Drift rate by OLS of aggregate values on time: slope in °C per second × 30 days, with the
- * t-interval; and, when firedHours (cumulative fired hours at each aggregate) is given, the
- * slope on fired hours × 1000.
+ * Drift rate by OLS of aggregate values on time (points in time order): slope in °C per second
+ * × 30 days, with its interval (Newey–West by default, see DriftRateOptions); and, when
+ * firedHours (cumulative fired hours at each aggregate) is given, the slope on fired hours ×
+ * 1000. The rate is significant when the 30-day interval excludes zero and the points span at
+ * least minSpanDays.
  */
-export function driftRate(timesS: ArrayLike<number>, values: ArrayLike<number>, firedHours?: ArrayLike<number>, confidence = 0.95): DriftRate {
+export function driftRate(timesS: ArrayLike<number>, values: ArrayLike<number>, firedHours?: ArrayLike<number>, options: DriftRateOptions | number = {}): DriftRate {
+  const o = typeof options === 'number' ? { confidence: options } : options;
+  const confidence = o.confidence ?? 0.95;
+  const hac = (o.interval ?? 'newey-west') === 'newey-west';
   const days = Array.from({ length: timesS.length }, (_, i) => timesS[i] / SECONDS_PER_DAY);
   const fit = linearRegression(days, values);
-  const ci = slopeConfidenceInterval(fit, confidence);
+  const ci = hac ? slopeNeweyWestInterval(days, values, confidence, fit) : slopeConfidenceInterval(fit, confidence);
   const per30: [number, number] = [ci[0] * 30, ci[1] * 30];
   let fired: LinearFit | null = null;
   let firedCi: [number, number] | null = null;
   if (firedHours) {
     fired = linearRegression(firedHours, values);
-    const c = slopeConfidenceInterval(fired, confidence);
+    const c = hac ? slopeNeweyWestInterval(firedHours, values, confidence, fired) : slopeConfidenceInterval(fired, confidence);
     firedCi = [c[0] * 1000, c[1] * 1000];
   }
+  let first = Infinity;
+  let last = -Infinity;
+  for (let i = 0; i < days.length; i++) {
+    if (!Number.isFinite(days[i]) || !Number.isFinite(values[i])) continue;
+    if (days[i] < first) first = days[i];
+    if (days[i] > last) last = days[i];
+  }
+  const longEnough = last - first >= (o.minSpanDays ?? 0);
   return {
     per30DaysDegC: fit.slope * 30,
     per30DaysInterval: per30,
@@ -83,7 +111,7 @@ export function driftRate(timesS: ArrayLike<number>, values: ArrayLike<number>, 
     per1000FiredHoursInterval: firedCi,
     confidence,
     n: fit.n,
-    significant: per30[0] > 0 || per30[1] < 0,
+    significant: longEnough && (per30[0] > 0 || per30[1] < 0),
   };
 }
 

@@ -171,11 +171,22 @@ export interface FindingInput {
   residuals?: Pick<BaselineResiduals, 'thermocoupleDegC' | 'chamberDegC' | 'chamberUncertaintyDegC' | 'lone'> & Partial<Pick<BaselineResiduals, 'chamberCommonModeDegC'>> | null;
   /**
    * The plume kernel's response at each thermocouple's left and right neighbour, relative to
-   * its peak (UnitContext.responseLeft / responseRight): how much of a chamber's plume peaking
+   * its peak, for the narrowest plume allowed for (UnitContext.loneShareLeft / loneShareRight): how much of a chamber's plume peaking
    * on a thermocouple its neighbours must see. With it, a departure that stays on one
    * thermocouple is reported as that sensor's, not as a chamber's.
    */
-  plumeShare?: { left: ArrayLike<number>; right: ArrayLike<number> };
+  plumeShare?: {
+    left: ArrayLike<number>;
+    right: ArrayLike<number>;
+    /**
+     * The plume kernel's response of each chamber at each thermocouple at this ring's load
+     * (ring.ts plumeResponseAt: M × N row-major), and the share from which a chamber's plume
+     * covers a thermocouple (AnalysisOptions.plumeCoverResponse). With them, a thermocouple
+     * departing alone explains only the chambers whose plume covers it.
+     */
+    response?: ArrayLike<number>;
+    coverResponse?: number;
+  };
   /** Drift state per chamber and per thermocouple (index 0 = number 1). */
   drift?: { chambers?: readonly (ChamberDriftInput | null | undefined)[]; thermocouples?: readonly (ChamberDriftInput | null | undefined)[] };
   thresholds?: Partial<Thresholds>;

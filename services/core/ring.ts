@@ -73,6 +73,41 @@ export interface AnalysisOptions {
    * is 0.145, half of it is allowed, 0.0725 × 14 ≈ 1 °C).
    */
   loneSensorNoiseDegC: number;
+  /**
+   * A chamber's plume covers a thermocouple where the plume kernel (the solver's, at the ring's
+   * swirl) puts at least this share of its peak on it. A chamber that covers no valid
+   * thermocouple is not observable (its estimate is null, not a healthy 0), and a thermocouple
+   * departing alone explains the drift of the chambers that cover it only. Engineering
+   * judgement: 0.1, the edge of a plume (at the kernel's width of half a pitch, a probe one
+   * pitch from a plume's centre sees 0.135 of it, one and a half pitches 0.011): a chamber
+   * stays observable through the probe beside a failed one, not behind two adjacent failures.
+   */
+  plumeCoverResponse: number;
+  /**
+   * The narrowest true plume the lone-probe test allows for, σ as a fraction of the chamber
+   * pitch: how much of a chamber's plume peaking on a probe its neighbours must see is read off
+   * a kernel this wide (or the solver's, if narrower). Real mixing differs from the solver's
+   * kernel by tens of per cent; with the solver's own width a narrower real plume (its crest
+   * probe's neighbours seeing less than the kernel says) passed for a sensor. Engineering
+   * judgement: 0.3 (the solver's 0.5 less 40 %).
+   */
+  loneSensorNarrowestPlumeFraction: number;
+  /**
+   * A probe this far from its normal, alone, is not taken for a sensor, °C: a lost flame under a
+   * narrow plume sits on one probe by 100–250 °C (the simulator's flame loss: about 200 °C),
+   * while a sensor failing that far while still in range is rare (open circuits and broken
+   * junctions read out of range); the chamber map names the chamber instead. Engineering
+   * judgement: 80 °C, the default critical level of a cold chamber (findings.ts).
+   */
+  loneSensorMaxDegC: number;
+  /**
+   * Departures smaller than this share of the ring's largest are not judged by the lone-probe
+   * test: a lost flame moves every probe's residual by a few degrees (the corrected load and the
+   * ring's centre move with it), enough for a flank probe to look alone beside a 250 °C plume.
+   * A lone probe beside a chamber's plume of comparable depth (a nozzle plugging elsewhere) is
+   * still judged. Engineering judgement: 0.25.
+   */
+  loneSensorMinShareOfLargest: number;
 }
 
 /** Defaults: engineering judgement unless stated in the field's own comment. */
@@ -89,6 +124,10 @@ export const defaultAnalysisOptions: AnalysisOptions = {
   swirlUncertaintyDeg: 8,
   loneSensorMinDegC: 6,
   loneSensorNoiseDegC: 1,
+  plumeCoverResponse: 0.1,
+  loneSensorNarrowestPlumeFraction: 0.3,
+  loneSensorMaxDegC: 80,
+  loneSensorMinShareOfLargest: 0.25,
 };
 
 /** Options that may be given in part; nested groups are merged field by field. */
@@ -150,11 +189,16 @@ export interface UnitContext {
   /** Kernel response at the left / right neighbour's angle for a plume centred on each thermocouple. */
   readonly responseLeft: Float64Array;
   readonly responseRight: Float64Array;
+  /** The same for the narrowest plume the lone-probe test allows for (AnalysisOptions.loneSensorNarrowestPlumeFraction). */
+  readonly loneShareLeft: Float64Array;
+  readonly loneShareRight: Float64Array;
   readonly loadMin: number;
   readonly loadMax: number;
   readonly binCount: number;
   /** ψ at each load bin's centre, degrees. */
   readonly binSwirlDeg: Float64Array;
+  /** Per load bin, once asked for: the plume kernel's response of each chamber at each thermocouple (plumeResponseAt). */
+  readonly binResponse: (Float64Array | null)[];
   /** Solvers built so far (for inspection and tests). */
   solversBuilt: number;
   /** Current number of cached solvers. */
@@ -214,9 +258,14 @@ export function prepareUnit(config: UnitConfig, options: AnalysisOptionsInput = 
   const kernel: KernelSpec = { shape: opts.kernel, widthDeg: opts.plumeWidthFraction * pitch };
   const responseLeft = new Float64Array(m);
   const responseRight = new Float64Array(m);
+  const loneShareLeft = new Float64Array(m);
+  const loneShareRight = new Float64Array(m);
+  const narrow: KernelSpec = { shape: opts.kernel, widthDeg: Math.min(opts.plumeWidthFraction, opts.loneSensorNarrowestPlumeFraction) * pitch };
   for (let i = 0; i < m; i++) {
     responseLeft[i] = m > 1 ? plumeKernel(arcDistanceDeg(tc[i], tc[(i - 1 + m) % m]), kernel) : 0;
     responseRight[i] = m > 1 ? plumeKernel(arcDistanceDeg(tc[i], tc[(i + 1) % m]), kernel) : 0;
+    loneShareLeft[i] = m > 1 ? plumeKernel(arcDistanceDeg(tc[i], tc[(i - 1 + m) % m]), narrow) : 0;
+    loneShareRight[i] = m > 1 ? plumeKernel(arcDistanceDeg(tc[i], tc[(i + 1) % m]), narrow) : 0;
   }
   const curve = config.swirl.curve;
   const loadMin = curve[0][0];
@@ -235,10 +284,13 @@ export function prepareUnit(config: UnitConfig, options: AnalysisOptionsInput = 
     kernel,
     responseLeft,
     responseRight,
+    loneShareLeft,
+    loneShareRight,
     loadMin,
     loadMax,
     binCount,
     binSwirlDeg,
+    binResponse: new Array<Float64Array | null>(binCount).fill(null),
     solversBuilt: 0,
     cache: new Map(),
     recent: new Array<ChamberSolver | null>(binCount * RECENT_PER_BIN).fill(null),
@@ -262,6 +314,24 @@ export function loadBinOf(ctx: UnitContext, loadFraction: number): number {
 /** Load fraction at the centre of a bin. */
 export function loadOfBin(ctx: UnitContext, bin: number): number {
   return ctx.binCount === 1 ? ctx.loadMin : Math.min(ctx.loadMin + bin * ctx.options.loadBinWidth, ctx.loadMax);
+}
+
+/**
+ * The plume kernel's response of every chamber at every thermocouple at a load: M × N row-major,
+ * element i·N + k is how much of chamber k's plume (relative to its peak) thermocouple i sees at
+ * the swirl of the load's bin. Built once per bin and kept; do not modify.
+ */
+export function plumeResponseAt(ctx: UnitContext, loadFraction: number): Float64Array {
+  const bin = loadBinOf(ctx, loadFraction);
+  let r = ctx.binResponse[bin];
+  if (!r) {
+    const { m, n } = ctx;
+    r = new Float64Array(m * n);
+    const shift = ctx.config.swirl.sense * ctx.binSwirlDeg[bin];
+    for (let i = 0; i < m; i++) for (let k = 0; k < n; k++) r[i * n + k] = plumeKernel(ctx.tcAnglesDeg[i] - ctx.chamberAnglesDeg[k] - shift, ctx.kernel);
+    ctx.binResponse[bin] = r;
+  }
+  return r;
 }
 
 /** The chamber solver for (bin, usable mask): from the recent slots, the cache, or built anew. */
@@ -289,7 +359,7 @@ export function solverFor(ctx: UnitContext, bin: number, usable: Uint8Array, mas
     ctx.cache.set(key, solver);
   } else {
     const shift = ctx.config.swirl.sense * ctx.binSwirlDeg[bin];
-    solver = buildChamberSolver(ctx.tcAnglesDeg, ctx.chamberAnglesDeg, shift, usable, ctx.kernel, ctx.options.ridgeFraction);
+    solver = buildChamberSolver(ctx.tcAnglesDeg, ctx.chamberAnglesDeg, shift, usable, ctx.kernel, ctx.options.ridgeFraction, ctx.options.plumeCoverResponse);
     solver.bin = bin;
     ctx.solversBuilt++;
     ctx.cache.set(key, solver);
@@ -370,18 +440,18 @@ export function analyseRing(
   estimateChambers(solver, values, centre, ctx.options.residualFloorDegC, ctx.scratch, ctx.fit, out);
   let worst = -1;
   let worstAbs = -1;
-  let cold = 0;
-  let hot = 0;
+  let cold = -1;
+  let hot = -1;
   const dev = out.chamberDeviationDegC;
   for (let k = 0; k < n; k++) {
     const v = dev[k];
-    if (!(v === v)) continue;
+    if (!(v === v)) continue; // not observable
     if (Math.abs(v) > worstAbs) {
       worstAbs = Math.abs(v);
       worst = k;
     }
-    if (v < dev[cold]) cold = k;
-    if (v > dev[hot]) hot = k;
+    if (cold < 0 || v < dev[cold]) cold = k;
+    if (hot < 0 || v > dev[hot]) hot = k;
   }
   if (worst < 0) {
     clearChambers(out, n);
@@ -410,6 +480,40 @@ function clearChambers(out: RingAnalysis, n: number): void {
   out.runnerUpLikelihood = NaN;
   out.coldestChamber = null;
   out.hottestChamber = null;
+}
+
+/** Why a chamber has no estimate, in the words the API, the pictures and the review use. */
+export const NOT_OBSERVABLE = {
+  tooFewProbes: 'not observable: too few valid thermocouples to map the chambers',
+  noProbeUnderPlume: 'not observable: no valid thermocouple under its plume at this load',
+} as const;
+
+/**
+ * Why chamber k (from 0) of an analysis has no estimate, null when it has one: every chamber
+ * without one (too few valid thermocouples for a map), or this one alone (its plume covers no
+ * valid thermocouple at the ring's swirl, AnalysisOptions.plumeCoverResponse). Reads the stored
+ * form as well (null for NaN).
+ */
+export function chamberNotObservableReason(chamberDeviationDegC: ArrayLike<number | null>, k: number): string | null {
+  const v = chamberDeviationDegC[k];
+  if (typeof v === 'number' && Number.isFinite(v)) return null;
+  for (let j = 0; j < chamberDeviationDegC.length; j++) {
+    const w = chamberDeviationDegC[j];
+    if (typeof w === 'number' && Number.isFinite(w)) return NOT_OBSERVABLE.noProbeUnderPlume;
+  }
+  return NOT_OBSERVABLE.tooFewProbes;
+}
+
+/** Chambers (numbered from 1) of an analysis with no estimate while others have one: blind behind failed probes. */
+export function blindChambers(chamberDeviationDegC: ArrayLike<number | null>): number[] {
+  const out: number[] = [];
+  let any = false;
+  for (let k = 0; k < chamberDeviationDegC.length; k++) {
+    const v = chamberDeviationDegC[k];
+    if (typeof v === 'number' && Number.isFinite(v)) any = true;
+    else out.push(k + 1);
+  }
+  return any ? out : [];
 }
 
 /** A deep copy of an analysis result (typed arrays copied). */
@@ -442,7 +546,8 @@ export interface RingAnalysisJson {
   coverage: Coverage;
   invalid: { thermocouple: number; reason: ValidityReason }[];
   deviationDegC: (number | null)[];
-  chambers: { chamber: number; deviationDegC: number | null; uncertaintyDegC: number | null }[];
+  /** observable false: deviation and uncertainty are null and notObservableReason says why. */
+  chambers: { chamber: number; deviationDegC: number | null; uncertaintyDegC: number | null; observable: boolean; notObservableReason: string | null }[];
   ringLevelDegC: number | null;
   fitResidualSdDegC: number | null;
   worstChamber: number | null;
@@ -460,7 +565,10 @@ export function ringAnalysisToJson(a: RingAnalysis): RingAnalysisJson {
   const invalid: { thermocouple: number; reason: ValidityReason }[] = [];
   for (let i = 0; i < a.thermocoupleCount; i++) if (a.validity[i] !== VALIDITY.valid) invalid.push({ thermocouple: i + 1, reason: VALIDITY_REASONS[a.validity[i]] });
   const chambers = [];
-  for (let k = 0; k < a.chamberCount; k++) chambers.push({ chamber: k + 1, deviationDegC: num(a.chamberDeviationDegC[k]), uncertaintyDegC: num(a.chamberUncertaintyDegC[k]) });
+  for (let k = 0; k < a.chamberCount; k++) {
+    const why = chamberNotObservableReason(a.chamberDeviationDegC, k);
+    chambers.push({ chamber: k + 1, deviationDegC: num(a.chamberDeviationDegC[k]), uncertaintyDegC: why ? null : num(a.chamberUncertaintyDegC[k]), observable: why === null, notObservableReason: why });
+  }
   const s = a.spread;
   return {
     loadFraction: num(a.loadFraction),
@@ -589,7 +697,7 @@ export function baselineResidualsInto(ctx: UnitContext, a: RingAnalysis, baselin
   const common = nf ? medianOfSorted(finite, nf) : 0;
   const apart = buf.apart;
   for (let i = 0; i < m; i++) apart[i] = tc[i] - common;
-  const found = loneThermocouple(apart, m, ctx.responseLeft, ctx.responseRight, ctx.options.loneSensorMinDegC, 0.5, ctx.options.loneSensorNoiseDegC);
+  const found = loneThermocouple(apart, m, ctx.loneShareLeft, ctx.loneShareRight, ctx.options.loneSensorMinDegC, 0.5, ctx.options.loneSensorNoiseDegC, ctx.options.loneSensorMaxDegC, ctx.options.loneSensorMinShareOfLargest);
   const lone = found ? { index: found.index, value: tc[found.index] } : null;
   let mapped: Float64Array = tc;
   if (lone) {

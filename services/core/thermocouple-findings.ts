@@ -4,7 +4,7 @@
  * degraded coverage (too few valid thermocouples, or adjacent ones failed: a chamber can hide
  * behind dead sensors).
  */
-import type { RingAnalysis } from './ring.ts';
+import { blindChambers, type RingAnalysis } from './ring.ts';
 import { VALIDITY, VALIDITY_REASONS, type ValidityReason } from './types.ts';
 import { differenceText, r1, r3, type Finding, type FindingInput, type Grade, type Thresholds } from './findings.ts';
 
@@ -86,8 +86,11 @@ export function thermocoupleFindings(input: FindingInput, t: Thresholds, version
 
 export function coverageFinding(a: RingAnalysis, t: Thresholds, version: number | null, out: Finding[]): void {
   const c = a.coverage;
-  if (!c.degraded) return;
+  // Chambers whose plume covers no valid thermocouple: no estimate, so nothing can be said of them.
+  const blind = blindChambers(a.chamberDeviationDegC);
+  if (!c.degraded && blind.length === 0) return;
   const grade: Grade = c.fraction < t.coverageAlarmFraction || c.longestInvalidRun >= t.coverageAlarmAdjacentInvalid ? 'alarm' : 'warning';
+  const blindText = blind.length ? `; chamber${blind.length > 1 ? 's' : ''} ${blind.join(', ')} ${blind.length > 1 ? 'are' : 'is'} not observable (no valid thermocouple under ${blind.length > 1 ? 'their plumes' : 'its plume'})` : '';
   out.push({
     kind: 'coverage_degraded',
     grade,
@@ -96,9 +99,16 @@ export function coverageFinding(a: RingAnalysis, t: Thresholds, version: number 
     likelihood: null,
     runnerUpChamber: null,
     runnerUpLikelihood: null,
-    evidence: { validCount: c.validCount, total: c.total, fraction: Math.round(c.fraction * 1000) / 1000, longestInvalidRun: c.longestInvalidRun, reason: c.reason },
+    evidence: {
+      validCount: c.validCount,
+      total: c.total,
+      fraction: Math.round(c.fraction * 1000) / 1000,
+      longestInvalidRun: c.longestInvalidRun,
+      reason: c.degraded ? c.reason : 'blind_chambers',
+      blindChambers: blind.length ? blind.join(',') : null,
+    },
     baselineVersion: version,
-    message: `only ${c.validCount} of ${c.total} thermocouples are usable (${c.longestInvalidRun} adjacent failed): a chamber can hide behind them`,
+    message: `only ${c.validCount} of ${c.total} thermocouples are usable (${c.longestInvalidRun} adjacent failed): a chamber can hide behind them${blindText}`,
     advice: 'restore the failed exhaust thermocouples at the next opportunity; until then treat chamber findings near them with caution',
   });
 }

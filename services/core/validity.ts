@@ -225,11 +225,20 @@ export interface WindowValidityOptions {
    * that move by a degree is a frozen value (a failed transmitter, a stale gateway register).
    */
   frozenNeighbourMinRangeDegC: number;
-  /** Erratic: RMS sample-to-sample change of its residual above this multiple of its neighbours'… */
+  /**
+   * Erratic: typical sample-to-sample change of its residual (the median |change| / 0.6745, the
+   * RMS it would have if the changes were normal, so one jump does not count: a lost flame
+   * under a narrow plume moves its probe by 200 °C once) above this multiple of its neighbours'…
+   */
   erraticRatio: number;
   /** …and above this, °C. */
   erraticMinDegC: number;
-  /** Drifting alone: its residual's fitted change over the window exceeds this, °C… */
+  /**
+   * Drifting alone: its residual's fitted change over the window exceeds this, °C, and is not
+   * one step (no single ring-to-ring change is more than half of it: a step on one probe while
+   * its neighbours hold is a lost flame under a narrow plume, which the chamber map names, or a
+   * sensor's jump, which the per-ring lone-probe test names)…
+   */
   driftAloneDegC: number;
   /** …while each neighbour's stays below this fraction of it. */
   driftNeighbourFraction: number;
@@ -309,6 +318,8 @@ export function windowValidity(
   }
   const rangeDeg = new Float64Array(m);
   const stepRms = new Float64Array(m);
+  const stepTypical = new Float64Array(m);
+  const stepMax = new Float64Array(m);
   const change = new Float64Array(m);
   const usable = new Uint32Array(m);
   const ringRange = new Float64Array(m);
@@ -320,6 +331,8 @@ export function windowValidity(
     let sq = 0;
     let steps = 0;
     let prev = NaN;
+    let biggest = 0;
+    const absSteps: number[] = [];
     const xs: number[] = [];
     const ys: number[] = [];
     for (let r = 0; r < t; r++) {
@@ -335,6 +348,9 @@ export function windowValidity(
       if (Number.isFinite(prev)) {
         sq += (e - prev) * (e - prev);
         steps++;
+        const a = Math.abs(e - prev);
+        absSteps.push(a);
+        if (a > biggest) biggest = a;
       }
       prev = e;
       xs.push(timesS ? timesS[r] : r);
@@ -343,6 +359,9 @@ export function windowValidity(
     rangeDeg[i] = usable[i] > 0 ? hi - lo : NaN;
     ringRange[i] = usable[i] > 0 ? mhi - mlo : NaN;
     stepRms[i] = steps > 0 ? Math.sqrt(sq / steps) : NaN;
+    absSteps.sort((p, q) => p - q);
+    stepTypical[i] = steps > 0 ? medianOfSorted(absSteps, absSteps.length) / 0.6745 : NaN;
+    stepMax[i] = biggest;
     if (xs.length >= 3) {
       const fit = linearRegression(xs, ys);
       change[i] = fit.slope * (xs[xs.length - 1] - xs[0]);
@@ -364,13 +383,14 @@ export function windowValidity(
     const [l, r] = ringNeighbours(i, m);
     let reason: ValidityReason = 'valid';
     if (usable[i] >= opts.minRings) {
-      const neighbourStep = Math.max(finiteOr(stepRms[l], 0), finiteOr(stepRms[r], 0));
+      const neighbourStep = Math.max(finiteOr(stepTypical[l], 0), finiteOr(stepTypical[r], 0));
       const neighboursMove = finiteOr(rangeDeg[l], 0) >= opts.frozenNeighbourMinRangeDegC && finiteOr(rangeDeg[r], 0) >= opts.frozenNeighbourMinRangeDegC;
       if (rangeDeg[i] <= opts.frozenMaxRangeDegC && (ringRange[i] >= opts.frozenMinRingMoveDegC || neighboursMove)) reason = 'frozen';
-      else if (stepRms[i] > opts.erraticMinDegC && stepRms[i] > opts.erraticRatio * neighbourStep) reason = 'erratic';
+      else if (stepTypical[i] > opts.erraticMinDegC && stepTypical[i] > opts.erraticRatio * neighbourStep) reason = 'erratic';
       else if (
         loadHeld &&
         Math.abs(change[i]) > opts.driftAloneDegC &&
+        stepMax[i] <= 0.5 * Math.abs(change[i]) &&
         Math.abs(finiteOr(change[l], 0)) < opts.driftNeighbourFraction * Math.abs(change[i]) &&
         Math.abs(finiteOr(change[r], 0)) < opts.driftNeighbourFraction * Math.abs(change[i])
       )
@@ -392,14 +412,19 @@ export function validityReason(code: number): ValidityReason {
 
 /**
  * The thermocouple that departs alone. `values` holds one number per thermocouple (a residual
- * against its own normal, or a drift rate; NaN where unknown). The candidate is the largest in
- * magnitude, at least `minMagnitude`; it departs alone when each ring neighbour moved the same
- * way by less than `fraction` of what a chamber's plume peaking on the candidate would put on
- * it (`shareLeft[i]` / `shareRight[i]`: the plume kernel's response at the left / right
- * neighbour of thermocouple i, relative to its peak). Mixing spreads every chamber's plume onto
- * the next thermocouple by at least that share, wherever the swirl puts it; a failing sensor's
- * error stays on the sensor. `noise` is added to what a neighbour may show (its own noise).
- * Null when no candidate, or when a neighbour is unknown (no verdict).
+ * against its own normal, or a drift rate; NaN where unknown). Candidates are the values of at
+ * least `minMagnitude` (and under `maxMagnitude`), largest first; the first that departs alone
+ * is returned: each ring neighbour moved the same way by less than `fraction` of what a
+ * chamber's plume peaking on the candidate would put on it (`shareLeft[i]` / `shareRight[i]`:
+ * the plume kernel's response at the left / right neighbour of thermocouple i, relative to its
+ * peak, for the narrowest plume to be expected). Mixing spreads every chamber's plume onto the
+ * next thermocouple by at least that share, wherever the swirl puts it; a failing sensor's error
+ * stays on the sensor. A larger departure elsewhere on the ring (a chamber's plume, whose crest
+ * and flanks all fail the test) does not hide a lone probe. `noise` is added to what a
+ * neighbour may show (its own noise). Candidates under `minShareOfLargest` of the largest
+ * finite value are not judged (a deep plume moves the rest of the ring by a few degrees as the
+ * load and the ring's centre move with it). A candidate with an unknown neighbour gets no
+ * verdict. Null when none departs alone.
  */
 export function loneThermocouple(
   values: ArrayLike<number>,
@@ -409,21 +434,38 @@ export function loneThermocouple(
   minMagnitude: number,
   fraction = 0.5,
   noise = 0,
+  maxMagnitude = Infinity,
+  minShareOfLargest = 0,
 ): { index: number; value: number } | null {
   if (m < 3) return null;
-  let best = -1;
-  for (let i = 0; i < m; i++) {
-    const v = values[i];
-    if (Number.isFinite(v) && Math.abs(v) >= minMagnitude && (best < 0 || Math.abs(v) > Math.abs(values[best]))) best = i;
+  let largest = 0;
+  for (let i = 0; i < m; i++) if (Number.isFinite(values[i]) && Math.abs(values[i]) > largest) largest = Math.abs(values[i]);
+  const floor = Math.max(minMagnitude, minShareOfLargest * largest);
+  // Candidates largest first, without allocating: each pass takes the largest below the last one.
+  let ceiling = Infinity;
+  let ceilingIndex = -1;
+  for (;;) {
+    let best = -1;
+    for (let i = 0; i < m; i++) {
+      const v = values[i];
+      if (!Number.isFinite(v)) continue;
+      const a = Math.abs(v);
+      if (a < floor || a >= maxMagnitude) continue;
+      // Below the last candidate (ties in index order).
+      if (a > ceiling || (a === ceiling && i <= ceilingIndex)) continue;
+      if (best < 0 || a > Math.abs(values[best])) best = i;
+    }
+    if (best < 0) return null;
+    ceiling = Math.abs(values[best]);
+    ceilingIndex = best;
+    const [l, r] = ringNeighbours(best, m);
+    const v = values[best];
+    const sign = v < 0 ? -1 : 1;
+    const vl = values[l];
+    const vr = values[r];
+    if (!Number.isFinite(vl) || !Number.isFinite(vr)) continue;
+    const mag = Math.abs(v);
+    if (sign * vl >= fraction * shareLeft[best] * mag + noise || sign * vr >= fraction * shareRight[best] * mag + noise) continue;
+    return { index: best, value: v };
   }
-  if (best < 0) return null;
-  const [l, r] = ringNeighbours(best, m);
-  const v = values[best];
-  const sign = v < 0 ? -1 : 1;
-  const vl = values[l];
-  const vr = values[r];
-  if (!Number.isFinite(vl) || !Number.isFinite(vr)) return null;
-  const mag = Math.abs(v);
-  if (sign * vl >= fraction * shareLeft[best] * mag + noise || sign * vr >= fraction * shareRight[best] * mag + noise) return null;
-  return { index: best, value: v };
 }

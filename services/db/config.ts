@@ -268,6 +268,11 @@ export interface WorkerConfig {
   driftReferenceDays: number;
   /** Smallest scale of a daily residual, °C. */
   driftSigmaFloorDegC: number;
+  /**
+   * Fewest days from the first to the last daily residual of a drift rate: a rate over a
+   * shorter span is computed (with at least three days) but never significant.
+   */
+  driftMinSpanDays: number;
   /** Steady rings after a thermocouple replacement over which the new probe's offset is learnt. */
   probeOffsetRings: number;
   /** Late rings found at once (older than rings already analysed) from which the unit is judged again from the earliest of them, rather than analysed in their own spans. */
@@ -311,6 +316,7 @@ function workerConfig(env: Env): WorkerConfig {
     driftLookbackDays: integer(env, 'CANSIGHT_DRIFT_LOOKBACK_DAYS', 60, 3, 3650),
     driftReferenceDays: integer(env, 'CANSIGHT_DRIFT_REFERENCE_DAYS', 7, 2, 365),
     driftSigmaFloorDegC: decimal(env, 'CANSIGHT_DRIFT_SIGMA_FLOOR_C', 1, 0.01, 100),
+    driftMinSpanDays: integer(env, 'CANSIGHT_DRIFT_MIN_SPAN_DAYS', 5, 2, 365),
     probeOffsetRings: integer(env, 'CANSIGHT_PROBE_OFFSET_RINGS', 30, 1, 100_000),
     lateRewindRings: integer(env, 'CANSIGHT_LATE_REWIND_RINGS', 1000, 1, 100_000_000),
   };

@@ -17,6 +17,7 @@ export interface SyntheticAnalysis {
   validity: number[];
   tcDeviationC: (number | null)[];
   tcResidualC?: (number | null)[] | null;
+  /** NaN: the chamber is not observable in that ring (stored as null). */
   chamberDeviationC: number[];
   chamberResidualC?: number[] | null;
   swirlDeg: number;
@@ -48,7 +49,8 @@ export async function insertAnalyses(q: Queryable, unitId: string, rows: Synthet
       res: r.tcResidualC ?? null,
       swirl: r.swirlDeg,
       chdev: r.chamberDeviationC,
-      chunc: r.chamberDeviationC.map(() => 1.5),
+      // A chamber with no estimate (NaN: not observable) has no uncertainty either.
+      chunc: r.chamberDeviationC.map((d) => (Number.isFinite(d) ? 1.5 : null)),
       chres: r.chamberResidualC ?? null,
       hottest: ordered.length ? ordered[ordered.length - 1].i + 1 : null,
       coldest: ordered.length ? ordered[0].i + 1 : null,
@@ -69,7 +71,8 @@ export async function insertAnalyses(q: Queryable, unitId: string, rows: Synthet
               NULL, false, x.valid, x.degraded,
               ARRAY(SELECT jsonb_array_elements_text(x.validity)::smallint), ARRAY(SELECT (CASE WHEN e = 'null' THEN NULL ELSE e::text::real END) FROM jsonb_array_elements(x.dev) e),
               CASE WHEN x.res IS NULL OR x.res = 'null' THEN NULL ELSE ARRAY(SELECT (CASE WHEN e = 'null' THEN NULL ELSE e::text::real END) FROM jsonb_array_elements(x.res) e) END,
-              x.swirl, ARRAY(SELECT e::text::real FROM jsonb_array_elements(x.chdev) e), ARRAY(SELECT e::text::real FROM jsonb_array_elements(x.chunc) e),
+              x.swirl, ARRAY(SELECT (CASE WHEN e = 'null' THEN NULL ELSE e::text::real END) FROM jsonb_array_elements(x.chdev) e),
+              ARRAY(SELECT (CASE WHEN e = 'null' THEN NULL ELSE e::text::real END) FROM jsonb_array_elements(x.chunc) e),
               CASE WHEN x.chres IS NULL OR x.chres = 'null' THEN NULL ELSE ARRAY(SELECT e::text::real FROM jsonb_array_elements(x.chres) e) END,
               560, 2.5, x.worst, x.lik, NULL, NULL, NULL, NULL
          FROM jsonb_to_recordset($2::jsonb) AS x(ts timestamptz, load real, spread real, "limit" real, valid smallint, degraded boolean, validity jsonb, dev jsonb,

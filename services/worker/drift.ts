@@ -7,7 +7,8 @@
  * 3. the scale σ of each series from its first `driftReferenceDays` days (floored), then a
  *    two-sided CUSUM and an EWMA on the standardised values that follow;
  * 4. the drift rate over the last `driftLookbackDays` by regression on time (°C per 30 days) and
- *    on cumulative fired hours (°C per 1000 fired hours), with its confidence interval.
+ *    on cumulative fired hours (°C per 1000 fired hours), with its Newey–West confidence interval
+ *    (daily residuals are autocorrelated), significant only over at least `driftMinSpanDays`.
  * The state is recomputed from the stored daily aggregates each run, so a run repeated gives
  * the same state; it names the baseline version it was computed against.
  */
@@ -26,8 +27,8 @@ const DAY_MS = 86_400_000;
 const dayText = (ms: number) => new Date(Math.floor(ms / DAY_MS) * DAY_MS).toISOString().slice(0, 10);
 const dayMs = (d: string) => Date.parse(d + 'T00:00:00Z');
 
-/** Fewest daily values for a drift rate. */
-const MIN_RATE_DAYS = 5;
+/** Fewest daily values a regression line needs to have an interval at all (n − 2 > 0). */
+const MIN_RATE_POINTS = 3;
 
 export interface DriftRunResult {
   unitId: string;
@@ -114,11 +115,12 @@ export async function runDriftForUnit(pool: Pool | Queryable, config: Config, un
       const recent = series.filter((p) => p.t * 1000 >= dayMs(toDay) - s.driftLookbackDays * DAY_MS);
       const firedSpan = recent.length ? recent[recent.length - 1].fired - recent[0].fired : 0;
       const rate =
-        recent.length >= MIN_RATE_DAYS
+        recent.length >= MIN_RATE_POINTS
           ? driftRate(
               recent.map((p) => p.t),
               recent.map((p) => p.v),
               firedSpan > 0 ? recent.map((p) => p.fired) : undefined,
+              { minSpanDays: s.driftMinSpanDays },
             )
           : null;
       states.push({

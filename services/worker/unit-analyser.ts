@@ -6,7 +6,7 @@
  * rebuilds it from stored rings and analysis after a restart or a takeover and the next ring
  * is analysed exactly as it would have been without the interruption. No I/O here.
  */
-import { analyseRing, baselineResidualsInto, createResidualBuffers, prepareUnit, type BaselineResiduals, type ResidualBuffers, type UnitContext } from '../core/ring.ts';
+import { analyseRing, baselineResidualsInto, createResidualBuffers, plumeResponseAt, prepareUnit, type BaselineResiduals, type ResidualBuffers, type UnitContext } from '../core/ring.ts';
 import { chamberScatterInto, worstChamberVerdict, type ChamberFindingRef, type WorstChamberVerdict } from '../core/worst-chamber.ts';
 import type { UnitBaseline } from '../core/baseline.ts';
 import { correctedLoadFraction, defaultSteadyStateOptions, type SteadyStateOptions } from '../core/correction.ts';
@@ -394,7 +394,7 @@ export class UnitAnalyser {
       };
       const standing = this.standingAt(tsMs);
       const drift = { chambers: standing.driftChambers, thermocouples: standing.driftThermocouples };
-      const plumeShare = { left: ctx.responseLeft, right: ctx.responseRight };
+      const plumeShare = { left: ctx.loneShareLeft, right: ctx.loneShareRight, response: plumeResponseAt(ctx, load), coverResponse: ctx.options.plumeCoverResponse };
       raise = evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: th.raise, temperatureUnit: cfg.temperatureUnit });
       if (raise.length > 0) this.alertsIdle = false;
       hold = this.alertsIdle ? [] : evaluateFindings({ analysis: a, steady: st.steady, history, baseline: b, residuals: res, plumeShare, drift, thresholds: th.hold, temperatureUnit: cfg.temperatureUnit });

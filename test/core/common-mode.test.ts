@@ -90,7 +90,7 @@ describe('one chamber going cold', () => {
 
 function row(chamber: number, residualC: number | null, drift: { per30: number; significant: boolean } | null = null): ChamberRow {
   return {
-    chamber, angleDeg: 0, plumeAngleDeg: null, deviationC: null, uncertaintyC: null, residualC,
+    chamber, angleDeg: 0, plumeAngleDeg: null, deviationC: null, uncertaintyC: null, observable: true, notObservableReason: null, residualC,
     driftCPer30d: drift?.per30 ?? null, driftIntervalCPer30d: null, driftCPer1000h: null, driftSignificant: drift?.significant ?? false, driftDays: 30,
     cusum: null, sigmaC: 1, baselineVersion: 1, activeGrade: null, likelihoodWorst: null,
   };

@@ -34,7 +34,7 @@ describe('ordinary least squares against NIST StRD "Norris" (certified values)',
 
   it('gives the same slope through the drift-rate path (x read as days)', async () => {
     const { x, y } = await norris();
-    const d = driftRate(x.map((v) => v * SECONDS_PER_DAY), y);
+    const d = driftRate(x.map((v) => v * SECONDS_PER_DAY), y, undefined, { interval: 'ols' });
     expect(relErr(d.per30DaysDegC, 30 * 1.00211681802045)).toBeLessThan(1e-9);
     // t(0.975, 34) = 2.0322445 (standard t table value, from memory)
     const half = 2.0322445 * 4.29796848199937e-4 * 30;

@@ -10,6 +10,8 @@ import { describe, expect, it } from 'vitest';
 import {
   analyseRing,
   baselineResiduals,
+  chamberResidualsFromThermocouples,
+  plumeResponseAt,
   baselineSampleFromAnalysis,
   evaluateFindings,
   fitUnitBaseline,
@@ -126,19 +128,44 @@ describe('drift: a sensor or a chamber', () => {
   const config = unitConfig(10, 2, 3, 0, 1, demoCurve);
   const ctx = prepareUnit(config);
   const a = analyseRing(ctx, healthyRing(config, 0.9, mulberry32(5)), 0.9);
-  const share = { left: ctx.responseLeft, right: ctx.responseRight };
+  const share = { left: ctx.responseLeft, right: ctx.responseRight, response: plumeResponseAt(ctx, 0.9), coverResponse: ctx.options.plumeCoverResponse };
   const rate = (per30: number, significant = true) => ({
     rate: { per30DaysDegC: per30, per30DaysInterval: [per30 - 2, per30 + 2] as [number, number], per1000FiredHoursDegC: null, per1000FiredHoursInterval: null, confidence: 0.95, n: 10, significant },
   });
   it('a thermocouple drifting alone is named, and the chamber drift it makes is not raised', () => {
+    // At 90 % load (swirl 59.75° on demoCurve) chamber 4's plume centre is at 3·36 + 59.75 = 167.75°,
+    // 20.75° from thermocouple 9 (3 + 8·18 = 147°): its plume covers the probe.
     const thermocouples = Array.from({ length: 20 }, (_, i) => rate(i === 8 ? -30 : 0.4 * Math.sin(i), i === 8));
-    const chambers = Array.from({ length: 10 }, (_, k) => rate(k === 4 ? -14 : 0.5, k === 4));
+    const chambers = Array.from({ length: 10 }, (_, k) => rate(k === 3 ? -14 : 0.5, k === 3));
     const f = evaluateFindings({ analysis: a, steady: true, plumeShare: share, drift: { chambers, thermocouples } });
     expect(f.filter((x) => x.kind === 'chamber_drift')).toEqual([]);
     const tc = f.find((x) => x.kind === 'thermocouple_fault');
     expect(tc?.thermocouple).toBe(9);
     expect(tc?.evidence.reason).toBe('drifting_alone');
-    expect(tc?.evidence.chamberDriftExplained).toBe('5');
+    expect(tc?.evidence.chamberDriftExplained).toBe('4');
+  });
+
+  it.each([0.3, 0.4, 0.5, 0.6])('a probe drifting alone on one side and a chamber plugging on the other are both raised (true plume width %s of the pitch)', (width) => {
+    // Drift rates map through the chamber map like residuals do (the map is linear): the
+    // thermocouples' rates are thermocouple 9 drifting −30 °C per 30 days by itself plus
+    // chamber 9's plume (the far side of the ring) cooling at −20 °C per 30 days, seen through a
+    // plume of the true width, and the chambers' rates are what the solver makes of them.
+    const load = 0.9;
+    const kernel = { shape: ctx.kernel.shape, widthDeg: width * ctx.chamberPitchDeg };
+    const cooling = new Array(10).fill(0);
+    cooling[8] = -20;
+    const tcRates = Array.from(ringFromChambers(config, cooling, load, 0, kernel));
+    tcRates[8] += -30;
+    const chamberRates = chamberResidualsFromThermocouples(ctx, load, tcRates)!.chamberDeviationDegC;
+    const thermocouples = tcRates.map((v) => rate(v, Math.abs(v) > 2));
+    const chambers = Array.from(chamberRates, (v) => rate(v, Math.abs(v) > 2));
+    const f = evaluateFindings({ analysis: a, steady: true, plumeShare: share, drift: { chambers, thermocouples } });
+    const drift = f.filter((x) => x.kind === 'chamber_drift');
+    expect(drift.map((x) => x.chamber)).toContain(9);
+    const tc = f.filter((x) => x.kind === 'thermocouple_fault');
+    expect(tc.map((x) => [x.thermocouple, x.evidence.reason])).toEqual([[9, 'drifting_alone']]);
+    // Whatever the map puts on the chambers over thermocouple 9 is the probe's, named in its evidence.
+    for (const d of drift) expect([3, 4]).not.toContain(d.chamber);
   });
   it('a chamber drifting with its plume on several thermocouples is that chamber, reported once', () => {
     const thermocouples = Array.from({ length: 20 }, (_, i) => rate(i === 8 ? -30 : i === 7 || i === 9 ? -22 : 0.3, i >= 7 && i <= 9));

@@ -118,6 +118,9 @@ export interface ChamberRow {
   deviationC: number | null;
   residualC: number | null;
   uncertaintyC: number | null;
+  /** false: no estimate in the latest ring (see notObservableReason). */
+  observable: boolean;
+  notObservableReason: string | null;
   driftCPer30d: number | null;
   driftIntervalCPer30d: [number, number] | null;
   driftCPer1000h: number | null;

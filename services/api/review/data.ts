@@ -101,6 +101,9 @@ const CHAMBER_KINDS = new Set(['chamber_cold', 'chamber_hot', 'chamber_drift']);
  */
 export function chamberNextStep(c: ChamberRow, alerts: AlertSummary[], t: Thresholds = defaultThresholds): string {
   const finding = alerts.filter((a) => a.chamber === c.chamber && CHAMBER_KINDS.has(a.kind) && GRADE_RANK[a.grade] >= GRADE_RANK.warning);
+  // A chamber the ring cannot see now is not judged healthy: say so, and what would let it be seen.
+  if (!c.observable && c.notObservableReason && finding.length === 0)
+    return `Not judged: chamber ${c.chamber} is ${c.notObservableReason}, so the exhaust ring cannot clear it; restore the failed thermocouples near its plume, or borescope it if it must be cleared at this outage.`;
   const r = c.residualC;
   const residualBeyond = r !== null && (r <= -t.chamberColdWarningDegC || r >= t.chamberHotWarningDegC);
   const driftBeyond = c.driftSignificant && c.driftCPer30d !== null && Math.abs(c.driftCPer30d) >= t.driftWarningDegCPer30Days;
@@ -117,7 +120,7 @@ export function chamberNextStep(c: ChamberRow, alerts: AlertSummary[], t: Thresh
 
 /** The next step says to inspect (not "no action"). */
 export function advisesInspection(step: string): boolean {
-  return !step.startsWith('No action');
+  return !step.startsWith('No action') && !step.startsWith('Not judged');
 }
 
 export async function reviewData(reads: ReadsRepository, unit: UnitRecord, q: { from?: string; to?: string }, nowMs: number, settings: JudgementSettings): Promise<ReviewData> {

@@ -44,7 +44,7 @@ export function reviewHtml(d: ReviewData): string {
         `<td class="n">${c.rank}</td>`,
         `<td>chamber ${c.chamber}</td>`,
         `<td class="n">${c.score.toFixed(1)}</td>`,
-        `<td class="n">${orNot(c.residualC, dT(c.residualC, u, 1, true), noBaseline)}</td>`,
+        `<td class="n">${!c.observable && c.notObservableReason ? '<span class="why">not observable</span>' : orNot(c.residualC, dT(c.residualC, u, 1, true), noBaseline)}</td>`,
         `<td class="n">${orNot(c.driftCPer30d, dT(c.driftCPer30d, u, 2, true), noDrift)}${c.driftIntervalCPer30d ? `<br><span class="why">${dT(c.driftIntervalCPer30d[0], u, 2, true)} to ${dT(c.driftIntervalCPer30d[1], u, 2, true)}</span>` : ''}</td>`,
         `<td>${c.cusum ? (c.cusum.signal ? (c.cusum.signal === 'down' ? 'signal: colder' : 'signal: hotter') : 'in control') : noDrift ? '<span class="why">not judged</span>' : '–'}</td>`,
         `<td class="grade-${c.worstGradeInWindow ?? 'none'}">${c.alertsInWindow}${c.worstGradeInWindow ? ` (worst ${c.worstGradeInWindow})` : ''}</td>`,

@@ -7,7 +7,7 @@
 import type { FastifyInstance } from 'fastify';
 import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
 import { Type, type Static } from 'typebox';
-import { chamberAnglesDeg, plumeAngleDeg } from '../../core/index.ts';
+import { chamberAnglesDeg, chamberNotObservableReason, plumeAngleDeg } from '../../core/index.ts';
 import type { UnitConfig } from '../../core/types.ts';
 import type { AlertSummary, DriftStateRecord, Grade, ReadsRepository, StoredAnalysis } from '../../db/reads.ts';
 import type { UnitRecord } from '../../db/units.ts';
@@ -24,6 +24,8 @@ export const ChamberRow = Type.Object({
   plumeAngleDeg: Nullable(Type.Number({ description: 'where its plume lands on the thermocouple ring at the latest corrected load (after swirl)' })),
   deviationC: Nullable(Type.Number({ description: 'latest ring: chamber estimate minus the average chamber, °C' })),
   uncertaintyC: Nullable(Type.Number({ description: 'one-sigma uncertainty of the estimate, °C' })),
+  observable: Type.Boolean({ description: 'false: the latest ring has no estimate of this chamber (no valid thermocouple under its plume, or too few for a map, or no ring analysed); deviationC and uncertaintyC are then null, not a healthy 0' }),
+  notObservableReason: Nullable(Type.String({ description: 'why the chamber is not observable; null when it is' })),
   residualC: Nullable(Type.Number({ description: 'deviation minus its baseline at the same corrected load (latest steady ring, else the latest daily value), °C' })),
   driftCPer30d: Nullable(Type.Number()),
   driftIntervalCPer30d: Nullable(Type.Tuple([Type.Number(), Type.Number()], { description: '95 % interval of the drift rate' })),
@@ -90,13 +92,17 @@ export async function chamberFigures(reads: ReadsRepository, unit: UnitRecord, n
   const chambers: ChamberRow[] = Array.from(angles, (angle, k) => {
     const d = byIdx.get(k + 1);
     const res = latest?.chamberResidualC?.[k];
+    const blind = latest ? chamberNotObservableReason(latest.chamberDeviationC, k) : 'not observable: no ring analysed yet';
     return {
       chamber: k + 1,
       angleDeg: angle,
       plumeAngleDeg: load === null ? null : plumeAngleDeg(config, k, load),
       deviationC: fin(latest?.chamberDeviationC[k]),
-      uncertaintyC: fin(latest?.chamberUncertaintyC[k]),
-      residualC: fin(res ?? d?.lastValueC),
+      uncertaintyC: blind ? null : fin(latest?.chamberUncertaintyC[k]),
+      observable: blind === null,
+      notObservableReason: blind,
+      // A chamber not observable in the latest ring has no residual of it either (the daily value is older).
+      residualC: blind && latest ? null : fin(res ?? d?.lastValueC),
       driftCPer30d: fin(d?.rate?.per30DaysDegC),
       driftIntervalCPer30d: d?.rate?.per30DaysInterval && d.rate.per30DaysInterval.every(Number.isFinite) ? d.rate.per30DaysInterval : null,
       driftCPer1000h: fin(d?.rate?.per1000FiredHoursDegC),

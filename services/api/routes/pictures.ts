@@ -7,7 +7,7 @@
 import type { FastifyInstance } from 'fastify';
 import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
 import { Type } from 'typebox';
-import { VALIDITY_REASONS, chamberAnglesDeg, plumeAngleDeg, thermocoupleAnglesDeg } from '../../core/index.ts';
+import { VALIDITY_REASONS, chamberAnglesDeg, chamberNotObservableReason, plumeAngleDeg, thermocoupleAnglesDeg } from '../../core/index.ts';
 import type { AlertSummary, ReadsRepository, StoredAnalysis } from '../../db/reads.ts';
 import type { UnitRecord } from '../../db/units.ts';
 import { notFound } from '../../http/errors.ts';
@@ -54,6 +54,7 @@ export function ringPlotInput(unit: UnitRecord, a: StoredAnalysis, readings: (nu
       angleDeg: angle,
       plumeAngleDeg: load === null ? angle : plumeAngleDeg(config, k, load),
       deviationC: a.chamberDeviationC[k] ?? null,
+      notObservableReason: chamberNotObservableReason(a.chamberDeviationC, k),
     })),
   };
 }

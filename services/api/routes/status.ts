@@ -14,6 +14,7 @@ import type { TypeBoxTypeProvider } from '@fastify/type-provider-typebox';
 import { Type, type Static, type TSchema } from 'typebox';
 import { ADVISORY_CAUTION } from '../../core/findings.ts';
 import { judgement } from '../../core/judgement.ts';
+import { chamberNotObservableReason } from '../../core/ring.ts';
 import { noWorstChamberReason } from '../../core/worst-chamber.ts';
 import { VALIDITY_REASONS } from '../../core/types.ts';
 import { unitStatusStates, type UnitStatusState } from '../../db/status-reads.ts';
@@ -50,6 +51,8 @@ export const StatusReply = Type.Object({
       chamber: Type.Integer({ description: 'numbered from 1' }),
       deviationDegC: Nullable(Type.Number({ description: 'from the average chamber, °C' })),
       uncertaintyDegC: Nullable(Type.Number({ description: 'one σ, °C' })),
+      observable: Type.Boolean({ description: 'false: no estimate of this chamber in the latest ring (no valid thermocouple under its plume, or too few for a map); its figures are null, not a healthy 0' }),
+      notObservableReason: Nullable(Type.String({ description: 'why the chamber is not observable; null when it is' })),
       residualDegC: Nullable(Type.Number({ description: 'deviation − baseline at this load, °C (steady rings with a baseline)' })),
     }),
   ),
@@ -138,12 +141,17 @@ export function statusBody(unitId: string, st: UnitStatusState, settings: Judgem
     coldestAdjacent: a?.coldestAdjacent ?? false,
     coverage: { valid: a?.validCount ?? 0, total: validity.length, degraded: a?.coverageDegraded ?? false },
     swirlDeg: num(a?.swirlDeg),
-    chambers: (a?.chamberDeviation ?? []).map((d, k) => ({
-      chamber: k + 1,
-      deviationDegC: num(d),
-      uncertaintyDegC: num(a?.chamberUncertainty[k]),
-      residualDegC: num(a?.chamberResidual?.[k]),
-    })),
+    chambers: (a?.chamberDeviation ?? []).map((d, k) => {
+      const blind = chamberNotObservableReason(a!.chamberDeviation, k);
+      return {
+        chamber: k + 1,
+        deviationDegC: num(d),
+        uncertaintyDegC: blind ? null : num(a?.chamberUncertainty[k]),
+        observable: blind === null,
+        notObservableReason: blind,
+        residualDegC: num(a?.chamberResidual?.[k]),
+      };
+    }),
     worstChamber:
       a && a.worstChamber !== null
         ? { chamber: a.worstChamber, likelihood: num(a.worstLikelihood), runnerUpChamber: a.runnerUpChamber, runnerUpLikelihood: num(a.runnerUpLikelihood) }

@@ -22,6 +22,8 @@ export interface RingPlotChamber {
   angleDeg: number;
   plumeAngleDeg: number;
   deviationC: number | null;
+  /** Why the ring has no estimate of this chamber (drawn hatched, "not observable"); null or absent when it has one. */
+  notObservableReason?: string | null;
 }
 
 export interface RingPlotInput {
@@ -64,13 +66,18 @@ export function ringSvg(p: RingPlotInput): string {
     const [x, y] = polar(CX, CY, R_CHAMBER, ch.angleDeg, p.view);
     const [px, py] = polar(CX, CY, R_REF, ch.plumeAngleDeg, p.view);
     const dev = diffIn(u, ch.deviationC);
+    const blind = ch.notObservableReason ?? null;
     const fill = dev === null ? '#ffffff' : dev < 0 ? PALETTE.cold : PALETTE.hot;
     out.push(`<line x1="${c(x)}" y1="${c(y)}" x2="${c(px)}" y2="${c(py)}" stroke="${PALETTE.plume}" stroke-width="0.8" stroke-dasharray="2 3"/>`);
-    out.push(`<g class="chamber" data-chamber="${ch.number}" data-angle="${c(ch.angleDeg)}" data-plume-angle="${c(ch.plumeAngleDeg)}">`);
-    out.push(`<rect x="${c(x - 15)}" y="${c(y - 11)}" width="30" height="22" rx="4" fill="${fill}" fill-opacity="${dev === null ? 1 : Math.min(0.85, 0.15 + Math.abs(dev) / 60)}" stroke="${PALETTE.ink}"/>`);
-    out.push(`<text x="${c(x)}" y="${c(y + 4)}" text-anchor="middle" font-weight="bold">C${ch.number}</text>`);
+    out.push(`<g class="chamber${blind ? ' not-observable' : ''}" data-chamber="${ch.number}" data-angle="${c(ch.angleDeg)}" data-plume-angle="${c(ch.plumeAngleDeg)}"${blind ? ' data-observable="false"' : ''}>`);
+    out.push(`<rect x="${c(x - 15)}" y="${c(y - 11)}" width="30" height="22" rx="4" fill="${fill}" fill-opacity="${dev === null ? 1 : Math.min(0.85, 0.15 + Math.abs(dev) / 60)}" stroke="${blind ? PALETTE.invalid : PALETTE.ink}"${blind ? ' stroke-dasharray="3 2"' : ''}/>`);
+    out.push(`<text x="${c(x)}" y="${c(y + 4)}" text-anchor="middle" font-weight="bold"${blind ? ` fill="${PALETTE.invalid}" font-style="italic"` : ''}>C${ch.number}${blind ? '?' : ''}</text>`);
     out.push(`<path d="M${c(px)},${c(py - 6)} l5,9 h-10 z" fill="${PALETTE.plume}" transform="rotate(${c(p.view === 'upstream' ? -ch.plumeAngleDeg : ch.plumeAngleDeg)} ${c(px)} ${c(py)})"/>`);
-    out.push(`<title>chamber ${ch.number}: ${num(dev)} °${u} from the average chamber; plume at ${num(ch.plumeAngleDeg, 0)}°</title></g>`);
+    out.push(
+      blind
+        ? `<title>chamber ${ch.number}: ${esc(blind)}; plume at ${num(ch.plumeAngleDeg, 0)}°</title></g>`
+        : `<title>chamber ${ch.number}: ${num(dev)} °${u} from the average chamber; plume at ${num(ch.plumeAngleDeg, 0)}°</title></g>`,
+    );
   }
   out.push('</g>');
   // Thermocouples.
@@ -109,6 +116,7 @@ export function ringSvg(p: RingPlotInput): string {
   out.push(`<rect x="92" y="${y0 + 30}" width="8" height="8" fill="${PALETTE.cold}"/><text x="106" y="${y0 + 38}">colder</text>`);
   out.push(`<path d="M170,${y0 + 30} l8,8 M170,${y0 + 38} l8,-8" stroke="${PALETTE.invalid}" stroke-width="2.5"/><text x="184" y="${y0 + 38}">not used (invalid)</text>`);
   out.push(`<path d="M310,${y0 + 29} l5,9 h-10 z" fill="${PALETTE.plume}"/><text x="320" y="${y0 + 38}">chamber plume after swirl</text>`);
+  if (p.chambers.some((ch) => ch.notObservableReason)) out.push(`<text x="20" y="${y0 + 56}" fill="${PALETTE.invalid}" font-style="italic" class="not-observable">C?: not observable, no valid thermocouple under its plume</text>`);
   out.push('</svg>');
   return out.join('');
 }
