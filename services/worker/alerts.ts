@@ -362,8 +362,12 @@ export async function applyAlertObservations(
           created.acknowledged = before.people.ackedAt !== null;
           created.historyAnnounced = before.open;
           created.foundInHistory = created.foundInHistory || !before.open;
-          const told = before.open && before.grade === created.grade;
-          changes.push(await recordChange(client, created, { action: 'raised', at: o.ts, details, notify: !told }, false));
+          changes.push(await recordChange(client, created, { action: 'raised', at: o.ts, details, notify: !before.open }, false));
+          // Taken up at another grade than the one subscribers heard: they hear of the grade change, not a second raise.
+          if (before.open && before.grade !== created.grade) {
+            const up = gradeRank(created.grade) > gradeRank(before.grade as Grade);
+            changes.push(await recordChange(client, created, { action: up ? 'escalated' : 'deescalated', at: o.ts, fromGrade: before.grade as Grade, details }, false));
+          }
         } else {
           changes.push(await recordChange(client, created, { action: 'raised', at: o.ts, details }, true));
         }
