@@ -366,7 +366,10 @@ export async function applyAlertObservations(
           // Taken up at another grade than the one subscribers heard: they hear of the grade change, not a second raise.
           if (before.open && before.grade !== created.grade) {
             const up = gradeRank(created.grade) > gradeRank(before.grade as Grade);
-            changes.push(await recordChange(client, created, { action: up ? 'escalated' : 'deescalated', at: o.ts, fromGrade: before.grade as Grade, details }, false));
+            // As a live escalation does, a higher grade asks for a new acknowledgement.
+            const wasAcknowledged = created.acknowledged;
+            if (up) Object.assign(created, { acknowledged: false, ackedAt: null, ackedBy: null, ackComment: null });
+            changes.push(await recordChange(client, created, { action: up ? 'escalated' : 'deescalated', at: o.ts, fromGrade: before.grade as Grade, details: { ...details, acknowledgementCleared: up && wasAcknowledged } }, false));
           }
         } else {
           changes.push(await recordChange(client, created, { action: 'raised', at: o.ts, details }, true));
