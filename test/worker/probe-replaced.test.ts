@@ -8,13 +8,13 @@
  * residual 3 °C off its normal.
  */
 import { describe, expect, it } from 'vitest';
-import { fitUnitBaseline, baselineOptionsFor, type BaselineSample } from '../../services/core/baseline.ts';
 import { defaultThresholds, type Finding } from '../../services/core/findings.ts';
 import { loadConfig } from '../../services/db/config.ts';
 import type { RingColumns } from '../../services/db/analysis-rings.ts';
 import type { RingBatch } from '../../services/sim/types.ts';
 import { UnitAnalyser, type AnalyserInputs } from '../../services/worker/unit-analyser.ts';
 import { healthyUnit, simulate } from './fixtures.ts';
+import { fitFromAnalysedRows } from './scenario.ts';
 
 const unit = healthyUnit('pr-1');
 const { id, name, site, ...config } = unit.config;
@@ -48,14 +48,7 @@ describe('a thermocouple replaced with a 3 °C offset step', () => {
   const eventMs = Date.parse('2026-02-04T06:00:00Z');
 
   // The baseline: two days of the healthy unit, from the analyser's own steady rows.
-  const fitter = new UnitAnalyser(inputs());
-  const samples: BaselineSample[] = [];
-  const ref = columns(b, 0, split);
-  for (let j = 0; j < ref.count; j++) {
-    const r = fitter.analyse(ref, j).row;
-    if (r.steady) samples.push({ loadFraction: r.loadFraction, ringMeanDegC: r.ringMean, spreadDegC: r.spread, thermocoupleDeviationDegC: Array.from(r.tcDeviation), chamberDeviationDegC: Array.from(r.chamberDeviation) });
-  }
-  const baseline = fitUnitBaseline(samples, { version: 1, window: { from: '2026-02-02T00:00:00Z', to: '2026-02-04T00:00:00Z' }, fittedAt: '2026-02-04T00:00:00Z', fittedBy: 'test' }, baselineOptionsFor(settings));
+  const baseline = fitFromAnalysedRows(new UnitAnalyser(inputs()), columns(b, 0, split), '2026-02-02T00:00:00Z', '2026-02-04T00:00:00Z');
 
   function run(withEvent: boolean) {
     const a = new UnitAnalyser(inputs({ baseline, replacements: withEvent ? [{ eventId: 'e1', atMs: eventMs, thermocouple: PROBE - 1, learntOffsetC: null }] : [] }));

@@ -4,7 +4,7 @@
  * analysed against it, with its findings kept. The simulator's truth (plume width, swirl,
  * faults) is its own; the analyser is told only the unit's configuration.
  */
-import { baselineOptionsFor, fitUnitBaseline, type BaselineSample } from '../../services/core/baseline.ts';
+import { baselineOptionsFor, fitUnitBaseline, type BaselineSample, type UnitBaseline } from '../../services/core/baseline.ts';
 import { defaultThresholds, type Finding } from '../../services/core/findings.ts';
 import { loadConfig } from '../../services/db/config.ts';
 import type { RingColumns } from '../../services/db/analysis-rings.ts';
@@ -25,6 +25,16 @@ function columns(b: RingBatch, lo: number, hi: number): RingColumns {
   return c;
 }
 
+/** A baseline (version 1, window [from, to)) fitted from the steady rows the analyser makes of the rings `ref`. */
+export function fitFromAnalysedRows(fitter: UnitAnalyser, ref: RingColumns, from: string, to: string): UnitBaseline {
+  const samples: BaselineSample[] = [];
+  for (let j = 0; j < ref.count; j++) {
+    const r = fitter.analyse(ref, j).row;
+    if (r.steady) samples.push({ loadFraction: r.loadFraction, ringMeanDegC: r.ringMean, spreadDegC: r.spread, thermocoupleDeviationDegC: Array.from(r.tcDeviation), chamberDeviationDegC: Array.from(r.chamberDeviation) });
+  }
+  return fitUnitBaseline(samples, { version: 1, window: { from, to }, fittedAt: to, fittedBy: 'test' }, baselineOptionsFor(settings));
+}
+
 export interface ScenarioRing {
   tsMs: number;
   steady: boolean;
@@ -42,14 +52,7 @@ export function runScenario(unit: SimUnit, o: { from: string; baselineTo: string
     unitId: id, versions: [{ version: 1, effectiveFrom: null, createdAt: new Date(0).toISOString(), config }], baseline: null, driftChambers: [], driftThermocouples: [], raise: defaultThresholds, hold: defaultThresholds, settings, ...over,
   });
   const split = b.tsMs.findIndex((t) => t >= Date.parse(o.baselineTo));
-  const fitter = new UnitAnalyser(inputs());
-  const samples: BaselineSample[] = [];
-  const ref = columns(b, 0, split);
-  for (let j = 0; j < ref.count; j++) {
-    const r = fitter.analyse(ref, j).row;
-    if (r.steady) samples.push({ loadFraction: r.loadFraction, ringMeanDegC: r.ringMean, spreadDegC: r.spread, thermocoupleDeviationDegC: Array.from(r.tcDeviation), chamberDeviationDegC: Array.from(r.chamberDeviation) });
-  }
-  const baseline = fitUnitBaseline(samples, { version: 1, window: { from: o.from, to: o.baselineTo }, fittedAt: o.baselineTo, fittedBy: 'test' }, baselineOptionsFor(settings));
+  const baseline = fitFromAnalysedRows(new UnitAnalyser(inputs()), columns(b, 0, split), o.from, o.baselineTo);
   const a = new UnitAnalyser(inputs({ baseline }));
   const rest = columns(b, split, b.count);
   const out: ScenarioRing[] = [];
