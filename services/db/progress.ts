@@ -194,28 +194,37 @@ export async function ensureProgressRows(q: Queryable, unitIds: string[], horizo
   );
 }
 
+/** Late rings of one unit (see findLateRings). */
+export interface LateRings {
+  /** Ring times, in order. */
+  times: number[];
+  /** Some of them were taken below `belowSpeedPct` of shaft speed: a start, a run-down or a trip. */
+  belowSpeed: boolean;
+}
+
 /**
  * Late rings: stored rings of the given units, received at or after the unit's
  * late_checked_from, at or before its watermark, without analysis. Per unit, their times
- * (oldest first, at most perUnitLimit).
+ * (oldest first, at most perUnitLimit) and whether any of them was taken below belowSpeedPct
+ * of shaft speed.
  */
-export async function findLateRings(q: Queryable, unitIds: string[], perUnitLimit: number): Promise<Map<string, number[]>> {
-  const out = new Map<string, number[]>();
+export async function findLateRings(q: Queryable, unitIds: string[], perUnitLimit: number, belowSpeedPct: number): Promise<Map<string, LateRings>> {
+  const out = new Map<string, LateRings>();
   if (unitIds.length === 0) return out;
   const { rows } = await q.query(
     `WITH u AS (SELECT unit_id, late_checked_from AS since, watermark_ts AS wm FROM analysis_progress
                  WHERE unit_id = ANY($1::text[]) AND watermark_ts IS NOT NULL),
           lo AS (SELECT min(since) AS since FROM u)
-     SELECT r.unit_id, array_agg(${msOf('r.ts')} ORDER BY r.ts) AS ts
+     SELECT r.unit_id, array_agg(${msOf('r.ts')} ORDER BY r.ts) AS ts, bool_or(r.speed_pct < $2) AS below
        FROM rings r JOIN u ON u.unit_id = r.unit_id
       WHERE r.received_at >= (SELECT since FROM lo) AND r.received_at >= u.since AND r.ts <= u.wm
         AND NOT EXISTS (SELECT 1 FROM ring_analysis a WHERE a.unit_id = r.unit_id AND a.ts = r.ts)
       GROUP BY r.unit_id`,
-    [unitIds],
+    [unitIds, belowSpeedPct],
   );
   for (const r of rows) {
     const ts = (r.ts as (string | number)[]).map(Number);
-    out.set(r.unit_id, ts.slice(0, perUnitLimit));
+    out.set(r.unit_id, { times: ts.slice(0, perUnitLimit), belowSpeed: r.below === true });
   }
   return out;
 }

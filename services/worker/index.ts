@@ -10,10 +10,11 @@ import { hostname } from 'node:os';
 import { randomBytes } from 'node:crypto';
 import cron from 'node-cron';
 import { defaultThresholds } from '../core/findings.ts';
+import { defaultStartOptions } from '../core/starts.ts';
 import type { Config } from '../db/config.ts';
 import type { Logger } from '../db/logger.ts';
 import type { Pool } from '../db/pool.ts';
-import { ensureProgressRows, findLateRings, receivedHorizon, requestReanalysis, setLateCheckedFrom } from '../db/progress.ts';
+import { ensureProgressRows, findLateRings, receivedHorizon, requestReanalysis, setLateCheckedFrom, type LateRings } from '../db/progress.ts';
 import { claimUnits, ensureClaimRows, heartbeat, liveWorkerCount, releaseUnits, renewLeases, retireWorker, workersOnHost } from '../db/claims.ts';
 import { startAlertJobs } from './alert-jobs.ts';
 import { deadbandThresholds, loadAlertSettings } from './alerts.ts';
@@ -82,7 +83,7 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
   const owned = new Set<string>();
   const dirty = new Set<string>();
   const running = new Map<string, Promise<void>>();
-  const late = new Map<string, { times: number[]; horizon: Date }>();
+  const late = new Map<string, LateRings & { horizon: Date }>();
   const waiters: Array<() => void> = [];
   let stopped = false;
 
@@ -148,14 +149,16 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
     const work = late.get(unitId);
     if (!work) return true;
     late.delete(unitId);
-    if (work.times.length >= s.lateRewindRings) {
-      // History arriving out of order (months of an import in any order): judge everything from
-      // the earliest late ring on again, in ring order, alerts and drift with it, as if it had
-      // come in order. A few late rings are analysed in their span (below); alerts stay as they are.
-      const from = Math.min(...work.times);
+    if (work.times.length >= s.lateRewindRings || work.belowSpeed) {
+      // History arriving out of order (months of an import in any order), or late rings of a
+      // start, a run-down or a trip (the start detector reads rings in order only): judge
+      // everything from the earliest late ring on again, in ring order, starts, alerts and drift
+      // with it, as if it had come in order. A few late rings at speed are analysed in their
+      // span (below); alerts stay as they are.
+      const from = work.times[0];
       await requestReanalysis(pool, unitId, from);
       await setLateCheckedFrom(pool, [unitId], work.horizon);
-      log.info({ unitId, from: new Date(from).toISOString(), rings: work.times.length }, 'history arrived out of order; judging it again from its earliest ring');
+      log.info({ unitId, from: new Date(from).toISOString(), rings: work.times.length, belowSpeed: work.belowSpeed }, 'rings arrived out of order; judging them again in ring order from the earliest');
       return true;
     }
     for (const [a, b] of spansOf(work.times)) {
@@ -321,11 +324,11 @@ export async function startWorker(deps: WorkerDeps): Promise<Worker> {
     await claimCycle();
     const ids = [...owned];
     const horizon = await receivedHorizon(pool);
-    const found = await findLateRings(pool, ids, 1_000_000);
+    const found = await findLateRings(pool, ids, 1_000_000, defaultStartOptions.tripMinSpeedPct);
     await setLateCheckedFrom(pool, ids.filter((id) => !found.has(id)), horizon);
-    for (const [id, times] of found) {
-      late.set(id, { times, horizon });
-      log.info({ unitId: id, rings: times.length }, 'late rings found');
+    for (const [id, work] of found) {
+      late.set(id, { ...work, horizon });
+      log.info({ unitId: id, rings: work.times.length, belowSpeed: work.belowSpeed }, 'late rings found');
     }
     for (const id of await fitDueRequests(pool, log, ids, s)) invalidateInputs(pc, id);
     mark(ids);
